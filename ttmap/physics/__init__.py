@@ -1,0 +1,4 @@
+"""Pure-numpy physics: constants, linear dispersion, wave speeds, source scaling.
+
+Nothing in this package reads or writes files.
+"""

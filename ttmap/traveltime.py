@@ -1,0 +1,405 @@
+"""Travel-time computation: the public entry points of the engine.
+
+Two steps, so that many sources can share one speed field:
+
+1. :func:`prepare_medium` turns depth into a solve-ready :class:`Medium`:
+   floor depth, speed for the chosen mode and period, diagonal-only joins
+   opened, water bodies numbered, and (for lon/lat grids) the Mercator solve
+   plane with speeds multiplied by the scale factor.
+2. :meth:`Medium.travel_time` places a source, marches, carries the times back
+   to the native grid and summarises what was reached.
+
+:func:`compute_travel_time` does both in one call.
+"""
+
+from __future__ import annotations
+
+import time
+from dataclasses import asdict, dataclass, field
+from typing import Any
+
+import numpy as np
+
+from ttmap._typing import BoolArray, EarthModel, FloatArray, IntArray
+from ttmap.connectivity import label_water, open_diagonal_joins
+from ttmap.errors import InputDataError
+from ttmap.grid import Grid, SolvePlane, solve_plane
+from ttmap.physics.speed import DEFAULT_FLOOR_DEPTH_M, SPEED_MODES, floor_depth, wave_speed_m_s
+from ttmap.solver import fast_march_s
+from ttmap.sources import Source, place_source
+
+__all__ = [
+    "Medium",
+    "TravelTimeResult",
+    "TravelTimeSummary",
+    "prepare_medium",
+    "compute_travel_time",
+    "DEFAULT_MIN_BASIN_SHARE",
+]
+
+#: A water body holding less than this share of the grid's water, and not
+#: the largest one, is a closed basin: sources may not start there.
+DEFAULT_MIN_BASIN_SHARE: float = 0.01
+
+
+@dataclass(frozen=True)
+class TravelTimeSummary:
+    """What a solve reached, for reports and the run record.
+
+    Attributes
+    ----------
+    cells_total, water_cells : int
+        Cells in the grid; water cells after floor depth and opened joins.
+    cells_reached : int
+        Water cells with an arrival time.
+    cells_unreached : int
+        Water cells in basins the front cannot reach.
+    cells_beyond_max_time : int
+        Water cells reachable but later than the maximum time.
+    unreached_basins : int
+        Water bodies with no arrival.
+    diagonal_joins_opened : int
+        Land cells opened to join diagonal-only water.
+    source_start_cells : int
+        Native cells inside the source's start region.
+    source_row, source_col : int
+        Native cell of the (possibly moved) source or its representative point.
+    source_x, source_y : float
+        Position in the grid's CRS.
+    source_moved_m : float
+        Distance the source was moved to reach open water (0 if not moved).
+    source_depth_m : float
+        Depth at the source cell (after floor depth).
+    solve_shape : tuple of int
+        Shape of the solve grid (Mercator rows for lon/lat grids).
+    solve_seconds : float
+        Wall time of placing the source, marching and carrying back.
+    """
+
+    cells_total: int
+    water_cells: int
+    cells_reached: int
+    cells_unreached: int
+    cells_beyond_max_time: int
+    unreached_basins: int
+    diagonal_joins_opened: int
+    source_start_cells: int
+    source_row: int
+    source_col: int
+    source_x: float
+    source_y: float
+    source_moved_m: float
+    source_depth_m: float
+    solve_shape: tuple[int, int]
+    solve_seconds: float
+
+    def as_dict(self) -> dict[str, Any]:
+        """JSON-ready dictionary."""
+        d = asdict(self)
+        d["solve_shape"] = list(self.solve_shape)
+        return d
+
+
+@dataclass(frozen=True)
+class TravelTimeResult:
+    """Arrival times of one solve.
+
+    Attributes
+    ----------
+    arrival_time_s : ndarray of shape grid.shape, float64, seconds
+        Time after origin; NaN on land, unreached cells and beyond the
+        maximum time.
+    grid : Grid
+    summary : TravelTimeSummary
+    source : Source
+    settings : dict
+        Speed mode, period, floor depth, far-field flag, earth model, maximum time.
+    """
+
+    arrival_time_s: FloatArray = field(repr=False)
+    grid: Grid
+    summary: TravelTimeSummary
+    source: Source
+    settings: dict[str, Any]
+
+    @property
+    def arrival_time_min(self) -> FloatArray:
+        """Arrival time in minutes."""
+        return self.arrival_time_s / 60.0
+
+
+@dataclass(frozen=True)
+class Medium:
+    """A speed field ready for solving, shared by many sources.
+
+    Build with :func:`prepare_medium`. Attributes are read-only views; do not
+    modify them.
+    """
+
+    grid: Grid
+    plane: SolvePlane
+    depth_m: FloatArray = field(repr=False)
+    water: BoolArray = field(repr=False)
+    open_water: BoolArray = field(repr=False)
+    basin_labels: IntArray = field(repr=False)
+    basin_sizes: IntArray = field(repr=False)
+    speed_m_s: FloatArray = field(repr=False)
+    speed_plane_m_s: FloatArray = field(repr=False)
+    barrier_plane: BoolArray = field(repr=False)
+    joins_opened: tuple[tuple[int, int], ...]
+    settings: dict[str, Any]
+
+    def travel_time(
+        self,
+        source: Source,
+        *,
+        max_time_s: float | None = None,
+        snap_radius_m: float | None = None,
+    ) -> TravelTimeResult:
+        """Arrival time of the front from ``source`` at every water cell.
+
+        Parameters
+        ----------
+        source : Source
+        max_time_s : float, optional
+            Stop at this time; later cells are NaN (counted as beyond).
+        snap_radius_m : float, optional
+            Allow a point source on land, nodata or in a closed basin to move
+            to the nearest open water within this ground distance.
+
+        Returns
+        -------
+        TravelTimeResult
+
+        Raises
+        ------
+        SourceError
+            See :func:`ttmap.sources.place_source`.
+        SolverError
+            The solve failed.
+        """
+        if max_time_s is not None and not (np.isfinite(max_time_s) and max_time_s > 0):
+            raise InputDataError(f"maximum time {max_time_s!r} s must be a positive number")
+        if snap_radius_m is not None and not (np.isfinite(snap_radius_m) and snap_radius_m >= 0):
+            raise InputDataError(f"snap radius {snap_radius_m!r} m must be a non-negative number")
+        t0 = time.perf_counter()
+        start = place_source(
+            source,
+            grid=self.grid,
+            plane=self.plane,
+            depth_m=self.depth_m,
+            water=self.water,
+            open_water=self.open_water,
+            basin_labels=self.basin_labels,
+            basin_sizes=self.basin_sizes,
+            speed_plane_m_s=self.speed_plane_m_s,
+            barrier_plane=self.barrier_plane,
+            snap_radius_m=snap_radius_m,
+        )
+        t_plane = fast_march_s(
+            self.speed_plane_m_s,
+            barrier=self.barrier_plane,
+            inside=start.inside,
+            band_cells=start.band_cells,
+            band_time_s=start.band_time_s,
+            spacing_m=self.plane.spacing_m,
+            periodic_x=self.plane.periodic_x,
+            max_time_s=max_time_s,
+        )
+        t_plane += start.contour_time_s
+        t_plane[start.inside_cells] = start.inside_time_s
+        arrival = self.plane.to_native(t_plane)
+        arrival[~self.water] = np.nan
+        if max_time_s is not None:
+            arrival[arrival > max_time_s] = np.nan
+        elapsed = time.perf_counter() - t0
+        summary = self._summarise(arrival, start, elapsed)
+        settings = dict(self.settings, max_time_s=max_time_s, snap_radius_m=snap_radius_m)
+        return TravelTimeResult(arrival, self.grid, summary, source, settings)
+
+    def _summarise(self, arrival: FloatArray, start: Any, elapsed: float) -> TravelTimeSummary:
+        reached = np.isfinite(arrival)
+        labels = self.basin_labels
+        reached_basins = np.unique(labels[reached])
+        basin_reached = np.zeros(self.basin_sizes.size, dtype=bool)
+        basin_reached[reached_basins] = True
+        missing = self.water & ~reached
+        in_reached_basin = basin_reached[labels]
+        beyond = int((missing & in_reached_basin).sum())
+        unreached = int((missing & ~in_reached_basin).sum())
+        n_basins = self.basin_sizes.size - 1
+        p = start.placement
+        return TravelTimeSummary(
+            cells_total=int(arrival.size),
+            water_cells=int(self.water.sum()),
+            cells_reached=int(reached.sum()),
+            cells_unreached=unreached,
+            cells_beyond_max_time=beyond,
+            unreached_basins=int(n_basins - basin_reached[1:].sum()),
+            diagonal_joins_opened=len(self.joins_opened),
+            source_start_cells=int(p.start_cells),
+            source_row=int(p.row),
+            source_col=int(p.col),
+            source_x=float(p.x),
+            source_y=float(p.y),
+            source_moved_m=float(p.moved_m),
+            source_depth_m=float(p.depth_m),
+            solve_shape=self.plane.shape,
+            solve_seconds=float(elapsed),
+        )
+
+
+def prepare_medium(
+    depth_m: Any,
+    grid: Grid,
+    *,
+    mode: str = "long-wave",
+    period_s: float | None = None,
+    floor_depth_m: float = DEFAULT_FLOOR_DEPTH_M,
+    far_field: bool = False,
+    earth: EarthModel = "wgs84",
+    open_diagonal: bool = True,
+    min_basin_share: float = DEFAULT_MIN_BASIN_SHARE,
+) -> Medium:
+    """Turn a depth grid into a solve-ready speed field.
+
+    Parameters
+    ----------
+    depth_m : ndarray of shape grid.shape, float, metres, positive down
+        Land is depth <= 0; NaN is nodata (treated as land).
+    grid : Grid
+    mode : {"long-wave", "group", "phase"}
+        Speed mode (see :mod:`ttmap.physics.speed`).
+    period_s : float, optional
+        Wave period for "group" and "phase".
+    floor_depth_m : float
+        Shallower water gets this depth (default 5 m, see
+        :mod:`ttmap.physics.speed`).
+    far_field : bool
+        Apply the far-field effective-depth slowdown.
+    earth : {"wgs84", "sphere"}
+        Figure of the Earth for lon/lat grids.
+    open_diagonal : bool
+        Open diagonal-only joins between water bodies (default True).
+    min_basin_share : float
+        Water bodies smaller than this share of all water, other than the
+        largest, are closed basins where no source may start.
+
+    Returns
+    -------
+    Medium
+
+    Raises
+    ------
+    InputDataError
+        Shape mismatch, no water, bad mode/period/floor depth.
+    GridError
+        A lon/lat grid beyond the latitude limit, or an unknown earth model.
+
+    Examples
+    --------
+    >>> from affine import Affine
+    >>> g = Grid((50, 50), Affine(1000, 0, 0, 0, -1000, 50000), "EPSG:32601")
+    >>> m = prepare_medium(np.full((50, 50), 4000.0), g)
+    >>> r = m.travel_time(Source.point_xy(25500, 24500))
+    >>> round(float(r.arrival_time_s[24, 45]) / (20000 / np.sqrt(9.80665 * 4000)), 3)
+    1.0
+    """
+    depth = np.array(depth_m, dtype=np.float64)
+    if depth.shape != grid.shape:
+        raise InputDataError(f"depth array shape {depth.shape} differs from the grid shape {grid.shape}")
+    if mode not in SPEED_MODES:
+        raise InputDataError(f"speed mode {mode!r} is unknown; choose one of {', '.join(SPEED_MODES)}")
+    if not (0.0 <= min_basin_share < 1.0):
+        raise InputDataError(f"minimum basin share {min_basin_share!r} must lie in [0, 1)")
+    plane = solve_plane(grid, earth=earth)
+    depth[~np.isfinite(depth)] = np.nan
+    depth = floor_depth(depth, floor_depth_m)
+    core = depth[:, :-1] if plane.drop_seam else depth
+    water_core = np.isfinite(core) & (core > 0.0)
+    if not water_core.any():
+        raise InputDataError(
+            "the bathymetry has no water (every cell is land or nodata); check the sign convention "
+            "(depth-positive grids need the depth-positive option) or the crop window"
+        )
+    opened: list[tuple[int, int]] = []
+    if open_diagonal:
+        water_core, opened = open_diagonal_joins(water_core, ground=core, periodic_x=plane.periodic_x)
+        for r, c in opened:
+            core[r, c] = floor_depth_m
+    labels_core, sizes = label_water(water_core, periodic_x=plane.periodic_x)
+    if plane.drop_seam:
+        depth[:, -1] = depth[:, 0]
+        water = np.concatenate([water_core, water_core[:, :1]], axis=1)
+        labels = np.concatenate([labels_core, labels_core[:, :1]], axis=1)
+    else:
+        water = water_core
+        labels = labels_core
+    total = int(sizes[1:].sum())
+    largest = int(np.argmax(sizes[1:])) + 1
+    open_basin = sizes >= min_basin_share * total
+    open_basin[0] = False
+    open_basin[largest] = True
+    open_water = open_basin[labels]
+
+    speed = wave_speed_m_s(depth, mode=mode, period_s=period_s, floor_depth_m=floor_depth_m, far_field=far_field)
+    speed = np.where(water, speed, np.nan)
+    speed_plane = plane.to_solve(speed) * plane.scale_factor[:, None]
+    barrier_plane = ~plane.to_solve(water)
+    speed_plane = np.where(barrier_plane, 1.0, speed_plane)
+    settings = {
+        "speed_mode": mode,
+        "period_s": period_s,
+        "floor_depth_m": floor_depth_m,
+        "far_field": far_field,
+        "earth": earth if grid.is_geographic else None,
+        "open_diagonal": open_diagonal,
+        "min_basin_share": min_basin_share,
+    }
+    return Medium(
+        grid=grid,
+        plane=plane,
+        depth_m=depth,
+        water=water,
+        open_water=open_water,
+        basin_labels=labels,
+        basin_sizes=sizes,
+        speed_m_s=speed,
+        speed_plane_m_s=speed_plane,
+        barrier_plane=barrier_plane,
+        joins_opened=tuple(opened),
+        settings=settings,
+    )
+
+
+def compute_travel_time(
+    depth_m: Any,
+    grid: Grid,
+    source: Source,
+    *,
+    mode: str = "long-wave",
+    period_s: float | None = None,
+    floor_depth_m: float = DEFAULT_FLOOR_DEPTH_M,
+    far_field: bool = False,
+    earth: EarthModel = "wgs84",
+    max_time_s: float | None = None,
+    snap_radius_m: float | None = None,
+) -> TravelTimeResult:
+    """Arrival time of a tsunami front (or of one period's energy) at every water cell.
+
+    One call of :func:`prepare_medium` then :meth:`Medium.travel_time`; see
+    those for the parameters.
+
+    Examples
+    --------
+    >>> from affine import Affine
+    >>> g = Grid((40, 40), Affine(1000, 0, 0, 0, -1000, 40000), "EPSG:32601")
+    >>> r = compute_travel_time(np.full((40, 40), 1000.0), g, Source.point_xy(20500, 20500))
+    >>> r.summary.cells_reached
+    1600
+    """
+    medium = prepare_medium(
+        depth_m, grid, mode=mode, period_s=period_s, floor_depth_m=floor_depth_m,
+        far_field=far_field, earth=earth,
+    )
+    return medium.travel_time(source, max_time_s=max_time_s, snap_radius_m=snap_radius_m)
