@@ -1,0 +1,1 @@
+"""The ``ttmap`` command line: thin wrappers over the library."""

@@ -1,0 +1,81 @@
+"""The ``ttmap`` command group: verbosity, version, and one-line errors.
+
+Exit status: 0 success, 1 input or run error (a :class:`~ttmap.errors.TtmapError`
+or another failure), 2 usage error (bad option). A traceback is shown only
+with ``--verbose``.
+"""
+
+from __future__ import annotations
+
+import logging
+import sys
+from typing import Any
+
+import click
+
+from ttmap import __version__
+from ttmap.errors import TtmapError
+
+__all__ = ["cli", "main"]
+
+log = logging.getLogger("ttmap")
+
+
+class _Group(click.Group):
+    """A group that turns ttmap errors into one-line messages (exit 1)."""
+
+    def invoke(self, ctx: click.Context) -> Any:
+        try:
+            return super().invoke(ctx)
+        except (click.ClickException, click.exceptions.Exit, click.Abort):
+            raise
+        except TtmapError as err:
+            if ctx.obj and ctx.obj.get("verbose"):
+                raise
+            raise click.ClickException(str(err)) from err
+        except KeyboardInterrupt:
+            click.echo("interrupted; no partial product was left behind", err=True)
+            sys.exit(130)
+        except Exception as err:  # an unexpected failure: still one line
+            if ctx.obj and ctx.obj.get("verbose"):
+                raise
+            raise click.ClickException(
+                f"unexpected {type(err).__name__}: {err} (rerun with --verbose for the traceback)"
+            ) from err
+
+
+@click.group(cls=_Group, context_settings={"help_option_names": ["-h", "--help"]})
+@click.version_option(__version__, prog_name="ttmap")
+@click.option("-v", "--verbose", is_flag=True, help="More detail, and tracebacks on errors.")
+@click.option("-q", "--quiet", is_flag=True, help="No progress messages.")
+@click.pass_context
+def cli(ctx: click.Context, verbose: bool, quiet: bool) -> None:
+    """Tsunami and long-wave travel-time maps from bathymetry.
+
+    A planning aid only, not a warning: official warning centres and local
+    emergency management decide. Arrival times only; wave heights and
+    flooding are not computed.
+    """
+    if verbose and quiet:
+        raise click.UsageError("--verbose and --quiet exclude each other; give one")
+    ctx.ensure_object(dict)
+    ctx.obj["verbose"] = verbose
+    ctx.obj["quiet"] = quiet
+    logging.basicConfig(level=logging.DEBUG if verbose else logging.WARNING, format="%(message)s")
+
+
+def _register() -> None:
+    from ttmap.cli.demo import demo
+    from ttmap.cli.info import info
+    from ttmap.cli.map import map_command
+
+    cli.add_command(map_command)
+    cli.add_command(demo)
+    cli.add_command(info)
+
+
+_register()
+
+
+def main() -> None:  # pragma: no cover - console entry point
+    cli(prog_name="ttmap")

@@ -1,0 +1,117 @@
+"""Shared option parsing for the command line: callbacks that raise BadParameter."""
+
+from __future__ import annotations
+
+import warnings
+from collections.abc import Callable, Iterator
+from contextlib import contextmanager
+from typing import Any
+
+import click
+
+from ttmap.errors import TtmapWarning
+
+__all__ = [
+    "parse_pair",
+    "parse_bbox",
+    "pair_callback",
+    "bbox_callback",
+    "positive_callback",
+    "Reporter",
+    "reporter",
+]
+
+
+def parse_pair(value: str, names: tuple[str, str] = ("LON", "LAT")) -> tuple[float, float]:
+    """Parse ``"a,b"`` into two floats; ValueError with a helpful message otherwise.
+
+    >>> parse_pair("-70.5,-33.2")
+    (-70.5, -33.2)
+    """
+    parts = [p.strip() for p in str(value).replace(" ", ",").split(",") if p.strip()]
+    if len(parts) != 2:
+        raise ValueError(f"{value!r} is not {names[0]},{names[1]} (two numbers separated by a comma)")
+    try:
+        a, b = float(parts[0]), float(parts[1])
+    except ValueError:
+        raise ValueError(f"{value!r} is not {names[0]},{names[1]} (two numbers)") from None
+    if not all(map(lambda v: v == v and abs(v) != float("inf"), (a, b))):
+        raise ValueError(f"{value!r} has a value that is not a finite number")
+    return a, b
+
+
+def parse_bbox(value: str) -> tuple[float, float, float, float]:
+    """Parse ``"W,S,E,N"``.
+
+    >>> parse_bbox("-150,-38,-141,-31")
+    (-150.0, -38.0, -141.0, -31.0)
+    """
+    parts = [p.strip() for p in str(value).split(",") if p.strip()]
+    try:
+        w, s, e, n = (float(p) for p in parts)
+    except ValueError:
+        raise ValueError(f"{value!r} is not WEST,SOUTH,EAST,NORTH (four numbers)") from None
+    if not (w < e and s < n):
+        raise ValueError(f"{value!r} needs WEST < EAST and SOUTH < NORTH")
+    return w, s, e, n
+
+
+def pair_callback(names: tuple[str, str]) -> Callable[[click.Context, click.Parameter, Any], Any]:
+    def cb(ctx: click.Context, param: click.Parameter, value: Any) -> Any:
+        if value is None:
+            return None
+        try:
+            return parse_pair(value, names)
+        except ValueError as err:
+            raise click.BadParameter(str(err), ctx=ctx, param=param) from None
+
+    return cb
+
+
+def bbox_callback(ctx: click.Context, param: click.Parameter, value: Any) -> Any:
+    if value is None:
+        return None
+    try:
+        return parse_bbox(value)
+    except ValueError as err:
+        raise click.BadParameter(str(err), ctx=ctx, param=param) from None
+
+
+def positive_callback(ctx: click.Context, param: click.Parameter, value: Any) -> Any:
+    if value is None:
+        return None
+    vals = value if isinstance(value, tuple) else (value,)
+    for v in vals:
+        if not (v > 0 and v != float("inf")):
+            raise click.BadParameter(f"{v!r} must be a positive number", ctx=ctx, param=param)
+    return value
+
+
+class Reporter:
+    """Progress and notices on stderr, honouring --quiet and --verbose."""
+
+    def __init__(self, quiet: bool = False, verbose: bool = False) -> None:
+        self.quiet = quiet
+        self.verbose = verbose
+
+    def stage(self, message: str) -> None:
+        if not self.quiet:
+            click.echo(f"ttmap: {message}", err=True)
+
+    def notice(self, message: str) -> None:
+        click.echo(f"ttmap: note: {message}", err=True)
+
+
+@contextmanager
+def reporter(ctx: click.Context) -> Iterator[Reporter]:
+    """A Reporter for a command; ttmap warnings are shown as one-line notes."""
+    obj = ctx.find_root().obj or {}
+    rep = Reporter(quiet=obj.get("quiet", False), verbose=obj.get("verbose", False))
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always", TtmapWarning)
+        try:
+            yield rep
+        finally:
+            for w in caught:
+                if issubclass(w.category, TtmapWarning):
+                    rep.notice(str(w.message))
