@@ -115,6 +115,8 @@ def planned_outputs(job: MapJob) -> list[Path]:
                 for layer in ("isochrone_lines", "isochrone_bands"):
                     paths.append(out / f"isochrones_{s.key}_{layer}{ext}")
         paths += [out / f"isochrones_{s.key}_lines.sld", out / f"isochrones_{s.key}_bands.sld"]
+        if "shp" in job.vector_formats:
+            paths.append(out / f"isochrones_{s.key}_bands_shp.sld")
         for fmt in job.map_formats:
             paths.append(out / f"map_{s.key}.{fmt}")
     paths.append(out / "run.json")
@@ -411,6 +413,17 @@ def _write_products(job: MapJob, pset: ProductSet, result: TravelTimeResult, wat
                                layer_name="isochrone_bands", title=f"Arrival bands: {pset.title}"),
               overwrite=job.overwrite)
     written += [sld_l, sld_b]
+    if "shp" in job.vector_formats:
+        from ttmap.io.vector import shapefile_field_name
+
+        # Shapefile field names are cut to 10 characters: the bands style filters on that name.
+        sld_bs = out / f"isochrones_{key}_bands_shp.sld"
+        write_sld(sld_bs, bands_sld([(b.min_minutes, b.max_minutes, b.label) for b in bands],
+                                    colors[: len(bands)], layer_name=f"isochrones_{key}_isochrone_bands",
+                                    title=f"Arrival bands: {pset.title}",
+                                    attribute=shapefile_field_name("min_minutes")),
+                  overwrite=job.overwrite)
+        written.append(sld_bs)
 
     if job.map_formats:
         from ttmap.products.maps import render_arrival_map, save_figure

@@ -1,0 +1,425 @@
+"""Layer styles as OGC Styled Layer Descriptor (SLD 1.0.0) XML.
+
+Three styles go beside the products:
+
+- :func:`raster_sld` - the arrival-time raster: a colour map over minutes,
+  nodata transparent.
+- :func:`bands_sld` - isochrone bands: one rule per band, selected by the
+  band's lower bound in minutes, filled with the shared arrival ramp.
+- :func:`lines_sld` - isochrone lines: a thin dark line labelled with the
+  time along the line.
+
+The XML is built with :mod:`xml.etree.ElementTree` and written with
+:func:`write_sld` through :func:`ttmap.io.atomic.atomic_output`. Colours come
+from :mod:`ttmap.products.palette`, the ramp the maps use too.
+
+Notes
+-----
+Element order follows the SLD 1.0.0 schema. ``ColorMap type="intervals"``
+is the widely supported extension for classed rasters (SLD 1.0.0 itself only
+defines interpolated colour maps); the default ``"ramp"`` writes no ``type``
+attribute, which is plain SLD 1.0.0.
+"""
+
+from __future__ import annotations
+
+import itertools
+import math
+import os
+import xml.etree.ElementTree as ET
+from collections.abc import Sequence
+
+from ttmap.errors import InputDataError
+from ttmap.io.atomic import atomic_output
+from ttmap.products.palette import check_hex_colors
+
+__all__ = [
+    "SLD_NAMESPACE",
+    "OGC_NAMESPACE",
+    "COLOR_MAP_TYPES",
+    "raster_sld",
+    "bands_sld",
+    "lines_sld",
+    "write_sld",
+]
+
+SLD_NAMESPACE = "http://www.opengis.net/sld"
+OGC_NAMESPACE = "http://www.opengis.net/ogc"
+_XLINK = "http://www.w3.org/1999/xlink"
+_XSI = "http://www.w3.org/2001/XMLSchema-instance"
+_SCHEMA = "http://schemas.opengis.net/sld/1.0.0/StyledLayerDescriptor.xsd"
+
+#: Colour map kinds accepted by :func:`raster_sld`.
+COLOR_MAP_TYPES: tuple[str, ...] = ("ramp", "intervals")
+
+#: Upper bound written for the last, open-ended raster interval (minutes).
+_OPEN_END_MIN = 1.0e9
+
+_LINE_COLOR = "#1a1a1a"
+_BAND_STROKE = "#404040"
+_HALO_COLOR = "#ffffff"
+
+
+def _num(value: float) -> str:
+    """Shortest plain text for a number: ``10`` for 10.0, ``7.5`` for 7.5."""
+    v = float(value)
+    if v.is_integer() and abs(v) < 1e15:
+        return str(int(v))
+    return repr(v)
+
+
+def _label(minutes: float) -> str:
+    from ttmap.products.isochrones import format_minutes_label
+
+    return format_minutes_label(minutes)
+
+
+def _sub(parent: ET.Element, tag: str, text: str | None = None, **attrib: str) -> ET.Element:
+    el = ET.SubElement(parent, tag, attrib)
+    if text is not None:
+        el.text = text
+    return el
+
+
+def _css(parent: ET.Element, name: str, value: str) -> None:
+    _sub(parent, "CssParameter", value, name=name)
+
+
+def _check_name(what: str, value: str) -> str:
+    if not isinstance(value, str) or not value.strip():
+        raise InputDataError(f"{what} {value!r} is empty; give a name")
+    return value
+
+
+def _document(layer_name: str, title: str, abstract: str | None) -> tuple[ET.Element, ET.Element]:
+    """Root element and the FeatureTypeStyle to fill with rules."""
+    _check_name("layer_name", layer_name)
+    root = ET.Element(
+        "StyledLayerDescriptor",
+        {
+            "version": "1.0.0",
+            "xmlns": SLD_NAMESPACE,
+            "xmlns:ogc": OGC_NAMESPACE,
+            "xmlns:xlink": _XLINK,
+            "xmlns:xsi": _XSI,
+            "xsi:schemaLocation": f"{SLD_NAMESPACE} {_SCHEMA}",
+        },
+    )
+    layer = _sub(root, "NamedLayer")
+    _sub(layer, "Name", layer_name)
+    style = _sub(layer, "UserStyle")
+    _sub(style, "Name", layer_name)
+    _sub(style, "Title", title)
+    if abstract:
+        _sub(style, "Abstract", abstract)
+    fts = _sub(style, "FeatureTypeStyle")
+    return root, fts
+
+
+def _serialise(root: ET.Element) -> str:
+    ET.indent(root, space="  ")
+    return '<?xml version="1.0" encoding="UTF-8"?>\n' + ET.tostring(root, encoding="unicode") + "\n"
+
+
+def _default_abstract() -> str:
+    from ttmap.products.cautions import CAUTION_SHORT
+
+    return CAUTION_SHORT
+
+
+def raster_sld(
+    levels_min: Sequence[float],
+    colors_hex: Sequence[str],
+    *,
+    layer_name: str,
+    title: str,
+    nodata: float = -9999.0,
+    color_map_type: str = "ramp",
+    abstract: str | None = None,
+) -> str:
+    """SLD for an arrival-time raster in minutes.
+
+    Parameters
+    ----------
+    levels_min : sequence of float, minutes
+        Strictly increasing break values, e.g. ``[0, 10, 20, ..., 120]``.
+    colors_hex : sequence of str
+        One ``"#rrggbb"`` colour per level, earliest first
+        (:func:`ttmap.products.palette.arrival_colors_hex`).
+    layer_name, title : str
+        Layer name the style is for, and its human-readable title.
+    nodata : float
+        The raster's nodata value; shown transparent.
+    color_map_type : {"ramp", "intervals"}
+        ``"ramp"``: colours interpolated between levels, one entry per level
+        labelled ``h:mm``. ``"intervals"``: colour ``i`` fills
+        ``levels[i] <= t < levels[i + 1]`` and the last colour every time from
+        the last level on; labels ``"0:10 to 0:20"``, ``"2:00 and later"``.
+    abstract : str, optional
+        Style abstract; the short caution text by default.
+
+    Returns
+    -------
+    str
+        The SLD document (UTF-8 XML declaration included).
+
+    Raises
+    ------
+    InputDataError
+        Unknown colour map type, lengths that differ, levels not finite and
+        strictly increasing, a nodata value inside the levels, bad colours.
+
+    Notes
+    -----
+    The first ``ColorMapEntry`` makes values below the first level (the
+    nodata value among them) fully transparent, so ``ramp`` maps have
+    ``n + 1`` entries and ``intervals`` maps have ``n + 1`` as well (the
+    transparent entry, then one per colour).
+    """
+    if color_map_type not in COLOR_MAP_TYPES:
+        raise InputDataError(
+            f"colour map type {color_map_type!r} is unknown; choose one of "
+            f"{', '.join(COLOR_MAP_TYPES)}"
+        )
+    levels = [float(v) for v in levels_min]
+    colors = check_hex_colors(list(colors_hex))
+    if not levels:
+        raise InputDataError("levels_min is empty; give at least one level in minutes")
+    if len(colors) != len(levels):
+        raise InputDataError(
+            f"{len(levels)} levels but {len(colors)} colours; give one colour per level"
+        )
+    if not all(math.isfinite(v) for v in levels) or any(
+        b <= a for a, b in itertools.pairwise(levels)
+    ):
+        raise InputDataError(f"levels_min {levels} must be finite and strictly increasing")
+    if not math.isfinite(float(nodata)) or float(nodata) >= levels[0]:
+        raise InputDataError(
+            f"nodata {nodata!r} must be a finite value below the first level {levels[0]:g}; "
+            "pass the raster's nodata value (e.g. -9999)"
+        )
+
+    root, fts = _document(layer_name, title, _default_abstract() if abstract is None else abstract)
+    rule = _sub(fts, "Rule")
+    _sub(rule, "Name", "arrival_minutes")
+    _sub(rule, "Title", title)
+    symbolizer = _sub(rule, "RasterSymbolizer")
+    _sub(symbolizer, "Opacity", "1.0")
+    cmap = _sub(symbolizer, "ColorMap")
+    if color_map_type == "ramp":
+        _sub(
+            cmap,
+            "ColorMapEntry",
+            color="#000000",
+            quantity=_num(nodata),
+            opacity="0",
+            label="no data",
+        )
+        for level, color in zip(levels, colors, strict=True):
+            _sub(
+                cmap,
+                "ColorMapEntry",
+                color=color,
+                quantity=_num(level),
+                opacity="1",
+                label=_label(level),
+            )
+    else:
+        cmap.set("type", "intervals")
+        _sub(
+            cmap,
+            "ColorMapEntry",
+            color="#000000",
+            quantity=_num(levels[0]),
+            opacity="0",
+            label="no data",
+        )
+        uppers = levels[1:] + [max(_OPEN_END_MIN, levels[-1] * 2.0 + 1.0)]
+        for i, (level, upper, color) in enumerate(zip(levels, uppers, colors, strict=True)):
+            text = (
+                f"{_label(level)} to {_label(upper)}"
+                if i < len(levels) - 1
+                else f"{_label(level)} and later"
+            )
+            _sub(cmap, "ColorMapEntry", color=color, quantity=_num(upper), opacity="1", label=text)
+    return _serialise(root)
+
+
+def bands_sld(
+    bands: Sequence[tuple[float, float | None, str]],
+    colors_hex: Sequence[str],
+    *,
+    layer_name: str,
+    title: str,
+    attribute: str = "min_minutes",
+    fill_opacity: float = 0.75,
+    abstract: str | None = None,
+) -> str:
+    """SLD for isochrone bands: one filled rule per band.
+
+    Parameters
+    ----------
+    bands : sequence of (min_minutes, max_minutes, label)
+        One entry per band, earliest first. ``max_minutes`` may be None for
+        an open last band. ``label`` is the legend text.
+    colors_hex : sequence of str
+        One ``"#rrggbb"`` colour per band.
+    layer_name, title : str
+        Layer the style is for, and its title.
+    attribute : str
+        Feature attribute holding each band's lower bound in minutes;
+        ``"min_minutes"`` (``"min_minute"`` for an ESRI Shapefile, see
+        :func:`ttmap.io.vector.shapefile_field_name`).
+    fill_opacity : float
+        Between 0 and 1.
+    abstract : str, optional
+        Style abstract; the short caution text by default.
+
+    Returns
+    -------
+    str
+        The SLD document.
+
+    Raises
+    ------
+    InputDataError
+        Lengths that differ, non-finite or repeated lower bounds, an upper
+        bound not above its lower bound, bad colours or opacity.
+
+    Notes
+    -----
+    Each rule's filter is ``attribute == min_minutes`` (``PropertyIsEqualTo``),
+    written as a plain number (``10``, ``7.5``) so both integer and real
+    columns match.
+    """
+    colors = check_hex_colors(list(colors_hex))
+    rows = list(bands)
+    if len(rows) != len(colors):
+        raise InputDataError(f"{len(rows)} bands but {len(colors)} colours; give one per band")
+    _check_name("attribute", attribute)
+    if not 0.0 <= float(fill_opacity) <= 1.0:
+        raise InputDataError(f"fill_opacity {fill_opacity!r} is outside 0..1")
+    seen: set[float] = set()
+    for lo, hi, _ in rows:
+        if not math.isfinite(float(lo)) or float(lo) in seen:
+            raise InputDataError(
+                f"band lower bound {lo!r} is not finite or is repeated; give distinct minutes"
+            )
+        seen.add(float(lo))
+        if hi is not None and not float(hi) > float(lo):
+            raise InputDataError(f"band ({lo!r}, {hi!r}) has its upper bound not above its lower")
+
+    root, fts = _document(layer_name, title, _default_abstract() if abstract is None else abstract)
+    for (lo, _, label), color in zip(rows, colors, strict=True):
+        rule = _sub(fts, "Rule")
+        _sub(rule, "Name", f"band_{_num(lo)}")
+        _sub(rule, "Title", str(label))
+        flt = _sub(rule, "ogc:Filter")
+        eq = _sub(flt, "ogc:PropertyIsEqualTo")
+        _sub(eq, "ogc:PropertyName", attribute)
+        _sub(eq, "ogc:Literal", _num(lo))
+        sym = _sub(rule, "PolygonSymbolizer")
+        fill = _sub(sym, "Fill")
+        _css(fill, "fill", color)
+        _css(fill, "fill-opacity", _num(fill_opacity))
+        stroke = _sub(sym, "Stroke")
+        _css(stroke, "stroke", _BAND_STROKE)
+        _css(stroke, "stroke-width", "0.3")
+    return _serialise(root)
+
+
+def lines_sld(
+    *,
+    layer_name: str,
+    title: str,
+    label_attribute: str = "label",
+    line_color_hex: str = _LINE_COLOR,
+    line_width: float = 0.8,
+    font_size: float = 10.0,
+    abstract: str | None = None,
+) -> str:
+    """SLD for isochrone lines: thin dark lines labelled along the line.
+
+    Parameters
+    ----------
+    layer_name, title : str
+        Layer the style is for, and its title.
+    label_attribute : str
+        Feature attribute holding the label text (e.g. ``"1:30"``).
+    line_color_hex : str
+        Line and text colour.
+    line_width : float
+        Line width in pixels, > 0.
+    font_size : float
+        Label size in pixels, > 0.
+    abstract : str, optional
+        Style abstract; the short caution text by default.
+
+    Returns
+    -------
+    str
+        The SLD document: one rule with a ``LineSymbolizer`` and a
+        ``TextSymbolizer`` using ``LinePlacement`` and a white halo.
+
+    Raises
+    ------
+    InputDataError
+        Empty names, a bad colour, or non-positive sizes.
+    """
+    (color,) = check_hex_colors([line_color_hex])
+    _check_name("label_attribute", label_attribute)
+    if not (float(line_width) > 0.0 and float(font_size) > 0.0):
+        raise InputDataError(
+            f"line_width {line_width!r} and font_size {font_size!r} must be > 0 pixels"
+        )
+    root, fts = _document(layer_name, title, _default_abstract() if abstract is None else abstract)
+    rule = _sub(fts, "Rule")
+    _sub(rule, "Name", "isochrone")
+    _sub(rule, "Title", title)
+    line = _sub(rule, "LineSymbolizer")
+    stroke = _sub(line, "Stroke")
+    _css(stroke, "stroke", color)
+    _css(stroke, "stroke-width", _num(line_width))
+    text = _sub(rule, "TextSymbolizer")
+    label = _sub(text, "Label")
+    _sub(label, "ogc:PropertyName", label_attribute)
+    font = _sub(text, "Font")
+    _css(font, "font-family", "sans-serif")
+    _css(font, "font-size", _num(font_size))
+    placement = _sub(_sub(text, "LabelPlacement"), "LinePlacement")
+    _sub(placement, "PerpendicularOffset", "0")
+    halo = _sub(text, "Halo")
+    _sub(halo, "Radius", "1")
+    _css(_sub(halo, "Fill"), "fill", _HALO_COLOR)
+    _css(_sub(text, "Fill"), "fill", color)
+    return _serialise(root)
+
+
+def write_sld(path: str | os.PathLike[str], xml_text: str, *, overwrite: bool = False) -> None:
+    """Write an SLD document (UTF-8) all-or-nothing.
+
+    Parameters
+    ----------
+    path : path-like
+        Output file, conventionally ``<product>.sld`` beside the layer.
+    xml_text : str
+        A document from :func:`raster_sld`, :func:`bands_sld` or
+        :func:`lines_sld`.
+    overwrite : bool
+        Replace an existing file.
+
+    Raises
+    ------
+    InputDataError
+        ``xml_text`` is not well-formed XML.
+    OutputExistsError
+        ``path`` exists and ``overwrite`` is False.
+    """
+    try:
+        ET.fromstring(xml_text.encode("utf-8"))
+    except ET.ParseError as err:
+        raise InputDataError(
+            f"style for {os.fspath(path)!r} is not well-formed XML: {err}"
+        ) from err
+    with atomic_output(path, overwrite=overwrite) as tmp:
+        tmp.write_text(xml_text, encoding="utf-8")
