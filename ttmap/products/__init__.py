@@ -1,0 +1,1 @@
+"""Products built from an arrival-time field: isochrones, site tables, maps, styles."""
