@@ -82,7 +82,7 @@ def isometric_latitude(lat_deg: Any, *, earth: EarthModel = "wgs84") -> FloatArr
     >>> float(isometric_latitude(0.0))
     0.0
     >>> round(float(isometric_latitude(45.0, earth="sphere")), 10)
-    0.8813735870
+    0.881373587
     """
     _, e = _earth(earth)
     s = np.sin(np.radians(np.asarray(lat_deg, dtype=np.float64)))
@@ -262,12 +262,13 @@ class Grid:
     def rowcol(self, x: Any, y: Any) -> tuple[IntArray, IntArray]:
         """Row and column of the cell containing map position ``(x, y)``.
 
-        Longitudes of a wrapping grid are taken modulo 360. Positions outside
-        the grid give indices outside ``[0, rows)`` / ``[0, cols)``.
+        Longitudes of a geographic grid are taken modulo 360 (so -175 and 185
+        name the same cell of a grid running from 170 to 190). Positions
+        outside the grid give indices outside ``[0, rows)`` / ``[0, cols)``.
         """
         t = self.transform
         xx = np.asarray(x, dtype=np.float64)
-        if self.wraps_x:
+        if self.is_geographic:
             xx = t.c + np.mod(xx - t.c, 360.0)
         col = np.floor((xx - t.c) / t.a).astype(np.intp)
         row = np.floor((np.asarray(y, dtype=np.float64) - t.f) / t.e).astype(np.intp)
@@ -284,7 +285,7 @@ class Grid:
         """Latitude of each row's cell centres (geographic grids only)."""
         if not self.is_geographic:
             raise GridError("row latitudes are defined for geographic grids only")
-        return self.transform.e * (np.arange(self.rows) + 0.5) + self.transform.f
+        return np.asarray(self.transform.e * (np.arange(self.rows) + 0.5) + self.transform.f, dtype=np.float64)
 
     def cell_size_m(self) -> tuple[float, float]:
         """Approximate ``(row_spacing_m, col_spacing_m)`` at the grid's middle latitude."""
@@ -369,7 +370,11 @@ class SolvePlane:
         return not self.grid.is_geographic
 
     def to_plane(self, x: Any, y: Any) -> tuple[FloatArray, FloatArray]:
-        """Plane coordinates (m) of map positions ``(x, y)`` in the grid's CRS."""
+        """Plane coordinates (m) of map positions ``(x, y)`` in the grid's CRS.
+
+        Longitudes are first taken modulo 360 into the grid's window
+        ``[left, left + 360)``, as in :meth:`Grid.rowcol`.
+        """
         xx = np.asarray(x, dtype=np.float64)
         yy = np.asarray(y, dtype=np.float64)
         if not self.grid.is_geographic:
@@ -377,17 +382,16 @@ class SolvePlane:
             return xx * u, yy * u
         radius, _ = _earth(self.earth)
         t = self.grid.transform
-        if self.periodic_x:
-            xx = t.c + np.mod(xx - t.c, 360.0)
+        xx = t.c + np.mod(xx - t.c, 360.0)
         psi = isometric_latitude(yy, earth=self.earth)  # type: ignore[arg-type]
-        return radius * np.radians(xx), radius * psi
+        return np.asarray(radius * np.radians(xx), dtype=np.float64), np.asarray(radius * psi, dtype=np.float64)
 
     def cell_centres(self) -> tuple[FloatArray, FloatArray]:
         """1-D plane coordinates of solve cell centres: ``(y_of_row, x_of_col)``."""
         rows, cols = self.shape
-        y = self.y0_m + self.dy_signed_m * np.arange(rows)
-        x = self.x0_m + self.dx_signed_m * np.arange(cols)
-        return y, x
+        y = self.y0_m + self.dy_signed_m * np.arange(rows, dtype=np.float64)
+        x = self.x0_m + self.dx_signed_m * np.arange(cols, dtype=np.float64)
+        return np.asarray(y, dtype=np.float64), np.asarray(x, dtype=np.float64)
 
     def to_solve(self, native: np.ndarray) -> np.ndarray:
         """Carry a native-grid field onto the solve grid (nearest native cell)."""

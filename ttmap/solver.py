@@ -87,8 +87,14 @@ def fast_march_s(
     ------
     SolverError
         Shapes differ, spacing is not positive, speeds are NaN, infinite or
-        not positive off the barrier, the start region is empty or fills the
-        grid, a band cell has no start time, or scikit-fmm fails.
+        not positive off the barrier, the start region is empty, a band cell
+        has no start time, or scikit-fmm fails.
+
+    Notes
+    -----
+    If no open cell outside the start region touches it (the region fills its
+    whole water body, e.g. a source in a small lake), there is nothing to
+    march: the result is NaN everywhere.
     """
     import skfmm  # the one import of scikit-fmm in ttmap
 
@@ -114,12 +120,25 @@ def fast_march_s(
         r, c = (int(v[0]) for v in np.nonzero(bad))
         raise SolverError(
             f"{int(bad.sum())} water cells have a speed that is NaN, infinite or <= 0 "
-            f"(first at row {r}, col {c}: {speed[r, c]!r} m/s); check the depth and period inputs"
+            f"(first at row {r}, col {c}: {float(speed[r, c])!r} m/s); "
+            "check the depth and period inputs"
         )
-    if not start.any() or start.sum() == open_cells.sum():
-        raise SolverError("the start region is empty or covers every water cell")
+    if not start.any():
+        raise SolverError("the start region is empty; it must hold at least one water cell")
     if max_time_s is not None and not (np.isfinite(max_time_s) and max_time_s > 0.0):
         raise SolverError(f"maximum time {max_time_s!r} s must be a positive number")
+
+    out = open_cells & ~start
+    touching = bool(
+        (out[1:, :] & start[:-1, :]).any()
+        or (out[:-1, :] & start[1:, :]).any()
+        or (out[:, 1:] & start[:, :-1]).any()
+        or (out[:, :-1] & start[:, 1:]).any()
+        or (periodic_x and ((out[:, 0] & start[:, -1]).any() or (out[:, -1] & start[:, 0]).any()))
+    )
+    if not touching:
+        # The start region fills its water body (scikit-fmm would find no zero level).
+        return np.full(speed.shape, np.nan)
 
     phi = np.where(start, -1.0, 1.0)
     periodic = [False, bool(periodic_x)]
@@ -140,8 +159,9 @@ def fast_march_s(
     frozen = ~np.ma.getmaskarray(d0) & ~wall[rs, cs]
     dist = np.abs(np.ma.getdata(d0))
     tau = np.full(frozen.shape, np.nan)
+    n_r, n_c = int(frozen.shape[0]), int(frozen.shape[1])
     rr, cc = b_rows - rs.start, b_cols - cs.start
-    ok = (rr >= 0) & (rr < tau.shape[0]) & (cc >= 0) & (cc < tau.shape[1])
+    ok = (rr >= 0) & (rr < n_r) & (cc >= 0) & (cc < n_c)
     tau[rr[ok], cc[ok]] = np.abs(b_time[ok])
     if not np.isfinite(tau[frozen]).all():
         raise SolverError("a cell of the start band has no start time; this is a bug in the caller")

@@ -177,7 +177,15 @@ class Source:
         ]
         rect = shapely.segmentize(shapely.Polygon(corners), 1000.0)
         to_ll = Transformer.from_crs(aeqd, _WGS84, always_xy=True)
-        geom = shapely.transform(rect, lambda xy: np.column_stack(to_ll.transform(xy[:, 0], xy[:, 1])))
+
+        def _to_lonlat(xy: np.ndarray) -> np.ndarray:
+            lo, la = to_ll.transform(xy[:, 0], xy[:, 1])
+            # Keep longitudes within 180 degrees of the centre (PROJ returns them in
+            # [-180, 180], which would tear a rectangle crossing the antimeridian).
+            lo = float(lon) + np.mod(np.asarray(lo) - float(lon) + 180.0, 360.0) - 180.0
+            return np.column_stack([lo, la])
+
+        geom = shapely.transform(rect, _to_lonlat)
         params = {
             "lon": float(lon),
             "lat": float(lat),
@@ -519,7 +527,7 @@ def _place_point(
     region = lab == lab[i0, j0]
     return _start_from_region(
         plane, rows, cols, region, sub_open, t_est, t_est, sub_speed, contour_t,
-        Placement(x, y, row, col, d, moved, 1), grid.shape,
+        Placement(x, y, row, col, d, moved, 0), grid.shape,
     )
 
 
@@ -541,7 +549,9 @@ def _straight_ray_times(
     sj = np.clip(np.rint((sx - xx[0, 0]) / dx).astype(np.intp), 0, xx.shape[1] - 1)
     c = speed[si, sj]
     visible = np.isfinite(c).all(axis=-1)
-    slowness = np.nanmean(np.where(np.isfinite(c), 1.0 / c, np.nan), axis=-1) if visible.any() else 0.0
+    # Mean slowness along the ray; NaN (no warning) where the ray meets land, which is
+    # not visible and gets no time below.
+    slowness = np.mean(1.0 / c, axis=-1)
     r = np.hypot(xx - px, yy - py)
     t = np.where(visible, r * slowness, np.inf)
     t[i0, j0] = r[i0, j0] / speed[i0, j0]
@@ -625,9 +635,29 @@ def _densify_for(grid: Grid, geom: BaseGeometry) -> BaseGeometry:
 
 
 def _plane_geometry(geom: BaseGeometry, plane: SolvePlane) -> BaseGeometry:
-    return shapely.transform(
-        geom, lambda xy: np.column_stack(plane.to_plane(xy[:, 0], xy[:, 1]))
-    )
+    """The geometry in plane metres, in one piece across the grid's longitude seam.
+
+    :meth:`SolvePlane.to_plane` takes each longitude modulo 360 on its own, which
+    tears a geometry crossing the edge of the grid's 360-degree window (e.g. the
+    antimeridian) into vertices half a world apart. For lon/lat grids every vertex
+    is put back within half a turn of the first one, and the whole geometry is
+    shifted by whole turns so that its middle lies in the grid's window.
+    """
+    if not plane.grid.is_geographic:
+        return shapely.transform(
+            geom, lambda xy: np.column_stack(plane.to_plane(xy[:, 0], xy[:, 1]))
+        )
+    turn_m = abs(plane.dx_signed_m) * 360.0 / abs(plane.grid.transform.a)
+    left_m = plane.x0_m - 0.5 * plane.dx_signed_m
+
+    def _to_plane(xy: np.ndarray) -> np.ndarray:
+        px, py = plane.to_plane(xy[:, 0], xy[:, 1])
+        px = px[0] + np.mod(px - px[0] + turn_m / 2.0, turn_m) - turn_m / 2.0
+        mid = 0.5 * (px.min() + px.max())
+        px = px - turn_m * np.floor((mid - left_m) / turn_m)
+        return np.column_stack([px, py])
+
+    return shapely.transform(geom, _to_plane)
 
 
 def _place_line(

@@ -302,7 +302,7 @@ def prepare_medium(
     >>> g = Grid((50, 50), Affine(1000, 0, 0, 0, -1000, 50000), "EPSG:32601")
     >>> m = prepare_medium(np.full((50, 50), 4000.0), g)
     >>> r = m.travel_time(Source.point_xy(25500, 24500))
-    >>> round(float(r.arrival_time_s[24, 45]) / (20000 / np.sqrt(9.80665 * 4000)), 3)
+    >>> round(float(r.arrival_time_s[25, 45] / (20000 / np.sqrt(9.80665 * 4000))), 3)
     1.0
     """
     depth = np.array(depth_m, dtype=np.float64)

@@ -92,7 +92,7 @@ def far_field_effective_depth_m(
     Examples
     --------
     >>> round(float(far_field_effective_depth_m(6000.0) / 6000.0), 4)
-    0.9739
+    0.9738
     """
     d = np.asarray(depth_m, dtype=np.float64)
     return np.asarray(d * (1.0 - G_M_S2 * d / sound_speed_m_s**2), dtype=np.float64)
