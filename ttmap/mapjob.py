@@ -7,7 +7,9 @@ speed on request), and writes for each such *product set*:
 - ``arrival_<set>.tif``: arrival time in minutes (float32 GeoTIFF) and its
   SLD style ``arrival_<set>.sld``;
 - ``isochrones_<set>.gpkg`` (or .shp / .geojson files): layers
-  ``isochrone_lines`` and ``isochrone_bands``, with SLD styles beside them;
+  ``isochrone_lines`` and ``isochrone_bands``, with SLD styles beside them
+  (Shapefile bands get ``isochrones_<set>_bands_shp.sld``, which filters
+  on the 10-character field name ``min_minute``);
 - ``map_<set>.png`` (and .pdf on request);
 
 then ``run.json``: inputs with SHA-256, every parameter, versions, timings,
@@ -31,7 +33,7 @@ from typing import Any
 
 import numpy as np
 
-from ttmap.errors import InputDataError
+from ttmap.errors import InputDataError, SourceError
 from ttmap.sources import Source
 from ttmap.traveltime import TravelTimeResult, prepare_medium
 
@@ -210,8 +212,13 @@ def run_map_job(job: MapJob, *, progress: Callable[[str], None] | None = None) -
     if out.exists() and not out.is_dir():
         raise InputDataError(f"output folder {str(out)!r} is a file; give a folder name")
     planned = planned_outputs(job)
-    out.mkdir(parents=True, exist_ok=True)
-    check_writable(planned, job.overwrite)
+    # Refuse existing outputs and unwritable places before any work, but
+    # create the folder only when the first product is written, so that a
+    # run refused for its input (missing file, source on land) leaves nothing.
+    if out.is_dir():
+        check_writable(planned, job.overwrite)
+    else:
+        _check_creatable(out)
 
     timings: dict[str, float] = {}
     started = _iso_now()
@@ -236,9 +243,15 @@ def run_map_job(job: MapJob, *, progress: Callable[[str], None] | None = None) -
         )
         t2 = time.perf_counter()
         say(f"{tag} solving on {medium.plane.shape[0]} x {medium.plane.shape[1]} cells")
-        result = medium.travel_time(job.source, max_time_s=job.max_time_s, snap_radius_m=job.snap_radius_m)
+        try:
+            result = medium.travel_time(job.source, max_time_s=job.max_time_s, snap_radius_m=job.snap_radius_m)
+        except SourceError as err:
+            raise _with_sign_hint(err, job, bathy.depth_m) from err
         t3 = time.perf_counter()
         say(f"{tag} writing products")
+        if i == 1:
+            out.mkdir(parents=True, exist_ok=True)
+            check_writable(planned, job.overwrite)
         files = _write_products(job, pset, result, medium.water)
         written += [str(p) for p in files]
         t4 = time.perf_counter()
@@ -259,6 +272,42 @@ def run_map_job(job: MapJob, *, progress: Callable[[str], None] | None = None) -
         Path(tmp).write_text(json.dumps(record, indent=2, default=_json_default) + "\n")
     record["files_written"].append(str(run_json))
     return record
+
+
+def _check_creatable(out: Path) -> None:
+    """Refuse an output folder that cannot be created (its nearest existing parent is not writable)."""
+    parent = out.absolute().parent
+    while not parent.exists() and parent != parent.parent:
+        parent = parent.parent
+    if not parent.is_dir():
+        raise InputDataError(f"output folder {str(out)!r} cannot be created: {str(parent)!r} is a file")
+    if not os.access(parent, os.W_OK | os.X_OK):
+        raise InputDataError(
+            f"output folder {str(out)!r} cannot be created in {str(parent)!r} (not writable); "
+            "choose another --out folder"
+        )
+
+
+def _with_sign_hint(err: SourceError, job: MapJob, depth_m: np.ndarray) -> SourceError:
+    """``err``, with a hint on the sign convention when most of the grid reads as land.
+
+    A depth-positive raster read as elevation (or the reverse) turns the sea
+    into land; the reader refuses only the extreme cases (almost no water),
+    so a source "on land" is often the first visible symptom.
+    """
+    valid = np.isfinite(depth_m)
+    n_valid = int(valid.sum())
+    if n_valid == 0:
+        return err
+    land_share = float((valid & (depth_m <= 0.0)).sum()) / n_valid
+    if land_share <= 0.5:
+        return err
+    hint = (
+        "if the raster stores elevation (negative below sea level), drop --depth-positive"
+        if job.depth_positive
+        else "if the raster stores depth positive down, pass --depth-positive"
+    )
+    return SourceError(f"{err}; note {100.0 * land_share:.0f} % of the grid reads as land: {hint}")
 
 
 def _range_min(result: TravelTimeResult) -> list[float] | None:
@@ -380,12 +429,17 @@ def _write_products(job: MapJob, pset: ProductSet, result: TravelTimeResult, wat
               overwrite=job.overwrite)
     written.append(sld_r)
 
+    line_attrs: dict[str, Any] = {
+        "minutes": [float(ln.minutes) for ln in lines], "label": [ln.label for ln in lines],
+        "speed_mode": [pset.mode] * len(lines),
+        # a float column in every set (NaN, written as null, for the front) so the
+        # field is Real in every file, not String where all values are missing
+        "period_s": np.full(len(lines), np.nan if pset.period_s is None else float(pset.period_s)),
+    }
     line_layer = VectorLayer(
         "isochrone_lines",
         [ln.geometry for ln in lines],
-        {"minutes": [float(ln.minutes) for ln in lines], "label": [ln.label for ln in lines],
-         "speed_mode": [pset.mode] * len(lines),
-         "period_s": [float(pset.period_s) if pset.period_s is not None else None] * len(lines)},
+        line_attrs,
         "MultiLineString",
         description=f"Isochrones of the {pset.title}, minutes after origin. {CAUTION_SHORT}",
     )
@@ -403,8 +457,8 @@ def _write_products(job: MapJob, pset: ProductSet, result: TravelTimeResult, wat
         target = out / f"isochrones_{key}{VECTOR_FORMATS[fmt]}"
         written += write_vector_layers(
             target, [line_layer, band_layer], crs=grid.crs, overwrite=job.overwrite,
-            metadata={"caution": CAUTION_SHORT, "units": "minutes"},
-        )
+        )  # the caution travels in each layer's description (dataset metadata makes readers
+        # with newer GDAL write .aux.xml side files next to the GeoPackage)
     sld_l = out / f"isochrones_{key}_lines.sld"
     write_sld(sld_l, lines_sld(layer_name="isochrone_lines", title=f"Isochrones: {pset.title}"),
               overwrite=job.overwrite)

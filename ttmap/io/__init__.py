@@ -5,3 +5,5 @@ is where an elevation raster becomes ``depth_m`` (positive down), where
 nodata becomes NaN and back, and where every output is written under a
 temporary name and renamed only when complete (:mod:`ttmap.io.atomic`).
 """
+
+__all__: list[str] = []

@@ -2,3 +2,5 @@
 
 Nothing in this package reads or writes files.
 """
+
+__all__: list[str] = []
