@@ -9,18 +9,11 @@ from typing import Any
 import click
 
 from ttmap.cli.options import bbox_callback, pair_callback, positive_callback, reporter
+from ttmap.physics.scaling import SCALING_RELATIONS
 
 __all__ = ["map_command", "bathymetry_options", "build_source"]
 
-SCALING_CHOICES = (
-    "strasser2010-interface",
-    "blaser2010-reverse",
-    "blaser2010-reverse-oceanic",
-    "blaser2010-all",
-    "wells-coppersmith1994-reverse",
-    "wells-coppersmith1994-all",
-    "papazachos2004-subduction",
-)
+SCALING_CHOICES = tuple(SCALING_RELATIONS)
 
 
 def bathymetry_options(f: Any) -> Any:
