@@ -7,7 +7,7 @@ from pathlib import Path
 
 import click
 
-from ttmap.cli.options import reporter
+from ttmap.cli.options import reporter, verbosity_options
 
 __all__ = ["demo", "demo_data_dir", "DEMO_SOURCE_LONLAT", "DEMO_PERIODS_S"]
 
@@ -37,6 +37,7 @@ def demo_data_dir() -> Path:
 @click.option("--out", "out_dir", type=click.Path(file_okay=False), default="ttmap_demo", show_default=True,
               help="Output folder.")
 @click.option("--overwrite", is_flag=True, help="Replace existing outputs.")
+@verbosity_options
 @click.pass_context
 def demo(ctx: click.Context, out_dir: str, overwrite: bool) -> None:
     """Run the main job on the bundled demo bathymetry of an invented coast.

@@ -8,7 +8,13 @@ from typing import Any
 
 import click
 
-from ttmap.cli.options import bbox_callback, pair_callback, positive_callback, reporter
+from ttmap.cli.options import (
+    bbox_callback,
+    pair_callback,
+    positive_callback,
+    reporter,
+    verbosity_options,
+)
 from ttmap.physics.scaling import SCALING_RELATIONS
 
 __all__ = ["map_command", "bathymetry_options", "build_source"]
@@ -112,6 +118,7 @@ def build_source(opts: dict[str, Any]) -> Any:
 @click.option("--out", "out_dir", type=click.Path(file_okay=False), default="ttmap_out", show_default=True,
               help="Output folder.")
 @click.option("--overwrite", is_flag=True, help="Replace existing outputs.")
+@verbosity_options
 @click.pass_context
 def map_command(ctx: click.Context, bathymetry: str, **opts: Any) -> None:
     """Arrival-time raster, isochrones, styles and a map for one source.

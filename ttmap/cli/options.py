@@ -19,6 +19,7 @@ __all__ = [
     "positive_callback",
     "Reporter",
     "reporter",
+    "verbosity_options",
 ]
 
 
@@ -115,3 +116,24 @@ def reporter(ctx: click.Context) -> Iterator[Reporter]:
             for w in caught:
                 if issubclass(w.category, TtmapWarning):
                     rep.notice(str(w.message))
+
+
+def _set_flag(name: str) -> Callable[[click.Context, click.Parameter, Any], None]:
+    def cb(ctx: click.Context, param: click.Parameter, value: Any) -> None:
+        if value:
+            root = ctx.find_root()
+            root.ensure_object(dict)
+            root.obj[name] = True
+            if root.obj.get("verbose") and root.obj.get("quiet"):
+                raise click.UsageError("--verbose and --quiet exclude each other; give one")
+
+    return cb
+
+
+def verbosity_options(f: Any) -> Any:
+    """``-q/--quiet`` and ``-v/--verbose`` accepted after the subcommand too."""
+    f = click.option("-q", "--quiet", is_flag=True, expose_value=False, callback=_set_flag("quiet"),
+                     help="No progress messages.")(f)
+    f = click.option("-v", "--verbose", is_flag=True, expose_value=False, callback=_set_flag("verbose"),
+                     help="More detail, and tracebacks on errors.")(f)
+    return f
