@@ -512,8 +512,10 @@ def _place_point(
     j0 = int(np.nonzero(cols == col_s)[0][0])
     c_ref = float(sub_speed[i0, j0])
     t_est, visible = _straight_ray_times(xx, yy, px, py, sub_speed, i0, j0)
-    # Radius of the start region: up to the first land, hidden cell or strong speed change.
-    bad = ~sub_open | ~visible | (np.abs(sub_speed / c_ref - 1.0) > POINT_MAX_SPEED_CHANGE)
+    # Radius of the start region: up to the first water cell hidden from the source by land,
+    # or with a strong speed change. Land itself only bounds the region: cells behind it are
+    # hidden, and the region is kept 4-connected to the source below.
+    bad = (sub_open & ~visible) | (np.abs(sub_speed / c_ref - 1.0) > POINT_MAX_SPEED_CHANGE)
     bad &= r < POINT_START_RADIUS_CELLS * h
     radius = POINT_START_RADIUS_CELLS * h
     if bad.any():

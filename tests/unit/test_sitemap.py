@@ -90,16 +90,16 @@ def test_site_on_land_is_moved_to_the_nearest_water_and_the_move_is_reported(med
 
 def test_site_centred_times_on_uniform_depth_are_distance_over_speed(harbour):
     # Analytic: T = r / sqrt(g h) from the (moved) site cell (REFERENCE.md section 8).
-    # Tolerance 1.5 % beyond 20 cells; measured 1.02 %, the largest along the coast: a
-    # point start next to land gets the smallest start region of sources.py (2 cells),
-    # against 0.12 % for a point in open water (tests/reference/test_engine_reference.py).
+    # Tolerance 0.3 % beyond 20 cells (0.2 % is the open-water bound of
+    # tests/reference/test_engine_reference.py); a start next to land keeps its full
+    # straight-ray region on the water side.
     rows, cols = np.mgrid[0:ROWS, 0:COLS]
     x, y = GRID.xy(rows, cols)
     sx, sy = harbour.summary.source_x, harbour.summary.source_y
     dist_m = np.hypot(x - sx, y - sy)
     far = (dist_m > 20 * CELL_M) & (cols < COAST_COL)
     rel = np.abs(harbour.arrival_time_s[far] - dist_m[far] / SPEED_M_S) / (dist_m[far] / SPEED_M_S)
-    assert rel.max() < 1.5e-2
+    assert rel.max() < 3e-3
     assert np.isnan(harbour.arrival_time_s[:, COAST_COL:]).all()
 
 
