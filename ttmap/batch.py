@@ -1,0 +1,836 @@
+"""Many independent solves (scenarios, periods, site-centred maps), serially or on Dask.
+
+- :class:`MediumSpec` says how every worker builds the speed field: which
+  bathymetry file and read options, floor depth, far-field flag, earth model.
+- :class:`SolveTask` is one solve: a unique file-safe name, a source, a speed
+  mode and period, and limits.
+- :func:`run_tasks` runs tasks and returns one :class:`TaskSummary` each;
+  workers write their rasters straight to the output folder and the client
+  gathers only the summaries.
+
+Executors
+---------
+``"serial"`` runs every task in this process. ``"local"`` starts a
+``distributed.LocalCluster`` of worker *processes* (scikit-fmm holds the GIL,
+so threads would not run solves in parallel) with one thread each, sized to
+the machine, and stops it afterwards. Any other text is taken as the address
+of a running Dask scheduler (``tcp://host:8786``); its workers must be able to
+read the bathymetry path and write to the output folder (a shared file
+system), and should run one thread each (``dask worker --nthreads 1``).
+Every executor runs the same function per task, so the rasters are identical
+bit for bit.
+
+The medium on the workers
+-------------------------
+No array travels with a task: each worker process reads the bathymetry file
+itself, once, and keeps the depth grid and the prepared
+:class:`~ttmap.traveltime.Medium` of each (speed mode, period) in a
+module-level cache: at most :data:`MEDIA_PER_WORKER` media (default one, least
+recently used dropped first, before the next is built). Tasks are queued
+grouped by mode and period, so a worker builds each medium about once. The cache
+is keyed on the spec and the file's SHA-256, so a changed file is read again,
+and a worker whose file differs from the client's refuses the task. The
+serial executor empties the cache when the run ends; a worker process keeps it
+for later runs with the same spec.
+
+Files and resuming
+------------------
+Task ``name`` writes ``arrival_<name>.tif`` (float32 minutes) and then, last,
+``<name>.task.json``: the task's *inputs* (task description, medium spec,
+bathymetry SHA-256, ttmap version, extra raster tags), their SHA-256 (also
+stored in the raster's ``TASK_INPUTS_SHA256`` tag), and the summary. Before
+anything runs, every task's existing outputs are classified:
+
+- both files present, recording the same inputs: complete; skipped when
+  ``resume`` (``TaskSummary.skipped``);
+- files from the same inputs but incomplete (raster without record after an
+  interruption, or record without raster): solved again, replacing them,
+  when ``resume``;
+- anything else present (other inputs, unreadable record, or ``resume`` off):
+  replaced only with ``overwrite``. Otherwise the **whole run is refused up
+  front** with :class:`~ttmap.errors.OutputExistsError` naming the tasks and
+  ``--overwrite``, so a run never stops half-way over someone else's files.
+
+A task that fails (source on land, unreadable file ...) is reported in its
+summary (``ok=False``, one-line ``error`` naming the task) and writes nothing;
+the other tasks go on, and a later resumed run tries it again.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import datetime as _dt
+import hashlib
+import json
+import os
+import re
+import threading
+import time
+import warnings
+from collections import Counter, OrderedDict
+from collections.abc import Callable, Mapping, Sequence
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import TYPE_CHECKING, Any
+
+from ttmap.errors import InputDataError, OutputExistsError, TtmapError, TtmapWarning
+from ttmap.sources import Source
+
+if TYPE_CHECKING:
+    from ttmap.io.raster import Bathymetry
+    from ttmap.traveltime import Medium
+
+__all__ = [
+    "MediumSpec",
+    "SolveTask",
+    "TaskSummary",
+    "run_tasks",
+    "task_output_paths",
+    "check_executor",
+    "EXECUTORS",
+    "MEDIA_PER_WORKER",
+]
+
+#: Executor names besides a scheduler address.
+EXECUTORS: tuple[str, ...] = ("serial", "local")
+
+#: Seconds to wait for a scheduler given by address.
+CONNECT_TIMEOUT_S: float = 20.0
+
+#: Prepared media a worker keeps at once. Each is several grid-sized arrays;
+#: with one, a worker's peak is that of a single job (what :mod:`ttmap.memory`
+#: estimates). Tasks are queued grouped by (mode, period), so a worker switches
+#: medium about once per group; raise this only when memory allows.
+MEDIA_PER_WORKER: int = 1
+
+_NAME_RE = re.compile(r"^[A-Za-z0-9_.-]+$")
+_ADDRESS_RE = re.compile(r"^([a-z][a-z0-9+.-]*://)?[^\s/:]+:\d{1,5}$|^[a-z][a-z0-9+.-]*://\S+$")
+_RECORD_VERSION = 1
+
+ProgressFn = Callable[[int, int, str], None]
+
+
+@dataclass(frozen=True)
+class MediumSpec:
+    """How to build the speed field, identically on every worker.
+
+    Attributes
+    ----------
+    bathymetry : str
+        Path of the raster (every worker must be able to read it).
+    band, depth_positive, window, window_crs, coarsen
+        Passed to :func:`ttmap.io.raster.read_bathymetry`.
+    floor_depth_m, far_field, earth
+        Passed to :func:`ttmap.traveltime.prepare_medium`.
+    """
+
+    bathymetry: str
+    band: int | None = None
+    depth_positive: bool = False
+    window: tuple[float, float, float, float] | None = None
+    window_crs: str | None = "EPSG:4326"
+    coarsen: int = 1
+    floor_depth_m: float = 5.0
+    far_field: bool = False
+    earth: str = "wgs84"
+
+    def __post_init__(self) -> None:
+        # A list window (from TOML or JSON) would make the spec unhashable.
+        if self.window is not None:
+            try:
+                window = tuple(float(v) for v in self.window)
+            except (TypeError, ValueError) as err:
+                raise InputDataError(
+                    f"window {self.window!r} is not four numbers; give (west, south, east, north)"
+                ) from err
+            object.__setattr__(self, "window", window)
+
+    def describe(self) -> dict[str, Any]:
+        """JSON-ready dictionary of the fields."""
+        d = dataclasses.asdict(self)
+        d["window"] = None if self.window is None else list(self.window)
+        return d
+
+
+@dataclass(frozen=True)
+class SolveTask:
+    """One solve.
+
+    Attributes
+    ----------
+    name : str
+        Unique within a run; letters, digits, ``_``, ``-`` and ``.`` only
+        (it names the output files).
+    source : Source
+    mode : {"long-wave", "group", "phase"}
+    period_s : float or None
+    max_time_s, snap_radius_m : float or None
+    kind : str
+        "scenario" or "site" (site-centred map), for reports.
+    meta : dict
+        Free JSON-ready details carried into the summary (scenario name, ...).
+    """
+
+    name: str
+    source: Source
+    mode: str = "long-wave"
+    period_s: float | None = None
+    max_time_s: float | None = None
+    snap_radius_m: float | None = None
+    kind: str = "scenario"
+    meta: dict[str, Any] = field(default_factory=dict)
+
+    def describe(self) -> dict[str, Any]:
+        """JSON-ready description (what the task's record calls its inputs)."""
+        source = dict(self.source.describe())
+        source["geometry_wkt"] = self.source.geometry.wkt
+        return {
+            "name": self.name,
+            "kind": self.kind,
+            "mode": self.mode,
+            "period_s": self.period_s,
+            "max_time_s": self.max_time_s,
+            "snap_radius_m": self.snap_radius_m,
+            "source": source,
+            "meta": self.meta,
+        }
+
+
+@dataclass(frozen=True)
+class TaskSummary:
+    """What came back from one task (the client gathers only these).
+
+    Attributes
+    ----------
+    name : str
+    ok : bool
+        The raster and record exist (written now, or earlier when skipped).
+    raster : str or None
+        Path of ``arrival_<name>.tif``.
+    summary : dict
+        JSON-ready: the task description, what the solve reached
+        (:meth:`ttmap.traveltime.TravelTimeSummary.as_dict`), the range of
+        arrival minutes, and ``worker`` (process id, bathymetry reads and
+        media built by that process).
+    error : str or None
+        One line naming the task, when ``ok`` is False.
+    skipped : bool
+        Outputs of a finished earlier run with the same inputs were kept.
+    seconds : float
+        Wall time of the task on its worker (0 when skipped).
+    warnings : tuple of str
+        Warnings the solve raised (e.g. a source moved to open water).
+    record : str or None
+        Path of ``<name>.task.json``.
+    """
+
+    name: str
+    ok: bool
+    raster: str | None
+    summary: dict[str, Any]
+    error: str | None = None
+    skipped: bool = False
+    seconds: float = 0.0
+    warnings: tuple[str, ...] = ()
+    record: str | None = None
+
+
+# ---------------------------------------------------------------------------
+# Small helpers
+# ---------------------------------------------------------------------------
+
+
+def task_output_paths(name: str, out_dir: str | os.PathLike[str]) -> tuple[Path, Path]:
+    """``(arrival_<name>.tif, <name>.task.json)`` in ``out_dir``.
+
+    Examples
+    --------
+    >>> [p.name for p in task_output_paths("north_front", "out")]
+    ['arrival_north_front.tif', 'north_front.task.json']
+    """
+    out = Path(out_dir)
+    return out / f"arrival_{name}.tif", out / f"{name}.task.json"
+
+
+def check_executor(value: Any) -> str | None:
+    """None if ``value`` names an executor, else the reason and the fix.
+
+    Examples
+    --------
+    >>> check_executor("local") is None, check_executor("tcp://127.0.0.1:8786") is None
+    (True, True)
+    >>> check_executor("paralel")
+    "executor 'paralel' is neither 'serial', 'local' nor a scheduler address such as 'tcp://10.0.0.5:8786'"
+    """
+    if isinstance(value, str) and (value in EXECUTORS or _ADDRESS_RE.match(value)):
+        return None
+    return (
+        f"executor {value!r} is neither 'serial', 'local' nor a scheduler address such as "
+        "'tcp://10.0.0.5:8786'"
+    )
+
+
+def _json_default(value: Any) -> Any:
+    if hasattr(value, "tolist"):
+        return value.tolist()
+    if isinstance(value, (set, frozenset, tuple)):
+        return list(value)
+    if isinstance(value, os.PathLike):
+        return os.fspath(value)
+    return str(value)
+
+
+def _canonical(value: Any) -> Any:
+    """``value`` as plain JSON types (tuples to lists, numpy to Python)."""
+    return json.loads(json.dumps(value, sort_keys=True, default=_json_default))
+
+
+def _digest(value: Any) -> str:
+    text = json.dumps(value, sort_keys=True, separators=(",", ":"), default=_json_default)
+    return hashlib.sha256(text.encode("utf-8")).hexdigest()
+
+
+def _one_line(text: str) -> str:
+    return " ".join(str(text).split())
+
+
+def _now_utc() -> str:
+    return _dt.datetime.now(_dt.timezone.utc).replace(microsecond=0).isoformat()
+
+
+def _fmt_number(value: float | None) -> str:
+    return "" if value is None else f"{value:g}"
+
+
+# ---------------------------------------------------------------------------
+# The worker side: one cache per process, one function per task
+# ---------------------------------------------------------------------------
+
+_CACHE_LOCK = threading.RLock()
+#: (spec, sha256) -> Bathymetry; at most one entry.
+_BATHY: dict[tuple[MediumSpec, str | None], Bathymetry] = {}
+#: (spec, sha256, mode, period_s) -> Medium, least recently used first.
+_MEDIA: OrderedDict[tuple[MediumSpec, str | None, str, float | None], Medium] = OrderedDict()
+#: (spec, sha256, mode, period_s) -> error message of a medium that cannot be built.
+_MEDIA_ERRORS: dict[tuple[MediumSpec, str | None, str, float | None], str] = {}
+#: How often this process read each (spec, sha256), and built each medium.
+_READS: Counter[tuple[MediumSpec, str | None]] = Counter()
+_BUILDS: Counter[tuple[MediumSpec, str | None]] = Counter()
+
+
+def _clear_cache() -> None:
+    """Drop every cached bathymetry and medium of this process."""
+    with _CACHE_LOCK:
+        _BATHY.clear()
+        _MEDIA.clear()
+        _MEDIA_ERRORS.clear()
+
+
+def _bathymetry_for(spec: MediumSpec, sha256: str | None) -> Bathymetry:
+    from ttmap.io.raster import read_bathymetry
+
+    key = (spec, sha256)
+    bathy = _BATHY.get(key)
+    if bathy is not None:
+        return bathy
+    # Another spec or file version: drop it and its media before reading.
+    _BATHY.clear()
+    for k in [k for k in _MEDIA if (k[0], k[1]) != key]:
+        del _MEDIA[k]
+    _READS[key] += 1
+    bathy = read_bathymetry(
+        spec.bathymetry, band=spec.band, depth_positive=spec.depth_positive,
+        window=spec.window, window_crs=spec.window_crs, coarsen=spec.coarsen,
+    )
+    if sha256 is not None and bathy.sha256 is not None and bathy.sha256 != sha256:
+        raise InputDataError(
+            f"bathymetry {spec.bathymetry!r} on this worker (sha256 {bathy.sha256[:12]}...) differs "
+            f"from the client's (sha256 {sha256[:12]}...); the file changed during the run or the "
+            "workers see another copy: give every worker the same file and run again"
+        )
+    _BATHY[key] = bathy
+    return bathy
+
+
+def _medium_for(spec: MediumSpec, sha256: str | None, mode: str, period_s: float | None) -> Medium:
+    """The prepared medium, built at most once per process (and LRU-kept)."""
+    from ttmap.traveltime import prepare_medium
+
+    key = (spec, sha256, mode, period_s)
+    with _CACHE_LOCK:
+        medium = _MEDIA.get(key)
+        if medium is not None:
+            _MEDIA.move_to_end(key)
+            return medium
+        if key in _MEDIA_ERRORS:
+            raise InputDataError(_MEDIA_ERRORS[key])
+        # Make room first, so a worker never holds more media than allowed.
+        while _MEDIA and len(_MEDIA) >= max(1, MEDIA_PER_WORKER):
+            _MEDIA.popitem(last=False)
+        try:
+            bathy = _bathymetry_for(spec, sha256)
+            medium = prepare_medium(
+                bathy.depth_m, bathy.grid, mode=mode, period_s=period_s,
+                floor_depth_m=spec.floor_depth_m, far_field=spec.far_field,
+                earth=spec.earth,  # type: ignore[arg-type]
+            )
+        except TtmapError as err:
+            # The same spec fails the same way for every later task: remember it.
+            _MEDIA_ERRORS[key] = _one_line(str(err))
+            raise
+        _BUILDS[(spec, sha256)] += 1
+        _MEDIA[key] = medium
+        return medium
+
+
+def _worker_info(spec: MediumSpec, sha256: str | None) -> dict[str, Any]:
+    key = (spec, sha256)
+    return {"pid": os.getpid(), "bathymetry_reads": _READS[key], "media_built": _BUILDS[key]}
+
+
+@dataclass(frozen=True)
+class _Job:
+    """Everything a worker needs for one task (small: no arrays)."""
+
+    task: SolveTask
+    spec: MediumSpec
+    bathymetry_sha256: str | None
+    out_dir: str
+    replace: bool
+    inputs: dict[str, Any]
+    inputs_sha256: str
+    extra_tags: dict[str, str]
+
+
+def _raster_tags(job: _Job, result: Any) -> dict[str, str]:
+    import ttmap
+    from ttmap.products.cautions import CAUTION_SHORT
+
+    task, spec = job.task, job.spec
+    quantity = (
+        "travel time between the site and each cell (by reciprocity: from a source at the "
+        "cell to the site), after the origin time"
+        if task.kind == "site"
+        else "arrival time after the origin time"
+    )
+    earth = result.settings.get("earth")
+    tags = dict(job.extra_tags)
+    tags.update({
+        "QUANTITY": quantity,
+        "TASK": task.name,
+        "TASK_KIND": task.kind,
+        "SOURCE": task.source.label,
+        "SPEED_MODE": task.mode,
+        "PERIOD_S": _fmt_number(task.period_s),
+        "FLOOR_DEPTH_M": f"{spec.floor_depth_m:g}",
+        "FAR_FIELD_CORRECTION": (
+            "effective depth h(1-gh/cs^2), cs=1500 m/s" if spec.far_field else "none"
+        ),
+        "EARTH_MODEL": str(earth or "projected grid (plane)"),
+        "MAX_TIME_MIN": "" if task.max_time_s is None else f"{task.max_time_s / 60.0:g}",
+        "BATHYMETRY": os.path.basename(spec.bathymetry),
+        "BATHYMETRY_SHA256": job.bathymetry_sha256 or "",
+        "TASK_INPUTS_SHA256": job.inputs_sha256,
+        "SOFTWARE": f"ttmap {ttmap.__version__}",
+        "CAUTION": CAUTION_SHORT,
+    })
+    return tags
+
+
+def _band_description(task: SolveTask) -> str:
+    what = "front (long-wave speed)" if task.mode == "long-wave" else (
+        f"{'energy' if task.mode == 'group' else 'phase'} of {_fmt_number(task.period_s)} s waves "
+        f"({task.mode} speed)"
+    )
+    if task.kind == "site":
+        return f"travel time of the {what} between the site and each cell, minutes"
+    return f"arrival time of the {what}, minutes after origin"
+
+
+def _run_task(job: _Job) -> TaskSummary:
+    """Solve one task and write its raster and record; never raises for a task's own failure."""
+    import numpy as np
+
+    from ttmap.io.atomic import atomic_output
+    from ttmap.io.raster import write_arrival_geotiff
+
+    task = job.task
+    t0 = time.perf_counter()
+    base: dict[str, Any] = {"task": job.inputs["task"]}
+    caught: list[warnings.WarningMessage] = []
+    tif, rec_path = task_output_paths(task.name, job.out_dir)
+    try:
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always", TtmapWarning)
+            medium = _medium_for(job.spec, job.bathymetry_sha256, task.mode, task.period_s)
+            result = medium.travel_time(
+                task.source, max_time_s=task.max_time_s, snap_radius_m=task.snap_radius_m
+            )
+            time_min = result.arrival_time_min
+            finite = time_min[np.isfinite(time_min)]
+            summary = dict(
+                base,
+                **result.summary.as_dict(),
+                arrival_min_range=(
+                    None if finite.size == 0
+                    else [round(float(finite.min()), 3), round(float(finite.max()), 3)]
+                ),
+            )
+            del finite
+            write_arrival_geotiff(
+                tif, time_min, result.grid, tags=_raster_tags(job, result),
+                band_description=_band_description(task), overwrite=job.replace,
+            )
+    except Exception as err:  # a task's failure is reported, never lost
+        kind = "" if isinstance(err, TtmapError) else f"{type(err).__name__}: "
+        summary = dict(base, worker=_worker_info(job.spec, job.bathymetry_sha256))
+        return TaskSummary(
+            name=task.name, ok=False, raster=None, summary=summary,
+            error=_one_line(f"task {task.name}: {kind}{err}"),
+            seconds=time.perf_counter() - t0,
+            warnings=tuple(_one_line(str(w.message)) for w in caught
+                           if issubclass(w.category, TtmapWarning)),
+        )
+    seconds = time.perf_counter() - t0
+    warns = tuple(_one_line(str(w.message)) for w in caught if issubclass(w.category, TtmapWarning))
+    summary["worker"] = _worker_info(job.spec, job.bathymetry_sha256)
+    record = {
+        "ttmap_task_record": _RECORD_VERSION,
+        "inputs": job.inputs,
+        "inputs_sha256": job.inputs_sha256,
+        "raster": tif.name,
+        "summary": summary,
+        "warnings": list(warns),
+        "seconds": round(seconds, 4),
+        "finished_utc": _now_utc(),
+    }
+    try:
+        with atomic_output(rec_path, overwrite=job.replace) as tmp:
+            Path(tmp).write_text(json.dumps(record, indent=2, default=_json_default) + "\n")
+    except Exception as err:
+        return TaskSummary(
+            name=task.name, ok=False, raster=str(tif), summary=summary,
+            error=_one_line(f"task {task.name}: writing its record failed: {err}"),
+            seconds=seconds, warnings=warns,
+        )
+    return TaskSummary(
+        name=task.name, ok=True, raster=str(tif), summary=summary, seconds=seconds,
+        warnings=warns, record=str(rec_path),
+    )
+
+
+# ---------------------------------------------------------------------------
+# The client side
+# ---------------------------------------------------------------------------
+
+
+def _check_tasks(tasks: Sequence[SolveTask]) -> None:
+    seen: set[str] = set()
+    for i, t in enumerate(tasks):
+        if not isinstance(t, SolveTask):
+            raise InputDataError(f"task {i} is a {type(t).__name__}, not a SolveTask")
+        if not isinstance(t.name, str) or not _NAME_RE.match(t.name):
+            raise InputDataError(
+                f"task name {t.name!r} is not file-safe; use letters, digits, '_', '-' and '.' only"
+            )
+        if t.name in seen:
+            raise InputDataError(f"task name {t.name!r} is used twice; give every task its own name")
+        seen.add(t.name)
+
+
+def _check_tags(tags: Mapping[str, Any] | None) -> dict[str, str]:
+    out: dict[str, str] = {}
+    for key, value in (tags or {}).items():
+        if not isinstance(key, str) or not re.match(r"^[^\s=]+$", key):
+            raise InputDataError(f"raster tag name {key!r} is empty or holds spaces or '='")
+        out[key] = str(value)
+    return out
+
+
+def _absolute_spec(spec: MediumSpec) -> MediumSpec:
+    """The spec with a local file path made absolute (workers may run elsewhere)."""
+    if os.path.exists(spec.bathymetry):
+        return dataclasses.replace(spec, bathymetry=os.path.abspath(spec.bathymetry))
+    return spec
+
+
+def _task_inputs(task: SolveTask, spec: MediumSpec, sha: str | None, tags: dict[str, str]) -> dict[str, Any]:
+    import ttmap
+
+    return _canonical({
+        "task": task.describe(),
+        "medium": spec.describe(),
+        "bathymetry_sha256": sha,
+        "ttmap_version": ttmap.__version__,
+        "raster_tags": tags,
+    })
+
+
+def _load_record(path: Path) -> dict[str, Any] | None:
+    try:
+        rec = json.loads(path.read_text())
+    except (OSError, ValueError):
+        return None
+    return rec if isinstance(rec, dict) else None
+
+
+def _raster_inputs_sha(path: Path) -> str | None:
+    try:
+        import rasterio
+
+        with rasterio.open(path) as src:
+            value = src.tags().get("TASK_INPUTS_SHA256")
+    except Exception:
+        return None
+    return value or None
+
+
+def _plan(
+    task: SolveTask, inputs_sha: str, out_dir: Path, *, resume: bool, overwrite: bool
+) -> tuple[str, Any]:
+    """("run", replace) | ("skip", record) | ("conflict", reason) for one task."""
+    tif, rec_path = task_output_paths(task.name, out_dir)
+    has_tif, has_rec = tif.exists(), rec_path.exists()
+    if not has_tif and not has_rec:
+        return "run", False
+    rec = _load_record(rec_path) if has_rec else None
+    rec_same = rec is not None and rec.get("inputs_sha256") == inputs_sha
+    tif_same = has_tif and _raster_inputs_sha(tif) == inputs_sha
+    if resume and has_tif and has_rec and rec_same and tif_same:
+        return "skip", rec
+    if overwrite:
+        return "run", True
+    if resume and (not has_rec or rec_same) and (not has_tif or tif_same):
+        return "run", True  # our own outputs, left incomplete by an interrupted run
+    if not resume:
+        reason = "outputs exist (resume is off)"
+    elif has_rec and rec is None:
+        reason = f"{rec_path.name} is unreadable"
+    elif has_rec and not rec_same:
+        reason = "recorded inputs differ"
+    else:
+        reason = f"{tif.name} was made from other inputs"
+    return "conflict", reason
+
+
+def _skipped_summary(task: SolveTask, out_dir: Path, rec: dict[str, Any]) -> TaskSummary:
+    tif, rec_path = task_output_paths(task.name, out_dir)
+    stored = rec.get("summary")
+    summary: dict[str, Any] = stored if isinstance(stored, dict) else {}
+    return TaskSummary(
+        name=task.name, ok=True, raster=str(tif), summary=dict(summary), skipped=True,
+        warnings=tuple(str(w) for w in rec.get("warnings", []) or []), record=str(rec_path),
+    )
+
+
+def _bathymetry_digest(spec: MediumSpec) -> str | None:
+    from ttmap.io.raster import file_sha256
+
+    if os.path.isfile(spec.bathymetry):
+        return file_sha256(spec.bathymetry)
+    return None
+
+
+def _import_distributed() -> Any:
+    try:
+        import distributed
+    except ImportError as err:  # pragma: no cover - dask is a dependency
+        raise InputDataError(
+            "the 'local' executor and scheduler addresses need dask.distributed; install it with "
+            "pip install 'dask[distributed]', or use --executor serial"
+        ) from err
+    return distributed
+
+
+def _group_order(jobs: list[_Job]) -> list[_Job]:
+    """Jobs grouped by (mode, period), groups in order of first appearance."""
+    first: dict[tuple[str, float | None], int] = {}
+    for i, j in enumerate(jobs):
+        first.setdefault((j.task.mode, j.task.period_s), i)
+    return sorted(jobs, key=lambda j: first[(j.task.mode, j.task.period_s)])
+
+
+def run_tasks(
+    tasks: Sequence[SolveTask],
+    spec: MediumSpec,
+    out_dir: str | os.PathLike[str],
+    *,
+    executor: str = "serial",
+    n_workers: int | None = None,
+    overwrite: bool = False,
+    resume: bool = True,
+    progress: ProgressFn | None = None,
+    tags: Mapping[str, Any] | None = None,
+) -> list[TaskSummary]:
+    """Run independent solves and write one raster and one record per task.
+
+    Parameters
+    ----------
+    tasks : sequence of SolveTask
+        Unique, file-safe names.
+    spec : MediumSpec
+        The medium every task shares.
+    out_dir : path-like
+        Output folder (created if missing). With a scheduler address it must
+        be a folder every worker can write.
+    executor : {"serial", "local"} or str
+        ``"serial"``: this process. ``"local"``: a local cluster of worker
+        processes, one thread each, started and stopped here. Otherwise the
+        address of a running Dask scheduler, e.g. ``"tcp://10.0.0.5:8786"``.
+    n_workers : int, optional
+        Worker processes of the local cluster; default
+        ``min(cpu_count, tasks to run)``. Ignored by the other executors.
+    overwrite : bool
+        Replace outputs made from other inputs (see the module notes).
+    resume : bool
+        Skip tasks whose outputs exist from the same inputs, and finish
+        interrupted ones (default True).
+    progress : callable, optional
+        ``progress(done, total, name)`` after each task, skipped ones first;
+        ``total`` is ``len(tasks)``.
+    tags : mapping, optional
+        Extra raster tags for every output (e.g. the scenario file name);
+        part of the recorded inputs, so keep them stable across resumed runs.
+        ttmap's own tags take precedence over equal names.
+
+    Returns
+    -------
+    list of TaskSummary
+        One per task, in the order of ``tasks``.
+
+    Raises
+    ------
+    InputDataError
+        Bad task names, executor or worker count; a scheduler that cannot be
+        reached.
+    OutputExistsError
+        Some tasks' outputs exist from other inputs (or ``resume`` is off)
+        and ``overwrite`` is False; nothing has run.
+
+    Notes
+    -----
+    A task's own failure (e.g. a :class:`~ttmap.errors.SourceError`) does not
+    raise: it is reported in its summary and the other tasks go on.
+    """
+    tasks = list(tasks)
+    _check_tasks(tasks)
+    if not isinstance(spec, MediumSpec):
+        raise InputDataError(f"spec must be a MediumSpec, got {type(spec).__name__}")
+    problem = check_executor(executor)
+    if problem:
+        raise InputDataError(problem)
+    if n_workers is not None and (
+        isinstance(n_workers, bool) or not isinstance(n_workers, int) or n_workers < 1
+    ):
+        raise InputDataError(f"number of workers {n_workers!r} must be a whole number >= 1")
+    extra_tags = _check_tags(tags)
+    out = Path(out_dir).absolute()
+    if out.exists() and not out.is_dir():
+        raise InputDataError(f"output folder {str(out)!r} is a file; give a folder name")
+    if not tasks:
+        return []
+
+    spec = _absolute_spec(spec)
+    sha = _bathymetry_digest(spec)
+    total = len(tasks)
+    results: dict[str, TaskSummary] = {}
+    jobs: list[_Job] = []
+    conflicts: list[tuple[str, str]] = []
+    for task in tasks:
+        inputs = _task_inputs(task, spec, sha, extra_tags)
+        inputs_sha = _digest(inputs)
+        action, detail = _plan(task, inputs_sha, out, resume=resume, overwrite=overwrite)
+        if action == "skip":
+            results[task.name] = _skipped_summary(task, out, detail)
+        elif action == "conflict":
+            conflicts.append((task.name, detail))
+        else:
+            jobs.append(_Job(task, spec, sha, str(out), bool(detail), inputs, inputs_sha, extra_tags))
+    if conflicts:
+        shown = "; ".join(f"{n} ({why})" for n, why in conflicts[:5])
+        more = f" and {len(conflicts) - 5} more" if len(conflicts) > 5 else ""
+        raise OutputExistsError(
+            f"{len(conflicts)} task(s) would replace existing outputs in {str(out)!r}: "
+            f"{shown}{more}; pass --overwrite to replace them, or choose another output folder"
+        )
+    if jobs:
+        out.mkdir(parents=True, exist_ok=True)
+
+    done = 0
+    for task in tasks:
+        if task.name in results:
+            done += 1
+            if progress is not None:
+                progress(done, total, task.name)
+
+    def _finished(summary: TaskSummary) -> None:
+        nonlocal done
+        results[summary.name] = summary
+        done += 1
+        if progress is not None:
+            progress(done, total, summary.name)
+
+    jobs = _group_order(jobs)
+    if jobs and executor == "serial":
+        try:
+            for job in jobs:
+                _finished(_run_task(job))
+        finally:
+            _clear_cache()
+    elif jobs:
+        _run_on_dask(jobs, executor, n_workers, _finished)
+    return [results[t.name] for t in tasks]
+
+
+def _run_on_dask(
+    jobs: list[_Job], executor: str, n_workers: int | None, finished: Callable[[TaskSummary], None]
+) -> None:
+    distributed = _import_distributed()
+    cluster = None
+    client = None
+    try:
+        if executor == "local":
+            n = n_workers or max(1, min(os.cpu_count() or 1, len(jobs)))
+            # Loopback only; no dashboard; the scheduler's small HTTP endpoint on a free
+            # port (by default it would try 8787 and warn when another cluster has it).
+            cluster = distributed.LocalCluster(
+                n_workers=n, threads_per_worker=1, processes=True, dashboard_address=None,
+                host="127.0.0.1", scheduler_kwargs={"dashboard_address": "127.0.0.1:0"},
+            )
+            client = distributed.Client(cluster)
+        else:
+            try:
+                client = distributed.Client(executor, timeout=f"{CONNECT_TIMEOUT_S:g}s")
+            except (OSError, TimeoutError) as err:
+                raise InputDataError(
+                    f"cannot reach the Dask scheduler at {executor!r} ({_one_line(str(err))}); "
+                    "start it (dask scheduler) and its workers, or use --executor local"
+                ) from err
+        token = hashlib.sha256(f"{time.time_ns()}-{os.getpid()}".encode()).hexdigest()[:10]
+        futures = {}
+        for i, job in enumerate(jobs):
+            # Descending priority keeps the queue in submission order (grouped by medium).
+            fut = client.submit(
+                _run_task, job, key=f"ttmap-{job.task.name}-{token}", pure=False,
+                priority=len(jobs) - i,
+            )
+            futures[fut] = job
+        for fut in distributed.as_completed(list(futures)):
+            job = futures[fut]
+            try:
+                summary = fut.result()
+            except Exception as err:  # the worker died, was lost, or could not unpickle
+                summary = TaskSummary(
+                    name=job.task.name, ok=False, raster=None,
+                    summary={"task": job.inputs["task"]},
+                    error=_one_line(
+                        f"task {job.task.name}: the worker failed ({type(err).__name__}: {err}); "
+                        "if it ran out of memory, crop or coarsen the grid or use fewer workers"
+                    ),
+                )
+            finished(summary)
+    finally:
+        if client is not None:
+            client.close()
+        if cluster is not None:
+            cluster.close()
