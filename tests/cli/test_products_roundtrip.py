@@ -244,6 +244,7 @@ def test_sld_files_parse_and_match_their_data(out):
         "arrival_front.sld",
         "isochrones_front_lines.sld",
         "isochrones_front_bands.sld",
+        "coast_front.sld",  # the coastal arrival layer is on by default
     }
     for p in slds:
         root = ET.parse(p).getroot()
@@ -263,6 +264,10 @@ def test_sld_files_parse_and_match_their_data(out):
     ):
         props = {e.text for e in ET.parse(out / sld).getroot().iter(f"{OGC}PropertyName")}
         assert props and props <= set(pyogrio.read_info(gpkg, layer=layer)["fields"])
+    props = {e.text for e in ET.parse(out / "coast_front.sld").getroot().iter(f"{OGC}PropertyName")}
+    assert props and props <= set(
+        pyogrio.read_info(out / "coast_front.gpkg", layer="coastal_arrival")["fields"]
+    )
 
 
 # ---------------------------------------------------------------------------

@@ -69,8 +69,10 @@ def _register() -> None:
     from ttmap.cli.info import info
     from ttmap.cli.map import map_command
     from ttmap.cli.scenario import scenario
+    from ttmap.cli.sitemap import site_map_command
 
     cli.add_command(map_command)
+    cli.add_command(site_map_command)
     cli.add_command(scenario)
     cli.add_command(demo)
     cli.add_command(info)

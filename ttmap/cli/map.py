@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import datetime as _dt
+import math
 import shlex
 import sys
 from typing import Any
@@ -16,10 +18,111 @@ from ttmap.cli.options import (
     verbosity_options,
 )
 from ttmap.physics.scaling import SCALING_RELATIONS
+from ttmap.products.budget import (
+    DEFAULT_NOTIFICATION_DELAY_MIN,
+    DEFAULT_PREPARATION_MIN,
+    DEFAULT_WALKING_SPEED_M_S,
+    LITTLE_MARGIN_MIN,
+)
+from ttmap.products.coast import DEFAULT_CLASS_INTERVAL_MIN
+from ttmap.products.sites import DEFAULT_SEARCH_RADIUS_M, DEFAULT_SPEED_UNCERTAINTY
 
-__all__ = ["map_command", "bathymetry_options", "build_source"]
+__all__ = [
+    "bathymetry_options",
+    "build_source",
+    "finite_callback",
+    "map_command",
+    "origin_time_callback",
+    "parse_origin_time",
+    "site_file_options",
+]
 
 SCALING_CHOICES = tuple(SCALING_RELATIONS)
+
+
+def finite_callback(ctx: click.Context, param: click.Parameter, value: Any) -> Any:
+    """Refuse NaN and infinite numbers (click's ranges let them through)."""
+    if value is None:
+        return None
+    for v in value if isinstance(value, tuple) else (value,):
+        if not math.isfinite(v):
+            raise click.BadParameter(f"{v!r} is not a finite number", ctx=ctx, param=param)
+    return value
+
+
+def parse_origin_time(value: str) -> _dt.datetime:
+    """An ISO 8601 time with a zone (``Z`` or an offset), as UTC; ValueError otherwise.
+
+    >>> parse_origin_time("2026-03-01T16:12:00+13:00").isoformat()
+    '2026-03-01T03:12:00+00:00'
+    >>> parse_origin_time("2026-03-01T03:12:00Z").isoformat()
+    '2026-03-01T03:12:00+00:00'
+    """
+    text = str(value).strip()
+    try:
+        t = _dt.datetime.fromisoformat(text)
+    except ValueError:
+        raise ValueError(
+            f"{value!r} is not an ISO 8601 time; give e.g. 2026-03-01T03:12:00Z"
+        ) from None
+    if t.tzinfo is None or t.utcoffset() is None:
+        raise ValueError(
+            f"{value!r} has no time zone; add Z for UTC or an offset, e.g. 2026-03-01T03:12:00Z "
+            "or 2026-03-01T16:12:00+13:00"
+        )
+    return t.astimezone(_dt.UTC)
+
+
+def origin_time_callback(ctx: click.Context, param: click.Parameter, value: Any) -> Any:
+    if value is None:
+        return None
+    try:
+        return parse_origin_time(value)
+    except ValueError as err:
+        raise click.BadParameter(str(err), ctx=ctx, param=param) from None
+
+
+def site_file_options(f: Any) -> Any:
+    """``--sites FILE`` and how to read it (layer, name field, CRS)."""
+    f = click.option("--sites-crs", metavar="CRS",
+                     help="CRS of x,y columns in a CSV site file (or of a vector file that declares "
+                          "none), e.g. EPSG:32759. lon,lat columns are WGS84 degrees.")(f)
+    f = click.option("--name-field", metavar="COLUMN",
+                     help="Column holding the site names (default: name).")(f)
+    f = click.option("--sites-layer", metavar="LAYER", help="Layer of a multi-layer vector site file.")(f)
+    f = click.option("--sites", "sites_file", type=click.Path(dir_okay=False), metavar="FILE",
+                     help="Coastal sites: CSV with name,lon,lat and optional safe_ground_distance_m, "
+                          "walking_speed_m_s, preparation_min, notification_delay_min; or a point "
+                          "vector file with those attributes.")(f)
+    return f
+
+
+def site_table_options(f: Any) -> Any:
+    """Options of the site table: snapping, uncertainty, clock times and the time budget."""
+    f = click.option("--little-margin-min", type=click.FloatRange(min=0.0), default=LITTLE_MARGIN_MIN,
+                     show_default=True, callback=finite_callback,
+                     help="Margins below this are flagged as little.")(f)
+    f = click.option("--walking-speed-m-s", type=click.FloatRange(min=0.0, min_open=True),
+                     default=DEFAULT_WALKING_SPEED_M_S, show_default=True, callback=finite_callback,
+                     help="Walking speed for sites that give none (mean observed in the 2011 "
+                          "evacuations; slower than the older 1.0 m/s planning value).")(f)
+    f = click.option("--preparation-min", type=click.FloatRange(min=0.0), default=DEFAULT_PREPARATION_MIN,
+                     show_default=True, callback=finite_callback,
+                     help="Minutes before people start walking, for sites that give none.")(f)
+    f = click.option("--notification-delay-min", type=click.FloatRange(0.0, 1440.0),
+                     default=DEFAULT_NOTIFICATION_DELAY_MIN, show_default=True, callback=finite_callback,
+                     help="Minutes from the earthquake until an official message can reach people, "
+                          "for sites that give none.")(f)
+    f = click.option("--origin-time", metavar="ISO8601", callback=origin_time_callback,
+                     help="Earthquake origin time with a zone (e.g. 2026-03-01T03:12:00Z); adds UTC "
+                          "clock times to the site table.")(f)
+    f = click.option("--speed-uncertainty-pct", type=click.FloatRange(0.0, 100.0, max_open=True),
+                     default=100.0 * DEFAULT_SPEED_UNCERTAINTY, show_default=True, callback=finite_callback,
+                     help="Stated +/- wave-speed uncertainty behind the earliest/latest columns.")(f)
+    f = click.option("--site-search-radius-km", type=click.FloatRange(min=0.0),
+                     default=DEFAULT_SEARCH_RADIUS_M / 1000.0, show_default=True, callback=finite_callback,
+                     help="Read a site's time at the nearest reached water cell within this distance.")(f)
+    return site_file_options(f)
 
 
 def bathymetry_options(f: Any) -> Any:
@@ -114,6 +217,11 @@ def build_source(opts: dict[str, Any]) -> Any:
 @click.option("--map-format", type=click.Choice(["png", "pdf"]), multiple=True,
               help="Map format; repeat for several (default png).")
 @click.option("--no-map", is_flag=True, help="Skip the map picture.")
+@click.option("--coast/--no-coast", default=True, show_default=True,
+              help="Write the coastal arrival layer (coastline stretches with first-arrival minutes).")
+@click.option("--coast-interval-min", type=float, default=DEFAULT_CLASS_INTERVAL_MIN, show_default=True,
+              callback=positive_callback, help="Width of the coastal arrival classes, minutes.")
+@site_table_options
 @bathymetry_options
 @click.option("--out", "out_dir", type=click.Path(file_okay=False), default="ttmap_out", show_default=True,
               help="Output folder.")
@@ -128,8 +236,17 @@ def map_command(ctx: click.Context, bathymetry: str, **opts: Any) -> None:
 
         ttmap map bathy.tif --source -147.2,-34.6 --period-s 600 --out run1
 
+    With --sites FILE, also a site table (sites.csv, sites.gpkg): arrival
+    times at each site, the minutes left after the official message and the
+    margin for walking to safe ground, and a timeline chart (timeline.png):
+
+    \b
+        ttmap map bathy.tif --source -147.2,-34.6 --sites towns.csv \\
+            --notification-delay-min 15
+
     A planning aid only; official warning centres and local emergency
-    management decide.
+    management decide. Margins are planning figures, not promises; strong
+    or long shaking is itself the warning.
     """
     with reporter(ctx) as rep:
         job = job_from_options(bathymetry, opts)
@@ -143,6 +260,14 @@ def job_from_options(bathymetry: str, opts: dict[str, Any]) -> Any:
     if opts.get("crop_lonlat") and opts.get("crop_xy"):
         raise click.UsageError("give --crop-lonlat or --crop-xy, not both")
     window = opts.get("crop_lonlat") or opts.get("crop_xy")
+    sites_file = opts.get("sites_file")
+    if sites_file is None:
+        for key, flag in (("sites_layer", "--sites-layer"), ("name_field", "--name-field"),
+                          ("sites_crs", "--sites-crs"), ("origin_time", "--origin-time")):
+            if opts.get(key) is not None:
+                raise click.UsageError(f"{flag} applies to the site table; give --sites FILE too")
+    elif not opts.get("front", True):
+        raise click.UsageError("--sites needs the front (long-wave) arrival; drop --no-front")
     source = build_source(opts)
     return MapJob(
         bathymetry=bathymetry,
@@ -166,6 +291,19 @@ def job_from_options(bathymetry: str, opts: dict[str, Any]) -> Any:
         map_formats=() if opts.get("no_map") else tuple(opts.get("map_format") or ("png",)),
         overwrite=opts.get("overwrite", False),
         command_line=shlex.join(["ttmap", *sys.argv[1:]]),
+        coast=opts.get("coast", True),
+        coast_interval_min=opts.get("coast_interval_min", DEFAULT_CLASS_INTERVAL_MIN),
+        sites=sites_file,
+        sites_layer=opts.get("sites_layer"),
+        sites_name_field=opts.get("name_field"),
+        sites_crs=opts.get("sites_crs"),
+        site_search_radius_m=1000.0 * opts.get("site_search_radius_km", DEFAULT_SEARCH_RADIUS_M / 1000.0),
+        speed_uncertainty=opts.get("speed_uncertainty_pct", 100.0 * DEFAULT_SPEED_UNCERTAINTY) / 100.0,
+        origin_time_utc=opts.get("origin_time"),
+        notification_delay_min=opts.get("notification_delay_min", DEFAULT_NOTIFICATION_DELAY_MIN),
+        preparation_min=opts.get("preparation_min", DEFAULT_PREPARATION_MIN),
+        walking_speed_m_s=opts.get("walking_speed_m_s", DEFAULT_WALKING_SPEED_M_S),
+        little_margin_min=opts.get("little_margin_min", LITTLE_MARGIN_MIN),
     )
 
 
@@ -187,5 +325,23 @@ def _report(rep: Any, record: dict[str, Any], out_dir: str) -> None:
         )
         if s.get("source_moved_m"):
             rep.notice(f"the source was moved {s['source_moved_m'] / 1000:.2f} km to open water")
+    if record.get("sites"):
+        report_sites(rep, record["sites"])
     rep.stage(f"{len(record['files_written'])} files written to {out_dir} (run record: run.json)")
     rep.stage(CAUTION_SHORT)
+
+
+def report_sites(rep: Any, sites: dict[str, Any]) -> None:
+    """One line per site: name, front arrival, margin and status (progress output)."""
+    counts = ", ".join(f"{n} {status}" for status, n in sites["status_counts"].items())
+    rep.stage(f"sites: {counts} (times read within {sites['search_radius_m'] / 1000:g} km)")
+    width = max((len(str(s["name"])) for s in sites["per_site"]), default=0)
+    for s in sites["per_site"]:
+        name = str(s["name"]).ljust(width)
+        if s["front_min"] is None:
+            rep.stage(f"  {name}  no arrival computed ({s['status']})")
+            continue
+        moved = f" (read {s['moved_m']:.0f} m away)" if s["moved_m"] else ""
+        margin = "" if s["margin_min"] is None else f", margin {s['margin_min']:+.1f} min"
+        rep.stage(f"  {name}  front {s['front_min']:.1f} min{moved}{margin}: {s['budget_status']}")
+    rep.stage("margins are planning figures, not promises; strong or long shaking is itself the warning")
