@@ -452,11 +452,15 @@ def _draw_sites(ax: Axes, sites: Sequence[tuple[str, float, float]]) -> list[Any
         zorder=9,
     )
     halo = [patheffects.withStroke(linewidth=2.6, foreground="white")]
+    x0, x1 = sorted(ax.get_xlim())
     for name, x, y in zip(names, xs, ys, strict=True):
+        # Labels of sites in the right quarter go to the left, so the frame does not cut them.
+        right = (x - x0) > 0.75 * (x1 - x0)
         ax.annotate(
             name,
             (x, y),
-            xytext=(5, 4),
+            xytext=(-5, 4) if right else (5, 4),
+            ha="right" if right else "left",
             textcoords="offset points",
             fontsize=8,
             color="black",
@@ -704,6 +708,8 @@ def render_arrival_map(
     handles: list[Any] = []
     if source_geometry is not None and not source_geometry.is_empty:
         handles += _draw_source(ax, source_geometry)
+    ax.set_xlim(xmin, xmax)
+    ax.set_ylim(ymin, ymax)
     handles += _draw_sites(ax, list(sites or []))
 
     # --- axes -----------------------------------------------------------------------
