@@ -47,6 +47,7 @@ from typing import Any, cast
 import numpy as np
 
 from ttmap.errors import InputDataError, SourceError, TtmapWarning
+from ttmap.memory import check_memory
 from ttmap.products.budget import (
     DEFAULT_NOTIFICATION_DELAY_MIN,
     DEFAULT_PREPARATION_MIN,
@@ -322,6 +323,7 @@ def run_map_job(job: MapJob, *, progress: Callable[[str], None] | None = None) -
         window=job.window, window_crs=job.window_crs, coarsen=job.coarsen,
     )
     grid = bathy.grid
+    check_memory(grid, earth=job.earth)  # refuse, with the estimate, before a solve that cannot fit
     timings["read_s"] = time.perf_counter() - t0
     site_marks = _site_marks(sites, grid) if sites is not None else None
 
@@ -981,6 +983,7 @@ def run_site_map_job(job: SiteMapJob, *, progress: Callable[[str], None] | None 
         window=job.window, window_crs=job.window_crs, coarsen=job.coarsen,
     )
     grid = bathy.grid
+    check_memory(grid, earth=job.earth)  # refuse, with the estimate, before a solve that cannot fit
     t1 = time.perf_counter()
     timings["read_s"] = t1 - t0
     speed = "long-wave" if job.period_s is None else f"{job.mode}, T = {job.period_s:g} s"

@@ -11,20 +11,21 @@ from ttmap.cli.map import bathymetry_options
 
 __all__ = ["info", "estimate_solve"]
 
-#: Measured on the development machine (benchmarks/bench_engine.py): solve
-#: time per solve-grid cell and peak memory per cell of the whole job.
-NS_PER_CELL = 400.0
-BYTES_PER_CELL = 120.0
+#: Solve time per solve-grid cell, measured on the development machine (2 cores,
+#: 2026-12-01; benchmarks/bench_batch.py: 250 ns per cell for a 1000 x 1000 solve).
+NS_PER_CELL = 250.0
 
 
 def estimate_solve(grid: Any) -> tuple[int, float, float]:
-    """(solve cells, seconds, bytes) for one solve of ``grid``."""
+    """(solve cells, seconds, peak bytes) for one solve of ``grid``."""
     from ttmap.grid import solve_plane
+    from ttmap.memory import estimate_peak_bytes
 
     plane = solve_plane(grid)
     cells = plane.shape[0] * plane.shape[1]
-    n = cells * max(1.0, math.log2(max(cells, 2)) / 20.0)
-    return cells, n * NS_PER_CELL * 1e-9, float(cells * BYTES_PER_CELL + grid.rows * grid.cols * 40)
+    # Fast marching is O(N log N): scale the measured per-cell time from 1e6 cells.
+    n = cells * max(1.0, math.log2(max(cells, 2)) / math.log2(1e6))
+    return cells, n * NS_PER_CELL * 1e-9, float(estimate_peak_bytes(grid.shape, plane.shape))
 
 
 @click.command("info")
