@@ -952,6 +952,25 @@ class _Loader:
             coarsen=1 if coarsen is None else int(coarsen),
         )
 
+
+    def _check_memory(self, path: tuple[Any, ...], grid: Any, coarsen: float | None) -> None:
+        """Refuse a grid whose solve would not fit in memory (crop window ignored: an upper bound)."""
+        from affine import Affine
+
+        from ttmap.errors import GridError
+        from ttmap.grid import Grid
+        from ttmap.memory import check_memory
+
+        c = int(coarsen) if coarsen else 1
+        if c < 1 or min(grid.rows // c, grid.cols // c) < 2:
+            return
+        try:
+            coarse = Grid((grid.rows // c, grid.cols // c), grid.transform @ Affine.scale(c), grid.crs)
+            check_memory(coarse)
+        except InputDataError as err:
+            self.err(path + ("coarsen",), str(err))
+        except GridError:
+            return
     def _open_raster(
         self,
         file: str,
@@ -993,6 +1012,7 @@ class _Loader:
         except GridError as err:
             self.err(path + ("path",), str(err))
             return
+        self._check_memory(path, grid, coarsen)
         if band is not None and band > count:
             self.err(
                 path + ("band",),
