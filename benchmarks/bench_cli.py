@@ -1,0 +1,380 @@
+"""End-to-end benchmark: ``ttmap map`` as a user runs it, against the bare scikit-fmm solve.
+
+Run from the repository root (ttmap need not be installed)::
+
+    python benchmarks/bench_cli.py            # 2000 x 2000 projected and 7200 x 4800 geographic
+    python benchmarks/bench_cli.py --quick    # the 2000 x 2000 case only
+
+For each case the script
+
+1. writes a test bathymetry GeoTIFF with rasterio into a temporary folder
+   (float32 elevation, negative below sea level, tiled and DEFLATE-compressed;
+   the synthetic depth of ``bench_engine.py``, rough coastlines unless
+   ``--smooth-coast``);
+2. runs ``ttmap map FILE --source ... --out DIR`` with its default products
+   (front arrival GeoTIFF and SLD, isochrone GeoPackage and SLDs, PNG map,
+   run.json) in a fresh Python process, timing the wall clock around it and
+   reading the child's peak resident memory from the kernel's resource usage
+   record of that child (``os.wait4``: the per-child form of
+   ``getrusage(RUSAGE_CHILDREN)``);
+3. times the raw ``skfmm.travel_time(phi, speed, dx, order=2, periodic=...)``
+   call on the same grid in another fresh process (for the geographic grid: on
+   the Mercator solve-plane arrays ttmap builds, the arrays a correct solve on
+   the sphere needs), with its peak memory (inputs included) as in
+   ``bench_engine.py``;
+4. prints both wall times and CPU times (the CLI child's user + system time
+   from the same resource record; ``time.process_time`` for the raw call),
+   their ratios, the memory figures, and the per-stage timings the job wrote
+   to run.json (``timings_s``). CPU time is the steadier figure when other
+   processes compete for the cores.
+
+This process stays small (the arrays live in helper processes) so the
+children's ru_maxrss, a high-water mark that Linux carries over from the
+parent at exec(), is their own.
+
+Targets: CLI / raw within 2x for 2000 x 2000 projected, within 1.5x for
+7200 x 4800 geographic. The script prints figures; it never asserts.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import math
+import os
+import platform
+import resource
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+from typing import Any
+
+HERE = Path(__file__).resolve().parent
+ROOT = HERE.parent
+sys.path.insert(0, str(ROOT))
+sys.path.insert(0, str(HERE))
+
+import bench_engine as be
+
+# ---------------------------------------------------------------------------
+# helper-process work (runs in forkserver children)
+# ---------------------------------------------------------------------------
+
+
+def _write_case(spec: dict[str, Any], folder: str) -> dict[str, Any]:
+    """Make the synthetic grid, write its GeoTIFF and the raw-call inputs."""
+    import numpy as np
+    import rasterio
+    from affine import Affine
+
+    from ttmap.traveltime import prepare_medium
+
+    if spec["kind"] == "projected":
+        case = be.projected_case(
+            spec["cols"], spec["rows"], cell_m=spec["cell_m"], roughness=spec.get("roughness")
+        )
+    else:
+        case = be.geographic_case(
+            spec["cols"],
+            spec["rows"],
+            spec["west"],
+            spec["north"],
+            spec["res_deg"],
+            tuple(spec["src"]),
+            name=spec["name"],
+            roughness=spec.get("roughness"),
+        )
+    depth = case["depth"]
+    tif = Path(folder) / "bathymetry.tif"
+    profile = {
+        "driver": "GTiff",
+        "width": depth.shape[1],
+        "height": depth.shape[0],
+        "count": 1,
+        "dtype": "float32",
+        "crs": case["crs"],
+        "transform": Affine(*case["transform"]),
+        "tiled": True,
+        "blockxsize": 256,
+        "blockysize": 256,
+        "compress": "deflate",
+        "BIGTIFF": "IF_SAFER",
+    }
+    elevation = (-depth).astype(np.float32)  # elevation: negative below sea level
+    with rasterio.open(tif, "w", **profile) as ds:
+        ds.write(elevation, 1)
+        ds.set_band_description(1, "elevation (m), negative below sea level")
+    # The raw call's inputs, from the depth the CLI will read back (float32).
+    grid = be.make_grid(case)
+    source = be.make_source(case["source"])
+    medium = prepare_medium(-elevation.astype(np.float64), grid)
+    raw = be.raw_inputs(medium, source)
+    be.save_inputs(Path(folder), None, raw)
+    kind, a, b = case["source"]
+    return {
+        "tif": str(tif),
+        "tif_mib": tif.stat().st_size / 2**20,
+        "source_args": [f"--source={a!r},{b!r}"]
+        if kind == "lonlat"
+        else [f"--source-xy={a!r},{b!r}"],
+        "cells": int(depth.size),
+        "plane_shape": list(medium.plane.shape),
+        "dx": raw["dx"],
+        "periodic": raw["periodic"],
+    }
+
+
+def _raw_solve(folder: str, dx: list[float], periodic: list[bool], repeat: int) -> dict[str, Any]:
+    """Load phi/mask/speed and time the bare scikit-fmm call (best of ``repeat``)."""
+    import gc
+
+    import numpy as np
+
+    gc.collect()
+    base = be._maxrss_mib()
+    f = Path(folder)
+    inp = {
+        "phi": np.load(f / "phi.npy"),
+        "mask": np.load(f / "mask.npy"),
+        "speed": np.load(f / "speed.npy"),
+        "dx": dx,
+        "periodic": periodic,
+    }
+    loaded = be._maxrss_mib()
+    times, cpus = [], []
+    for _ in range(repeat):
+        c0, t0 = time.process_time(), time.perf_counter()
+        out = be.raw_call(inp)
+        times.append(time.perf_counter() - t0)
+        cpus.append(time.process_time() - c0)
+        del out
+        gc.collect()
+    peak = be._maxrss_mib()
+    return {
+        "best_s": min(times),
+        "best_cpu_s": min(cpus),
+        "times_s": times,
+        "total_mib": peak - base,
+        "call_mib": peak - loaded,
+    }
+
+
+def in_helper(fn: Any, *args: Any) -> Any:
+    with be._context().Pool(1) as pool:
+        return pool.apply(fn, args)
+
+
+# ---------------------------------------------------------------------------
+# the CLI run
+# ---------------------------------------------------------------------------
+
+
+def run_cli(tif: str, source_args: list[str], out_dir: Path, log_dir: Path) -> dict[str, Any]:
+    """One ``ttmap map`` run in a fresh interpreter; wall time and peak RSS of the child."""
+    cmd = [
+        sys.executable,
+        "-c",
+        "from ttmap.cli.main import cli; cli()",
+        "map",
+        tif,
+        *source_args,
+        "--out",
+        str(out_dir),
+    ]
+    env = dict(os.environ)
+    env["PYTHONPATH"] = str(ROOT) + (
+        os.pathsep + env["PYTHONPATH"] if env.get("PYTHONPATH") else ""
+    )
+    log_dir.mkdir(parents=True, exist_ok=True)
+    with open(log_dir / "stdout.txt", "wb") as so, open(log_dir / "stderr.txt", "wb") as se:
+        t0 = time.perf_counter()
+        proc = subprocess.Popen(cmd, stdout=so, stderr=se, env=env, cwd=str(log_dir))
+        _, status, usage = os.wait4(proc.pid, 0)
+        wall = time.perf_counter() - t0
+    proc.returncode = os.waitstatus_to_exitcode(status)
+    if proc.returncode != 0:
+        sys.stderr.write((log_dir / "stderr.txt").read_text())
+        raise SystemExit(f"ttmap map failed with exit status {proc.returncode}")
+    record = json.loads((out_dir / "run.json").read_text())
+    return {
+        "wall_s": wall,
+        "cpu_s": usage.ru_utime + usage.ru_stime,
+        "maxrss_mib": usage.ru_maxrss / 1024.0,  # KiB on Linux
+        "timings_s": record.get("timings_s", {}),
+        "files": len(record.get("files_written", [])),
+        "summary": record.get("product_sets", {}).get("front", {}),
+        "children_maxrss_mib": resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss / 1024.0,
+    }
+
+
+CASES = [
+    {
+        "kind": "projected",
+        "name": "projected 2000 x 2000 (1 km)",
+        "cols": 2000,
+        "rows": 2000,
+        "cell_m": 1000.0,
+        "target": 2.0,
+    },
+    {
+        "kind": "geographic",
+        "name": "geographic 7200 x 4800 (1')",
+        "cols": 7200,
+        "rows": 4800,
+        "west": -170.0,
+        "north": 40.0,
+        "res_deg": 1.0 / 60.0,
+        "src": [-110.0, 0.0],
+        "target": 1.5,
+    },
+]
+
+
+def main() -> None:
+    ap = argparse.ArgumentParser(description=__doc__.split("\n")[0])
+    ap.add_argument("--quick", action="store_true", help="the 2000 x 2000 case only")
+    ap.add_argument(
+        "--repeat",
+        type=int,
+        default=3,
+        help="runs of the CLI and of the raw call for the 2000 x 2000 case (best of)",
+    )
+    ap.add_argument(
+        "--repeat-large",
+        type=int,
+        default=1,
+        help="runs of each for the 7200 x 4800 case (best of)",
+    )
+    ap.add_argument(
+        "--keep", metavar="DIR", help="write the test files and outputs here and keep them"
+    )
+    ap.add_argument(
+        "--smooth-coast",
+        action="store_true",
+        help="smooth coastlines (no cell-scale islands, lakes or diagonal joins)",
+    )
+    args = ap.parse_args()
+    roughness = 0.0 if args.smooth_coast else be.COAST_ROUGHNESS
+
+    ctx = be._context()
+    if ctx.get_start_method() == "forkserver":
+        from multiprocessing import forkserver
+
+        forkserver.ensure_running()
+    t_start = time.perf_counter()
+    print("ttmap end-to-end benchmark (ttmap map, default products)")
+    print(
+        f"  python {sys.version.split()[0]}, {platform.machine()}, {os.cpu_count()} CPUs; "
+        f"helper processes: '{ctx.get_start_method()}'"
+    )
+    print(f"  coastlines: {'smooth' if roughness == 0 else f'rough ({roughness:g})'}")
+    cases = [dict(c, roughness=roughness) for c in (CASES[:1] if args.quick else CASES)]
+    results = []
+    tmp_obj = None
+    if args.keep:
+        base = Path(args.keep)
+        base.mkdir(parents=True, exist_ok=True)
+    else:
+        tmp_obj = tempfile.TemporaryDirectory(prefix="ttmap_bench_cli_")
+        base = Path(tmp_obj.name)
+    try:
+        for i, spec in enumerate(cases):
+            repeat = args.repeat if i == 0 else args.repeat_large
+            folder = base / f"case{i}"
+            folder.mkdir(exist_ok=True)
+            print(f"\n== {spec['name']} ==", flush=True)
+            t0 = time.perf_counter()
+            info = in_helper(_write_case, spec, str(folder))
+            print(
+                f"  test GeoTIFF {info['tif_mib']:.0f} MiB written in {time.perf_counter() - t0:.1f} s; "
+                f"{info['cells'] / 1e6:.2f} M cells; solve plane {info['plane_shape'][0]} x "
+                f"{info['plane_shape'][1]}",
+                flush=True,
+            )
+            runs = []
+            for k in range(repeat):
+                out_dir = folder / f"out{k}"
+                runs.append(run_cli(info["tif"], info["source_args"], out_dir, folder / f"log{k}"))
+                print(
+                    f"  ttmap map run {k + 1}: {runs[-1]['wall_s']:.2f} s wall, "
+                    f"{runs[-1]['cpu_s']:.2f} s CPU, peak RSS {runs[-1]['maxrss_mib']:.0f} MiB",
+                    flush=True,
+                )
+            best = min(runs, key=lambda r: r["wall_s"])
+            best_cpu = min(r["cpu_s"] for r in runs)
+            raw = in_helper(_raw_solve, str(folder), info["dx"], info["periodic"], repeat)
+            for f in ("phi.npy", "mask.npy", "speed.npy"):
+                (folder / f).unlink()
+            r_t = best["wall_s"] / raw["best_s"]
+            r_c = best_cpu / raw["best_cpu_s"]
+            print(
+                f"  raw skfmm.travel_time          : {raw['best_s']:8.2f} s wall, "
+                f"{raw['best_cpu_s']:.2f} s CPU (best of {repeat}), peak "
+                f"{raw['total_mib']:.0f} MiB with inputs ({raw['call_mib']:.0f} MiB in the call)"
+            )
+            print(
+                f"  ttmap map (whole process)      : {best['wall_s']:8.2f} s wall, {best_cpu:.2f} s CPU "
+                f"(best of {repeat}), peak RSS {best['maxrss_mib']:.0f} MiB; {best['files']} files"
+            )
+            for what, val in (("wall", r_t), ("CPU ", r_c)):
+                print(
+                    f"  ratio CLI / raw, {what}          : {val:8.2f}x (target <= {spec['target']:g}x: "
+                    f"{'met' if val <= spec['target'] else 'NOT met'})"
+                )
+            print(
+                f"  memory CLI / raw               : {best['maxrss_mib'] / raw['total_mib']:8.2f}x"
+            )
+            print(
+                "  run.json timings_s (best run)  : "
+                + ", ".join(f"{k} {v:.2f}" for k, v in best["timings_s"].items())
+            )
+            s = best["summary"]
+            if s:
+                print(
+                    f"  front: {s.get('cells_reached')} cells reached, range "
+                    f"{s.get('arrival_min_range')} min, {s.get('unreached_basins')} closed basins, "
+                    f"{s.get('diagonal_joins_opened')} diagonal joins opened"
+                )
+            results.append(
+                {
+                    "case": spec["name"],
+                    "cells": info["cells"],
+                    "cli": best,
+                    "raw": raw,
+                    "ratio": r_t,
+                    "cpu": best_cpu,
+                    "ratio_cpu": r_c,
+                    "target": spec["target"],
+                }
+            )
+    finally:
+        if tmp_obj is not None:
+            tmp_obj.cleanup()
+
+    print("\n== Summary ==")
+    print(
+        f"{'case':<30} {'M cells':>7} {'CLI s':>7} {'raw s':>7} {'wall':>6} {'CLI CPU':>8} "
+        f"{'raw CPU':>8} {'CPU':>6} {'target':>6} {'CLI MiB':>8} {'raw MiB':>8}"
+    )
+    for r in results:
+        print(
+            f"{r['case']:<30} {r['cells'] / 1e6:7.2f} {r['cli']['wall_s']:7.2f} "
+            f"{r['raw']['best_s']:7.2f} {r['ratio']:5.2f}x {r['cpu']:8.2f} "
+            f"{r['raw']['best_cpu_s']:8.2f} {r['ratio_cpu']:5.2f}x {r['target']:5.1f}x "
+            f"{r['cli']['maxrss_mib']:8.0f} {r['raw']['total_mib']:8.0f}"
+        )
+    print("\nper-stage timings from run.json (s):")
+    keys: list[str] = []
+    for r in results:
+        keys += [k for k in r["cli"]["timings_s"] if k not in keys]
+    print(f"{'case':<30} " + " ".join(f"{k:>14}" for k in keys))
+    for r in results:
+        t = r["cli"]["timings_s"]
+        print(f"{r['case']:<30} " + " ".join(f"{t.get(k, math.nan):14.2f}" for k in keys))
+    print(f"\nbenchmark wall time {time.perf_counter() - t_start:.0f} s")
+
+
+if __name__ == "__main__":
+    main()
