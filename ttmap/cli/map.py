@@ -14,7 +14,9 @@ from ttmap.cli.options import (
     bbox_callback,
     pair_callback,
     positive_callback,
+    product_options,
     reporter,
+    speed_model_options,
     verbosity_options,
 )
 from ttmap.physics.scaling import SCALING_RELATIONS
@@ -203,19 +205,8 @@ def build_source(opts: dict[str, Any]) -> Any:
               help="Speed used for the --period-s product sets.")
 @click.option("--front/--no-front", default=True, show_default=True,
               help="Produce the front (long-wave speed, earliest arrival) set.")
-@click.option("--far-field-correction/--no-far-field-correction", default=False, show_default=True,
-              help="Slow long waves by an effective depth (observed far-field delay of 1-2 %).")
-@click.option("--floor-depth-m", type=float, default=5.0, show_default=True, callback=positive_callback,
-              help="Water shallower than this is given this depth.")
-@click.option("--earth", type=click.Choice(["wgs84", "sphere"]), default="wgs84", show_default=True,
-              help="Figure of the Earth for longitude/latitude rasters.")
-@click.option("--max-time-h", type=float, callback=positive_callback, help="Stop at this many hours.")
-@click.option("--isochrone-interval-min", type=float, callback=positive_callback,
-              help="Isochrone spacing in minutes (default: 10 min to 2 h, then 30 min, then 60 min).")
-@click.option("--vector-format", type=click.Choice(["gpkg", "shp", "geojson"]), multiple=True,
-              help="Isochrone file format; repeat for several (default gpkg).")
-@click.option("--map-format", type=click.Choice(["png", "pdf"]), multiple=True,
-              help="Map format; repeat for several (default png).")
+@speed_model_options
+@product_options
 @click.option("--no-map", is_flag=True, help="Skip the map picture.")
 @click.option("--coast/--no-coast", default=True, show_default=True,
               help="Write the coastal arrival layer (coastline stretches with first-arrival minutes).")

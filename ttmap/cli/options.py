@@ -20,6 +20,8 @@ __all__ = [
     "Reporter",
     "reporter",
     "verbosity_options",
+    "speed_model_options",
+    "product_options",
 ]
 
 
@@ -136,4 +138,28 @@ def verbosity_options(f: Any) -> Any:
                      help="No progress messages.")(f)
     f = click.option("-v", "--verbose", is_flag=True, expose_value=False, callback=_set_flag("verbose"),
                      help="More detail, and tracebacks on errors.")(f)
+    return f
+
+
+def speed_model_options(f: Any) -> Any:
+    """Options of the speed model shared by the solving commands."""
+    f = click.option("--earth", type=click.Choice(["wgs84", "sphere"]), default="wgs84", show_default=True,
+                     help="Figure of the Earth for longitude/latitude rasters.")(f)
+    f = click.option("--floor-depth-m", type=float, default=5.0, show_default=True,
+                     callback=positive_callback, help="Water shallower than this is given this depth.")(f)
+    f = click.option("--far-field-correction/--no-far-field-correction", default=False, show_default=True,
+                     help="Slow long waves by an effective depth (observed far-field delay of 1-2 %).")(f)
+    return f
+
+
+def product_options(f: Any) -> Any:
+    """Options of the raster, isochrone and map products shared by the solving commands."""
+    f = click.option("--map-format", type=click.Choice(["png", "pdf"]), multiple=True,
+                     help="Map format; repeat for several (default png).")(f)
+    f = click.option("--vector-format", type=click.Choice(["gpkg", "shp", "geojson"]), multiple=True,
+                     help="Isochrone file format; repeat for several (default gpkg).")(f)
+    f = click.option("--isochrone-interval-min", type=float, callback=positive_callback,
+                     help="Isochrone spacing in minutes (default: 10 min to 2 h, then 30 min, then 60 min).")(f)
+    f = click.option("--max-time-h", type=float, callback=positive_callback,
+                     help="Stop at this many hours.")(f)
     return f

@@ -9,7 +9,14 @@ from typing import Any
 import click
 
 from ttmap.cli.map import bathymetry_options, finite_callback, site_file_options
-from ttmap.cli.options import parse_pair, positive_callback, reporter, verbosity_options
+from ttmap.cli.options import (
+    parse_pair,
+    positive_callback,
+    product_options,
+    reporter,
+    speed_model_options,
+    verbosity_options,
+)
 from ttmap.products.budget import DEFAULT_NOTIFICATION_DELAY_MIN
 from ttmap.sitemap import DEFAULT_SITE_SNAP_RADIUS_M, MAX_NOTIFICATION_DELAY_MIN
 
@@ -80,19 +87,8 @@ def _site_specs_callback(ctx: click.Context, param: click.Parameter, value: Any)
               help="Solve with the speed of waves of this period (default: long-wave speed, the front).")
 @click.option("--period-speed", type=click.Choice(["group", "phase"]), default="group", show_default=True,
               help="Speed used with --period-s.")
-@click.option("--far-field-correction/--no-far-field-correction", default=False, show_default=True,
-              help="Slow long waves by an effective depth (observed far-field delay of 1-2 %).")
-@click.option("--floor-depth-m", type=float, default=5.0, show_default=True, callback=positive_callback,
-              help="Water shallower than this is given this depth.")
-@click.option("--earth", type=click.Choice(["wgs84", "sphere"]), default="wgs84", show_default=True,
-              help="Figure of the Earth for longitude/latitude rasters.")
-@click.option("--max-time-h", type=float, callback=positive_callback, help="Stop at this many hours.")
-@click.option("--isochrone-interval-min", type=float, callback=positive_callback,
-              help="Isochrone spacing in minutes (default: 10 min to 2 h, then 30 min, then 60 min).")
-@click.option("--vector-format", type=click.Choice(["gpkg", "shp", "geojson"]), multiple=True,
-              help="Isochrone file format; repeat for several (default gpkg).")
-@click.option("--map-format", type=click.Choice(["png", "pdf"]), multiple=True,
-              help="Map format; repeat for several (default png).")
+@speed_model_options
+@product_options
 @click.option("--no-map", is_flag=True, help="Skip the map pictures.")
 @click.option("--combined/--no-combined", default=True, show_default=True,
               help="With two or more sites, also write the earliest time over all sites and which "
