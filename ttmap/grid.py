@@ -63,6 +63,8 @@ EARTH_MODELS: tuple[str, ...] = ("wgs84", "sphere")
 _WRAP_RTOL = 1e-6
 # Largest accepted ratio of the two cell sides of a projected grid.
 _MAX_CELL_ASPECT = 2.0
+# Cells per slice when carrying times back to the native rows.
+_TO_NATIVE_CELLS = 1 << 18
 
 
 def _earth(earth: str) -> tuple[float, float]:
@@ -281,6 +283,41 @@ class Grid:
         row, col = self.rowcol(x, y)
         return (row >= 0) & (row < self.rows) & (col >= 0) & (col < self.cols)
 
+    def point_scale_factors(self) -> tuple[float, float] | None:
+        """Point scale of a projected grid's CRS at the grid's centre.
+
+        Returns
+        -------
+        (meridional_scale, parallel_scale) or None
+            Map distance per ground distance along the meridian and the
+            parallel through the centre (PROJ's ``get_factors``); None for a
+            geographic grid or where PROJ cannot tell (e.g. an engineering
+            CRS, or a centre outside the projection's domain).
+
+        Examples
+        --------
+        >>> from affine import Affine
+        >>> g = Grid((100, 100), Affine(1000, 0, 450_000, 0, -1000, 100_000), "EPSG:32654")
+        >>> [round(k, 4) for k in g.point_scale_factors()]
+        [0.9996, 0.9996]
+        """
+        if self.is_geographic:
+            return None
+        from pyproj import Proj, Transformer
+        from pyproj.exceptions import ProjError
+
+        left, bottom, right, top = self.bounds
+        try:
+            to_ll = Transformer.from_crs(self.crs, self.crs.geodetic_crs, always_xy=True)
+            lon, lat = to_ll.transform(0.5 * (left + right), 0.5 * (bottom + top))
+            f = Proj(self.crs).get_factors(lon, lat)
+            k_m, k_p = float(f.meridional_scale), float(f.parallel_scale)
+        except (ProjError, ValueError, TypeError):  # no geodetic CRS, or PROJ cannot tell
+            return None
+        if not (math.isfinite(k_m) and math.isfinite(k_p) and k_m > 0.0 and k_p > 0.0):
+            return None
+        return k_m, k_p
+
     def row_latitudes_deg(self) -> FloatArray:
         """Latitude of each row's cell centres (geographic grids only)."""
         if not self.is_geographic:
@@ -404,19 +441,31 @@ class SolvePlane:
         """Carry solve-grid times back to native cell centres.
 
         Linear in isometric latitude between the two bracketing solve rows; if
-        one of them has no value (NaN), the other is used.
+        one of them has no value (NaN), the other is used. Projected grids
+        return ``solved`` itself (no copy).
         """
+        if self.is_identity and not self.drop_seam:
+            return np.asarray(solved, dtype=np.float64)
+        rows, cols = self.grid.rows, solved.shape[1]
+        out = np.empty((rows, cols + 1 if self.drop_seam else cols))
         if self.is_identity:
-            out = solved
+            out[:, :cols] = solved
         else:
-            a = solved[self.back_row0, :]
-            b = solved[self.back_row1, :]
-            w = self.back_weight[:, None]
-            out = (1.0 - w) * a + w * b
-            out = np.where(np.isnan(a), b, np.where(np.isnan(b), a, out))
+            # In slices of rows, so that the temporaries stay small.
+            step = max(1, _TO_NATIVE_CELLS // max(1, cols))
+            for i in range(0, rows, step):
+                sl = slice(i, min(rows, i + step))
+                a = solved[self.back_row0[sl], :]
+                b = solved[self.back_row1[sl], :]
+                w = self.back_weight[sl, None]
+                o = out[sl, :cols]
+                np.multiply(1.0 - w, a, out=o)
+                o += w * b
+                np.copyto(o, a, where=np.isnan(b))
+                np.copyto(o, b, where=np.isnan(a))
         if self.drop_seam:
-            out = np.concatenate([out, out[:, :1]], axis=1)
-        return np.asarray(out, dtype=np.float64)
+            out[:, -1] = out[:, 0]
+        return out
 
 
 def solve_plane(grid: Grid, *, earth: EarthModel = "wgs84") -> SolvePlane:

@@ -17,10 +17,24 @@ cells and their interpolated distances ``d`` (a distance solve stopped at
 once), and set the speed of each frozen cell to ``|d| / |band_time_s|``, so
 that its start time ``|d| / speed`` is exactly the given one. Frozen cells
 are never updated afterwards, so their altered speeds affect nothing else.
+Along a periodic axis scikit-fmm also freezes cells of the region next to
+masked (land) cells, as if the land were outside the region; the pre-pass is
+run as periodic as the march so that it finds them too, and the caller gives
+their times as well.
+
+Memory
+------
+Beyond scikit-fmm's own work arrays, a solve allocates one full-size array:
+``phi``. The start region, its band and the frozen cells are handled on a
+small window around the region. With ``borrow_speed=True`` the frozen cells'
+speeds are written into the caller's speed array and restored before the
+call returns (also on error), instead of copying the whole array; the result
+is scikit-fmm's own output array, with NaN written in place.
 """
 
 from __future__ import annotations
 
+import math
 from typing import Any
 
 import numpy as np
@@ -31,15 +45,44 @@ from ttmap.errors import SolverError
 __all__ = ["fast_march_s"]
 
 
-def _window(inside: BoolArray, periodic_x: bool, pad: int) -> tuple[slice, slice, bool]:
-    rows = np.nonzero(inside.any(axis=1))[0]
-    cols = np.nonzero(inside.any(axis=0))[0]
-    r0, r1 = max(0, rows[0] - pad), min(inside.shape[0], rows[-1] + pad + 1)
-    c0, c1 = cols[0] - pad, cols[-1] + pad + 1
-    if periodic_x and (c0 < 0 or c1 > inside.shape[1]):
-        return slice(r0, r1), slice(0, inside.shape[1]), True
-    full = c0 <= 0 and c1 >= inside.shape[1]
-    return slice(r0, r1), slice(max(0, c0), min(inside.shape[1], c1)), periodic_x and full
+def _window(
+    box: tuple[int, int, int, int], shape: tuple[int, int], periodic_x: bool, pad: int
+) -> tuple[slice, slice, bool]:
+    """Rows, columns and wrap flag of the region's bounding box plus ``pad`` cells."""
+    r_lo, r_hi, c_lo, c_hi = box
+    r0, r1 = max(0, r_lo - pad), min(shape[0], r_hi + pad + 1)
+    c0, c1 = c_lo - pad, c_hi + pad + 1
+    if periodic_x and (c0 < 0 or c1 > shape[1]):
+        return slice(r0, r1), slice(0, shape[1]), True
+    full = c0 <= 0 and c1 >= shape[1]
+    return slice(r0, r1), slice(max(0, c0), min(shape[1], c1)), periodic_x and full
+
+
+def _bounding_box(mask: BoolArray) -> tuple[int, int, int, int] | None:
+    rows = np.nonzero(mask.any(axis=1))[0]
+    if rows.size == 0:
+        return None
+    cols = np.nonzero(mask[rows[0] : rows[-1] + 1].any(axis=0))[0]
+    return int(rows[0]), int(rows[-1]), int(cols[0]), int(cols[-1])
+
+
+def _all_finite_positive(a: FloatArray) -> bool:
+    """True if every value is finite and > 0 (two reductions, no temporaries)."""
+    if a.size == 0:
+        return True
+    lo, hi = float(a.min()), float(a.max())  # NaN propagates
+    return math.isfinite(lo) and math.isfinite(hi) and lo > 0.0
+
+
+def _touches(out: BoolArray, start: BoolArray, periodic_x: bool) -> bool:
+    """True if a cell of ``out`` is a 4-neighbour of a cell of ``start``."""
+    return bool(
+        (out[1:, :] & start[:-1, :]).any()
+        or (out[:-1, :] & start[1:, :]).any()
+        or (out[:, 1:] & start[:, :-1]).any()
+        or (out[:, :-1] & start[:, 1:]).any()
+        or (periodic_x and ((out[:, 0] & start[:, -1]).any() or (out[:, -1] & start[:, 0]).any()))
+    )
 
 
 def fast_march_s(
@@ -52,6 +95,7 @@ def fast_march_s(
     spacing_m: tuple[float, float],
     periodic_x: bool = False,
     max_time_s: float | None = None,
+    borrow_speed: bool = False,
 ) -> FloatArray:
     """Second-order fast-marching time after leaving a start region.
 
@@ -64,8 +108,9 @@ def fast_march_s(
     inside : ndarray of shape (rows, cols), bool
         The start region. Its edge is the start front (time 0 here).
     band_cells : (rows, cols) pair of 1-D int arrays
-        Cells on both sides of the region's edge (at least every water cell
-        with a 4-neighbour on the other side).
+        Cells on both sides of the region's edge: at least every water cell
+        with a 4-neighbour on the other side and, with ``periodic_x``, every
+        region cell next to the barrier (scikit-fmm freezes those too).
     band_time_s : 1-D float array, seconds
         Exact signed time from the start front at ``band_cells``: negative
         inside the region, positive outside.
@@ -76,6 +121,12 @@ def fast_march_s(
     max_time_s : float, optional
         Stop marching beyond this time after the start front; later cells
         are NaN.
+    borrow_speed : bool
+        Save a full copy of ``speed_m_s``: the speeds of the few frozen
+        start-band cells are written into it during the call and restored
+        before it returns, also on error. The array must be a writeable,
+        C-contiguous float64 array, and no other thread may read or solve
+        with it meanwhile. Default False: the input is never modified.
 
     Returns
     -------
@@ -100,12 +151,13 @@ def fast_march_s(
 
     speed = np.asarray(speed_m_s, dtype=np.float64)
     wall: BoolArray = np.asarray(barrier, dtype=bool)
-    start: BoolArray = np.asarray(inside, dtype=bool) & ~wall
-    if speed.ndim != 2 or not (speed.shape == wall.shape == start.shape):
+    inside_a: BoolArray = np.asarray(inside, dtype=bool)
+    if speed.ndim != 2 or not (speed.shape == wall.shape == inside_a.shape):
         raise SolverError(
-            f"speed {speed.shape}, barrier {wall.shape} and inside {start.shape} must be "
+            f"speed {speed.shape}, barrier {wall.shape} and inside {inside_a.shape} must be "
             "2-D arrays of one shape"
         )
+    shape = (int(speed.shape[0]), int(speed.shape[1]))
     b_rows = np.asarray(band_cells[0], dtype=np.intp)
     b_cols = np.asarray(band_cells[1], dtype=np.intp)
     b_time = np.asarray(band_time_s, dtype=np.float64)
@@ -114,49 +166,62 @@ def fast_march_s(
     dx = (float(spacing_m[0]), float(spacing_m[1]))  # skfmm rejects numpy scalars
     if not all(np.isfinite(dx)) or min(dx) <= 0.0:
         raise SolverError(f"grid spacing {dx} m must be positive and finite")
-    open_cells = ~wall
-    bad = open_cells & ~(np.isfinite(speed) & (speed > 0.0))
-    if bad.any():
-        r, c = (int(v[0]) for v in np.nonzero(bad))
-        raise SolverError(
-            f"{int(bad.sum())} water cells have a speed that is NaN, infinite or <= 0 "
-            f"(first at row {r}, col {c}: {float(speed[r, c])!r} m/s); "
-            "check the depth and period inputs"
-        )
-    if not start.any():
+    # Speeds: a barrier cell may hold anything (scikit-fmm never uses it), but it must not
+    # reach scikit-fmm as NaN or <= 0. The usual input (positive everywhere) costs two
+    # reductions; anything else is checked cell by cell and copied with 1.0 on the barrier.
+    owned = not (isinstance(speed_m_s, np.ndarray) and np.may_share_memory(speed, speed_m_s))
+    if not _all_finite_positive(speed):
+        open_cells = ~wall
+        bad = open_cells & ~(np.isfinite(speed) & (speed > 0.0))
+        if bad.any():
+            r, c = (int(v[0]) for v in np.nonzero(bad))
+            raise SolverError(
+                f"{int(bad.sum())} water cells have a speed that is NaN, infinite or <= 0 "
+                f"(first at row {r}, col {c}: {float(speed[r, c])!r} m/s); "
+                "check the depth and period inputs"
+            )
+        del bad
+        speed = np.where(open_cells, speed, 1.0)  # any positive value on land
+        del open_cells
+        owned = True
+    if not speed.flags.c_contiguous:
+        speed = np.ascontiguousarray(speed)
+        owned = True
+    # The start region (water cells of ``inside``), found on its bounding box.
+    box = _bounding_box(inside_a)
+    if box is not None:
+        r_lo, r_hi, c_lo, c_hi = box
+        rows, cols = slice(r_lo, r_hi + 1), slice(c_lo, c_hi + 1)
+        sbox = _bounding_box(inside_a[rows, cols] & ~wall[rows, cols])
+        box = None if sbox is None else (r_lo + sbox[0], r_lo + sbox[1], c_lo + sbox[2], c_lo + sbox[3])
+    if box is None:
         raise SolverError("the start region is empty; it must hold at least one water cell")
     if max_time_s is not None and not (np.isfinite(max_time_s) and max_time_s > 0.0):
         raise SolverError(f"maximum time {max_time_s!r} s must be a positive number")
-
-    out = open_cells & ~start
-    touching = bool(
-        (out[1:, :] & start[:-1, :]).any()
-        or (out[:-1, :] & start[1:, :]).any()
-        or (out[:, 1:] & start[:, :-1]).any()
-        or (out[:, :-1] & start[:, 1:]).any()
-        or (periodic_x and ((out[:, 0] & start[:, -1]).any() or (out[:, -1] & start[:, 0]).any()))
-    )
-    if not touching:
+    rs, cs, win_periodic = _window(box, shape, periodic_x, pad=3)
+    wall_w = wall[rs, cs]
+    start_w = inside_a[rs, cs] & ~wall_w
+    if not _touches(~wall_w & ~start_w, start_w, win_periodic):
         # The start region fills its water body (scikit-fmm would find no zero level).
-        return np.full(speed.shape, np.nan)
+        return np.full(shape, np.nan)
 
-    phi = np.where(start, -1.0, 1.0)
+    phi_w = np.where(start_w, -1.0, 1.0)
     periodic = [False, bool(periodic_x)]
-    # scikit-fmm's own start band and its interpolated distances, on a window.
-    rs, cs, win_periodic = _window(start, periodic_x, pad=3)
+    # scikit-fmm's own start band and its interpolated distances, on the window.
     try:
         d0 = skfmm.distance(
-            # scikit-fmm reads the raw buffer: views must be made contiguous.
-            np.ma.MaskedArray(
-                np.ascontiguousarray(phi[rs, cs]), mask=np.ascontiguousarray(wall[rs, cs])
-            ),
+            np.ma.MaskedArray(phi_w, mask=np.ascontiguousarray(wall_w)),
             dx=list(dx),
             narrow=1e-12 * min(dx),
-            periodic=[False, win_periodic],
+            # As periodic as the march itself, even on a partial window (its far edges are
+            # 3 cells from the region, so meeting there freezes nothing): along a periodic
+            # axis scikit-fmm also freezes region cells next to masked ones, and those need
+            # their exact times as much as the others.
+            periodic=[False, bool(periodic_x)],
         )
     except (ValueError, RuntimeError) as err:
         raise SolverError(f"scikit-fmm failed to find the start band: {err}") from err
-    frozen = ~np.ma.getmaskarray(d0) & ~wall[rs, cs]
+    frozen = ~np.ma.getmaskarray(d0) & ~wall_w
     dist = np.abs(np.ma.getdata(d0))
     tau = np.full(frozen.shape, np.nan)
     n_r, n_c = int(frozen.shape[0]), int(frozen.shape[1])
@@ -165,15 +230,21 @@ def fast_march_s(
     tau[rr[ok], cc[ok]] = np.abs(b_time[ok])
     if not np.isfinite(tau[frozen]).all():
         raise SolverError("a cell of the start band has no start time; this is a bug in the caller")
-    speed_in = np.where(open_cells, speed, 1.0)  # any positive value on land
-    floor = 1e-9 * min(dx) / float(np.max(speed[start]))
-    sub = speed_in[rs, cs]
-    sub[frozen] = dist[frozen] / np.maximum(tau[frozen], floor)
-    speed_in[rs, cs] = sub
+    floor = 1e-9 * min(dx) / float(np.max(speed[rs, cs][start_w]))
+    frozen_speed = dist[frozen] / np.maximum(tau[frozen], floor)
+
+    phi = np.ones(shape)
+    phi[rs, cs][start_w] = -1.0
+    if not owned and not (borrow_speed and speed.flags.writeable):
+        speed = speed.copy()
+        owned = True
+    speed_w = speed[rs, cs]  # a view: writes reach ``speed``
+    saved = None if owned else speed_w[frozen]
+    speed_w[frozen] = frozen_speed
     try:
         t = skfmm.travel_time(
             np.ma.MaskedArray(phi, mask=np.ascontiguousarray(wall)),
-            np.ascontiguousarray(speed_in),
+            speed,
             dx=list(dx),
             order=2,
             periodic=periodic,
@@ -181,8 +252,24 @@ def fast_march_s(
         )
     except (ValueError, RuntimeError) as err:
         raise SolverError(f"scikit-fmm failed: {err}") from err
-    out = np.ma.filled(np.ma.asarray(t, dtype=np.float64), np.nan)
-    out[wall | start] = np.nan
+    finally:
+        if saved is not None:
+            speed_w[frozen] = saved
+    del phi
+    # Masked cells (unreached, beyond the narrow band) carry 0 in the data: NaN instead.
+    if isinstance(t, np.ma.MaskedArray):
+        out = np.ma.getdata(t)
+        mask = np.ma.getmaskarray(t)
+        del t
+        np.copyto(out, np.nan, where=mask)
+        del mask
+    else:
+        out = np.asarray(t)
+    if out.dtype != np.float64 or not out.flags.writeable:
+        out = np.array(out, dtype=np.float64)
+    np.copyto(out, np.nan, where=wall)
+    out[rs, cs][start_w] = np.nan
     if max_time_s is not None:
-        out[out > max_time_s] = np.nan
-    return np.asarray(out, dtype=np.float64)
+        with np.errstate(invalid="ignore"):
+            np.copyto(out, np.nan, where=out > max_time_s)
+    return out

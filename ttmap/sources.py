@@ -2,19 +2,36 @@
 
 A :class:`Source` is a shapely geometry with the CRS it is expressed in. It
 knows nothing about the grid until :func:`place_source` puts it there, which
-returns a :class:`SourceStart`: the signed-distance start front ``phi`` on the
-solve plane, the cells inside the source with their start times, and a time
-offset added to the marched times outside.
+returns a :class:`SourceStart`: a start region of water cells whose times are
+set rather than marched, the exact times of the band of cells on both sides
+of its edge, and the time of that edge (the start front), added to the
+marched times outside.
 
-- A point starts as a small cone: the water cells within ``r0`` (two cells)
-  of the point, connected to it, get ``t = r / c`` with ``c`` the speed at the
-  point; the front marches outward from the circle ``r = r0`` and the marched
-  times get ``r0 / c`` added. Starting from a single cell instead would give
-  first-order error near the source.
-- A line starts the same way from a tube of radius ``r0`` around it, with the
-  median speed in the tube.
-- An area (polygon, rupture rectangle) starts at time zero on every water cell
-  inside it; the front marches outward from its edge.
+- A point starts from a straight-ray region. Every water cell within
+  ``POINT_START_RADIUS_CELLS`` (10) solve cells that the source sees along a
+  straight line through water gets the straight-ray time: its distance times
+  the mean slowness sampled along the ray. Land bounds the region (cells
+  behind it are hidden, and the region is kept 4-connected to the source
+  cell); the radius shrinks, to no less than ``POINT_MIN_RADIUS_CELLS`` (2),
+  to the first water cell that is hidden from the source or whose speed
+  differs by more than ``POINT_MAX_SPEED_CHANGE`` (10 %) from the speed at
+  the source. The start front is the time ``radius / c`` (``c`` the fastest
+  speed in the disc); the region is the visible water earlier than that.
+  Starting from a single cell instead would give first-order error near the
+  source.
+- A line starts from a tube of ``LINE_START_RADIUS_CELLS`` (2) cells around
+  it: distance to the line over the local speed, front at the tube radius
+  over the fastest speed in the tube.
+- An area (polygon, rupture rectangle) starts at time zero on every open
+  water cell inside it; the front marches outward from its edge, with the
+  exact distance to the edge over the local speed on the band. On lon/lat
+  grids the native cells inside are set to exactly zero again after the
+  times are carried back from the Mercator rows (:attr:`SourceStart.native_zero_cells`).
+
+Exact start band: the cells on both sides of the region's edge get their
+signed time from the start front (negative inside), which
+:func:`ttmap.solver.fast_march_s` imposes exactly on scikit-fmm's frozen
+cells instead of its linear interpolation of ``phi``.
 
 Rupture rectangles are built in an azimuthal equidistant projection centred on
 the rupture (so length and width are true distances), densified, and carried
@@ -274,6 +291,10 @@ class SourceStart:
     contour_time_s : float
         Time of the start front; added to the marched times outside.
     placement : Placement
+    native_zero_cells : (rows, cols) of 1-D int arrays, or None
+        Native cells to set to exactly zero after the times are carried back
+        (the open water cells inside an area source on a lon/lat grid,
+        duplicated seam column included); None otherwise.
     """
 
     inside: BoolArray = field(repr=False)
@@ -283,6 +304,7 @@ class SourceStart:
     band_time_s: FloatArray = field(repr=False)
     contour_time_s: float
     placement: Placement
+    native_zero_cells: tuple[IntArray, IntArray] | None = field(default=None, repr=False)
 
 
 def _check_lonlat(lon: float, lat: float) -> None:
@@ -561,13 +583,16 @@ def _straight_ray_times(
     return t, visible
 
 
-def _neighbour_any(mask: BoolArray) -> BoolArray:
-    """True where any 4-neighbour (within the array) is True."""
+def _neighbour_any(mask: BoolArray, wrap: bool = False) -> BoolArray:
+    """True where any 4-neighbour is True (within the array; columns wrap if ``wrap``)."""
     out = np.zeros_like(mask)
     out[1:, :] |= mask[:-1, :]
     out[:-1, :] |= mask[1:, :]
     out[:, 1:] |= mask[:, :-1]
     out[:, :-1] |= mask[:, 1:]
+    if wrap:
+        out[:, 0] |= mask[:, -1]
+        out[:, -1] |= mask[:, 0]
     return out
 
 
@@ -583,6 +608,7 @@ def _start_from_region(
     contour_t: float,
     placement: Placement,
     native_shape: tuple[int, int],
+    native_zero_cells: tuple[IntArray, IntArray] | None = None,
 ) -> SourceStart:
     """Assemble a :class:`SourceStart` from a window's start region.
 
@@ -591,8 +617,13 @@ def _start_from_region(
     whose time is missing or early take the fastest step from a region
     neighbour instead.
     """
-    band_in = region & _neighbour_any(sub_open & ~region)
-    band_out = sub_open & ~region & _neighbour_any(region)
+    # A window over every column of a wrapping grid, in grid order: its edges meet.
+    wrap = plane.periodic_x and cols.size == plane.shape[1] and bool((np.diff(cols) == 1).all())
+    # Inside: every region cell next to a cell outside it, land included. On wrapping grids
+    # scikit-fmm also freezes region cells next to land along the rows (its start band does
+    # not skip masked neighbours along a periodic axis); they need exact times too.
+    band_in = region & _neighbour_any(~region, wrap)
+    band_out = sub_open & ~region & _neighbour_any(region, wrap)
     # Outside band: the straight-ray time when sensible, else one step from the region.
     hy, hx = plane.spacing_m
     step = np.full(region.shape, np.inf)
@@ -614,7 +645,7 @@ def _start_from_region(
     inside = np.zeros(plane.shape, dtype=bool)
     inside[rows[ii], cols[jj]] = True
     in_rows, in_cols = rows[ii], cols[jj]
-    if placement.start_cells == 0:
+    if native_zero_cells is None:
         nat = np.unique(plane.native_row[in_rows] * native_shape[1] + in_cols).size
         placement = Placement(
             placement.x, placement.y, placement.row, placement.col, placement.depth_m,
@@ -628,6 +659,7 @@ def _start_from_region(
         band_time_s=band_time.astype(np.float64),
         contour_time_s=float(contour_t),
         placement=placement,
+        native_zero_cells=native_zero_cells,
     )
 
 
@@ -762,9 +794,48 @@ def _place_area(
     idx = np.nonzero(near & sub_open)
     dist = shapely.distance(pgeom.boundary, shapely.points(xx[idx], yy[idx]))
     band_t[idx] = np.where(region[idx], -dist, np.where(inside_geo[idx], 0.0, dist)) / sub_speed[idx]
+    native_zero = None
+    start_cells = 0
+    if grid.is_geographic:
+        native_zero = _native_inside(geom, grid, plane, open_water)
+        start_cells = int(native_zero[0].size)
+        if plane.drop_seam:
+            first = native_zero[1] == 0
+            native_zero = (
+                np.concatenate([native_zero[0], native_zero[0][first]]),
+                np.concatenate([native_zero[1], np.full(int(first.sum()), grid.cols - 1, np.intp)]),
+            )
     return _start_from_region(
         plane, rows, cols, region, sub_open, np.zeros(region.shape), band_t, sub_speed, 0.0,
         Placement(float(c.x), float(c.y), min(max(row, 0), grid.rows - 1),
-                  min(max(col, 0), grid.cols - 1), d, 0.0, 0),
+                  min(max(col, 0), grid.cols - 1), d, 0.0, start_cells),
         grid.shape,
+        native_zero,
     )
+
+
+def _native_inside(
+    geom: BaseGeometry, grid: Grid, plane: SolvePlane, open_water: BoolArray
+) -> tuple[IntArray, IntArray]:
+    """Native open-water cells of a lon/lat grid whose centres lie inside an area.
+
+    Tested in the grid's CRS (longitude, latitude), with each column's
+    longitude taken within half a turn of the area's middle so that an area
+    crossing the grid's longitude seam is tested in one piece. The duplicated
+    seam column, if any, is left out.
+    """
+    minx, miny, maxx, maxy = geom.bounds
+    mid = 0.5 * (minx + maxx)
+    ncols = plane.shape[1]
+    lon, _ = grid.xy(0, np.arange(ncols))
+    lon = mid + np.mod(np.asarray(lon) - mid + 180.0, 360.0) - 180.0
+    _, lat = grid.xy(np.arange(grid.rows), 0)
+    lat = np.asarray(lat)
+    rows = np.nonzero((lat >= miny) & (lat <= maxy))[0]
+    cols = np.nonzero((lon >= minx) & (lon <= maxx))[0]
+    if rows.size == 0 or cols.size == 0:
+        return np.zeros(0, np.intp), np.zeros(0, np.intp)
+    xx, yy = np.meshgrid(lon[cols], lat[rows])
+    inside = shapely.contains_xy(geom, xx, yy) & open_water[np.ix_(rows, cols)]
+    ii, jj = np.nonzero(inside)
+    return rows[ii].astype(np.intp), cols[jj].astype(np.intp)

@@ -3,9 +3,10 @@
 Two steps, so that many sources can share one speed field:
 
 1. :func:`prepare_medium` turns depth into a solve-ready :class:`Medium`:
-   floor depth, speed for the chosen mode and period, diagonal-only joins
-   opened, water bodies numbered, and (for lon/lat grids) the Mercator solve
-   plane with speeds multiplied by the scale factor.
+   floor depth, diagonal-only joins opened (the opened cell takes the depth
+   of the shallower of the two water cells it joins), water bodies numbered,
+   speed for the chosen mode and period, and (for lon/lat grids) the Mercator
+   solve plane with speeds multiplied by the scale factor.
 2. :meth:`Medium.travel_time` places a source, marches, carries the times back
    to the native grid and summarises what was reached.
 
@@ -14,17 +15,19 @@ Two steps, so that many sources can share one speed field:
 
 from __future__ import annotations
 
+import threading
 import time
+import warnings
 from dataclasses import asdict, dataclass, field
 from typing import Any
 
 import numpy as np
 
 from ttmap._typing import BoolArray, EarthModel, FloatArray, IntArray
-from ttmap.connectivity import label_water, open_diagonal_joins
-from ttmap.errors import InputDataError
+from ttmap.connectivity import connect_water
+from ttmap.errors import InputDataError, TtmapWarning
 from ttmap.grid import Grid, SolvePlane, solve_plane
-from ttmap.physics.speed import DEFAULT_FLOOR_DEPTH_M, SPEED_MODES, floor_depth, wave_speed_m_s
+from ttmap.physics.speed import DEFAULT_FLOOR_DEPTH_M, check_speed_options, water_speed_m_s
 from ttmap.solver import fast_march_s
 from ttmap.sources import Source, place_source
 
@@ -35,11 +38,24 @@ __all__ = [
     "prepare_medium",
     "compute_travel_time",
     "DEFAULT_MIN_BASIN_SHARE",
+    "MAX_PROJECTED_SCALE_ERROR",
 ]
 
 #: A water body holding less than this share of the grid's water, and not
 #: the largest one, is a closed basin: sources may not start there.
 DEFAULT_MIN_BASIN_SHARE: float = 0.01
+
+#: A projected grid whose CRS scales ground distances at the grid's centre by
+#: more than this fraction (either way) gets a warning from prepare_medium.
+MAX_PROJECTED_SCALE_ERROR: float = 0.01
+
+# A solve lends the medium's speed array to the solver, which changes a few cells of it
+# for the duration of the march (ttmap.solver, borrow_speed). Solves are serialised per
+# process; scikit-fmm holds the GIL while it marches, so threads lose no parallelism.
+_SOLVE_LOCK = threading.Lock()
+
+# Cells per slice of rows for the elementwise passes over the depth grid.
+_SLICE_CELLS = 1 << 18
 
 
 @dataclass(frozen=True)
@@ -134,6 +150,30 @@ class Medium:
 
     Build with :func:`prepare_medium`. Attributes are read-only views; do not
     modify them.
+
+    Attributes
+    ----------
+    grid : Grid
+    plane : SolvePlane
+    depth_m : ndarray of shape grid.shape, float64, metres
+        Depth after nodata (NaN), floor depth and opened joins.
+    water, open_water : ndarray of shape grid.shape, bool
+        Water cells; water of the basins a source may start in.
+    basin_labels : ndarray of shape grid.shape, uint16 (int32 beyond 65535 bodies)
+        Water body of each cell (0 on land); ``basin_sizes`` counts them.
+    speed_plane_m_s : ndarray of shape plane.shape, float64, m/s
+        Speed on the solve plane times its scale factor; 1.0 on the barrier.
+        For the duration of a solve (:meth:`travel_time`) a few cells around
+        the source hold altered values; solves take a process-wide lock.
+    barrier_plane : ndarray of shape plane.shape, bool
+        Land on the solve plane.
+    joins_opened : tuple of (row, col)
+    settings : dict
+
+    Notes
+    -----
+    :attr:`speed_m_s`, the speed on the native grid, is computed on request
+    and not kept (it would double the medium's largest array).
     """
 
     grid: Grid
@@ -143,11 +183,21 @@ class Medium:
     open_water: BoolArray = field(repr=False)
     basin_labels: IntArray = field(repr=False)
     basin_sizes: IntArray = field(repr=False)
-    speed_m_s: FloatArray = field(repr=False)
     speed_plane_m_s: FloatArray = field(repr=False)
     barrier_plane: BoolArray = field(repr=False)
     joins_opened: tuple[tuple[int, int], ...]
     settings: dict[str, Any]
+
+    @property
+    def speed_m_s(self) -> FloatArray:
+        """Wave speed on the native grid (m/s), NaN on land; a new array on each call."""
+        return water_speed_m_s(
+            self.depth_m,
+            land=~self.water,
+            mode=self.settings["speed_mode"],
+            period_s=self.settings["period_s"],
+            far_field=self.settings["far_field"],
+        )
 
     def travel_time(
         self,
@@ -183,59 +233,83 @@ class Medium:
         if snap_radius_m is not None and not (np.isfinite(snap_radius_m) and snap_radius_m >= 0):
             raise InputDataError(f"snap radius {snap_radius_m!r} m must be a non-negative number")
         t0 = time.perf_counter()
-        start = place_source(
-            source,
-            grid=self.grid,
-            plane=self.plane,
-            depth_m=self.depth_m,
-            water=self.water,
-            open_water=self.open_water,
-            basin_labels=self.basin_labels,
-            basin_sizes=self.basin_sizes,
-            speed_plane_m_s=self.speed_plane_m_s,
-            barrier_plane=self.barrier_plane,
-            snap_radius_m=snap_radius_m,
-        )
-        t_plane = fast_march_s(
-            self.speed_plane_m_s,
-            barrier=self.barrier_plane,
-            inside=start.inside,
-            band_cells=start.band_cells,
-            band_time_s=start.band_time_s,
-            spacing_m=self.plane.spacing_m,
-            periodic_x=self.plane.periodic_x,
-            max_time_s=max_time_s,
-        )
+        with _SOLVE_LOCK:
+            start = place_source(
+                source,
+                grid=self.grid,
+                plane=self.plane,
+                depth_m=self.depth_m,
+                water=self.water,
+                open_water=self.open_water,
+                basin_labels=self.basin_labels,
+                basin_sizes=self.basin_sizes,
+                speed_plane_m_s=self.speed_plane_m_s,
+                barrier_plane=self.barrier_plane,
+                snap_radius_m=snap_radius_m,
+            )
+            t_plane = fast_march_s(
+                self.speed_plane_m_s,
+                barrier=self.barrier_plane,
+                inside=start.inside,
+                band_cells=start.band_cells,
+                band_time_s=start.band_time_s,
+                spacing_m=self.plane.spacing_m,
+                periodic_x=self.plane.periodic_x,
+                max_time_s=max_time_s,
+                borrow_speed=True,
+            )
         t_plane += start.contour_time_s
         t_plane[start.inside_cells] = start.inside_time_s
         arrival = self.plane.to_native(t_plane)
-        arrival[~self.water] = np.nan
-        if max_time_s is not None:
-            arrival[arrival > max_time_s] = np.nan
+        del t_plane
+        if start.native_zero_cells is not None:
+            arrival[start.native_zero_cells] = 0.0
+        missing_per_body = self._finish(arrival, max_time_s)
         elapsed = time.perf_counter() - t0
-        summary = self._summarise(arrival, start, elapsed)
+        summary = self._summarise(arrival, missing_per_body, start, elapsed)
         settings = dict(self.settings, max_time_s=max_time_s, snap_radius_m=snap_radius_m)
         return TravelTimeResult(arrival, self.grid, summary, source, settings)
 
-    def _summarise(self, arrival: FloatArray, start: Any, elapsed: float) -> TravelTimeSummary:
-        reached = np.isfinite(arrival)
+    def _finish(self, arrival: FloatArray, max_time_s: float | None) -> IntArray:
+        """Set NaN on land and beyond the maximum time (in place, in slices of rows) and
+        count the water cells left without a time, per water body."""
+        labels, water = self.basin_labels, self.water
+        n = self.basin_sizes.size
+        per_body = np.zeros(n, dtype=np.intp)
+        step = max(1, _SLICE_CELLS // max(1, arrival.shape[1]))
+        with np.errstate(invalid="ignore"):
+            for i in range(0, arrival.shape[0], step):
+                a, w = arrival[i : i + step], water[i : i + step]
+                np.copyto(a, np.nan, where=~w)
+                if max_time_s is not None:
+                    np.copyto(a, np.nan, where=a > max_time_s)
+                missing = np.isfinite(a)
+                np.logical_not(missing, out=missing)
+                missing &= w
+                per_body += np.bincount(labels[i : i + step][missing], minlength=n)
+        return per_body
+
+    def _summarise(
+        self, arrival: FloatArray, per_body: IntArray, start: Any, elapsed: float
+    ) -> TravelTimeSummary:
         labels = self.basin_labels
-        reached_basins = np.unique(labels[reached])
-        basin_reached = np.zeros(self.basin_sizes.size, dtype=bool)
-        basin_reached[reached_basins] = True
-        missing = self.water & ~reached
-        in_reached_basin = basin_reached[labels]
-        beyond = int((missing & in_reached_basin).sum())
-        unreached = int((missing & ~in_reached_basin).sum())
-        n_basins = self.basin_sizes.size - 1
+        sizes = self.basin_sizes  # cells per body on the grid without its seam column
+        if self.plane.drop_seam:
+            sizes = sizes + np.bincount(labels[:, -1], minlength=sizes.size)
+        body_reached = per_body < sizes
+        body_reached[0] = False
+        water_cells = int(sizes[1:].sum())
+        n_missing = int(per_body[1:].sum())
+        beyond = int(per_body[body_reached].sum())
+        n_basins = sizes.size - 1
         p = start.placement
         return TravelTimeSummary(
             cells_total=int(arrival.size),
-            water_cells=int(self.water.sum()),
-            cells_reached=int(reached.sum()),
-            cells_unreached=unreached,
+            water_cells=water_cells,
+            cells_reached=water_cells - n_missing,
+            cells_unreached=n_missing - beyond,
             cells_beyond_max_time=beyond,
-            unreached_basins=int(n_basins - basin_reached[1:].sum()),
+            unreached_basins=int(n_basins - body_reached[1:].sum()),
             diagonal_joins_opened=len(self.joins_opened),
             source_start_cells=int(p.start_cells),
             source_row=int(p.row),
@@ -280,7 +354,10 @@ def prepare_medium(
     earth : {"wgs84", "sphere"}
         Figure of the Earth for lon/lat grids.
     open_diagonal : bool
-        Open diagonal-only joins between water bodies (default True).
+        Open diagonal-only joins between water bodies (default True). The
+        opened land cell takes the depth of the shallower of the two water
+        cells it joins (at least the floor depth), so that a front passes the
+        strait at the speed of the water on either side.
     min_basin_share : float
         Water bodies smaller than this share of all water, other than the
         largest, are closed basins where no source may start.
@@ -296,6 +373,13 @@ def prepare_medium(
     GridError
         A lon/lat grid beyond the latitude limit, or an unknown earth model.
 
+    Warns
+    -----
+    TtmapWarning
+        A projected grid whose CRS scales ground distances at the grid's
+        centre by more than :data:`MAX_PROJECTED_SCALE_ERROR` (1 %), e.g. Web
+        Mercator away from the equator: the times would be off by as much.
+
     Examples
     --------
     >>> from affine import Affine
@@ -305,36 +389,75 @@ def prepare_medium(
     >>> round(float(r.arrival_time_s[25, 45] / (20000 / np.sqrt(9.80665 * 4000))), 3)
     1.0
     """
-    depth = np.array(depth_m, dtype=np.float64)
+    return _prepare_medium(
+        depth_m, grid, mode=mode, period_s=period_s, floor_depth_m=floor_depth_m,
+        far_field=far_field, earth=earth, open_diagonal=open_diagonal,
+        min_basin_share=min_basin_share,
+    )
+
+
+def _prepare_medium(
+    depth_m: Any,
+    grid: Grid,
+    *,
+    mode: str,
+    period_s: float | None,
+    floor_depth_m: float,
+    far_field: bool,
+    earth: EarthModel,
+    open_diagonal: bool,
+    min_basin_share: float,
+) -> Medium:
+    # Called by prepare_medium and compute_travel_time: warnings point two frames up.
+    depth = np.array(depth_m, dtype=np.float64)  # our copy: the input is never modified
     if depth.shape != grid.shape:
         raise InputDataError(f"depth array shape {depth.shape} differs from the grid shape {grid.shape}")
-    if mode not in SPEED_MODES:
-        raise InputDataError(f"speed mode {mode!r} is unknown; choose one of {', '.join(SPEED_MODES)}")
+    check_speed_options(mode, period_s, floor_depth_m)
     if not (0.0 <= min_basin_share < 1.0):
         raise InputDataError(f"minimum basin share {min_basin_share!r} must lie in [0, 1)")
     plane = solve_plane(grid, earth=earth)
-    depth[~np.isfinite(depth)] = np.nan
-    depth = floor_depth(depth, floor_depth_m)
+    if not grid.is_geographic:
+        _warn_if_not_true_to_scale(grid)
+    # Nodata and infinities are land (NaN); shallow water gets the floor depth. In place,
+    # in slices of rows, so that the temporaries stay small.
+    water = np.empty(depth.shape, dtype=bool)
+    step = max(1, _SLICE_CELLS // max(1, depth.shape[1]))
+    with np.errstate(invalid="ignore"):
+        for i in range(0, depth.shape[0], step):
+            d, w = depth[i : i + step], water[i : i + step]
+            tmp = np.isinf(d)
+            if tmp.any():
+                np.copyto(d, np.nan, where=tmp)
+            np.greater(d, 0.0, out=w)
+            np.less(d, floor_depth_m, out=tmp)
+            tmp &= w
+            if tmp.any():
+                np.copyto(d, floor_depth_m, where=tmp)
     core = depth[:, :-1] if plane.drop_seam else depth
-    water_core = np.isfinite(core) & (core > 0.0)
+    water_core = water[:, :-1] if plane.drop_seam else water
     if not water_core.any():
         raise InputDataError(
             "the bathymetry has no water (every cell is land or nodata); check the sign convention "
             "(depth-positive grids need the depth-positive option) or the crop window"
         )
-    opened: list[tuple[int, int]] = []
-    if open_diagonal:
-        water_core, opened = open_diagonal_joins(water_core, ground=core, periodic_x=plane.periodic_x)
-        for r, c in opened:
-            core[r, c] = floor_depth_m
-    labels_core, sizes = label_water(water_core, periodic_x=plane.periodic_x)
+    bodies = connect_water(
+        water_core, ground=core, periodic_x=plane.periodic_x, open_diagonal=open_diagonal,
+        overwrite_water=True,
+    )
+    del water, water_core
+    opened = bodies.opened
+    for (r, c), g in zip(opened, bodies.opened_ground.tolist()):
+        # The opened cell carries the shallower of the two water cells it joins.
+        core[r, c] = max(g, floor_depth_m)
+    sizes = bodies.sizes
     if plane.drop_seam:
         depth[:, -1] = depth[:, 0]
-        water = np.concatenate([water_core, water_core[:, :1]], axis=1)
-        labels = np.concatenate([labels_core, labels_core[:, :1]], axis=1)
+        water = np.concatenate([bodies.water, bodies.water[:, :1]], axis=1)
+        labels = np.concatenate([bodies.labels, bodies.labels[:, :1]], axis=1)
     else:
-        water = water_core
-        labels = labels_core
+        water = bodies.water
+        labels = bodies.labels
+    del bodies
     total = int(sizes[1:].sum())
     largest = int(np.argmax(sizes[1:])) + 1
     open_basin = sizes >= min_basin_share * total
@@ -342,11 +465,19 @@ def prepare_medium(
     open_basin[largest] = True
     open_water = open_basin[labels]
 
-    speed = wave_speed_m_s(depth, mode=mode, period_s=period_s, floor_depth_m=floor_depth_m, far_field=far_field)
-    speed = np.where(water, speed, np.nan)
-    speed_plane = plane.to_solve(speed) * plane.scale_factor[:, None]
-    barrier_plane = ~plane.to_solve(water)
-    speed_plane = np.where(barrier_plane, 1.0, speed_plane)
+    # Speeds on the solve plane; 1.0 (any positive value) on its barrier.
+    if plane.is_identity:
+        barrier_plane = ~water
+        speed_plane = water_speed_m_s(core, mode=mode, period_s=period_s, far_field=far_field)
+    else:
+        barrier_plane = (water[:, :-1] if plane.drop_seam else water)[plane.native_row, :]
+        np.logical_not(barrier_plane, out=barrier_plane)
+        speed_plane = core[plane.native_row, :]  # depths of the solve rows, a new array
+        water_speed_m_s(
+            speed_plane, mode=mode, period_s=period_s, far_field=far_field, out=speed_plane
+        )
+        speed_plane *= plane.scale_factor[:, None]
+    np.copyto(speed_plane, 1.0, where=barrier_plane)
     settings = {
         "speed_mode": mode,
         "period_s": period_s,
@@ -364,11 +495,31 @@ def prepare_medium(
         open_water=open_water,
         basin_labels=labels,
         basin_sizes=sizes,
-        speed_m_s=speed,
         speed_plane_m_s=speed_plane,
         barrier_plane=barrier_plane,
         joins_opened=tuple(opened),
         settings=settings,
+    )
+
+
+def _warn_if_not_true_to_scale(grid: Grid) -> None:
+    """Warn when a projected grid's CRS distorts ground distances at its centre."""
+    factors = grid.point_scale_factors()
+    if factors is None:
+        return
+    k = max(factors, key=lambda f: abs(f - 1.0))
+    if abs(k - 1.0) <= MAX_PROJECTED_SCALE_ERROR:
+        return
+    name = grid.crs.name or grid.crs.to_string()
+    code = grid.crs.to_epsg()
+    crs_text = f"{name} (EPSG:{code})" if code else name
+    warnings.warn(
+        f"the grid's CRS {crs_text} scales ground distances by {k:.3f} at the grid's centre, "
+        f"so travel times are off by about {abs(k - 1.0) * 100:.0f} %; reproject the bathymetry "
+        "to a local equal-distance CRS (UTM zone, azimuthal equidistant) or use the "
+        "longitude/latitude raster",
+        TtmapWarning,
+        stacklevel=4,
     )
 
 
@@ -398,8 +549,9 @@ def compute_travel_time(
     >>> r.summary.cells_reached
     1600
     """
-    medium = prepare_medium(
+    medium = _prepare_medium(
         depth_m, grid, mode=mode, period_s=period_s, floor_depth_m=floor_depth_m,
-        far_field=far_field, earth=earth,
+        far_field=far_field, earth=earth, open_diagonal=True,
+        min_basin_share=DEFAULT_MIN_BASIN_SHARE,
     )
     return medium.travel_time(source, max_time_s=max_time_s, snap_radius_m=snap_radius_m)

@@ -34,7 +34,7 @@ def test_label_water_counts_four_connected_bodies():
         """
     )
     labels, sizes = label_water(water)
-    assert labels.dtype == np.intp
+    assert labels.dtype == np.uint16  # the smallest type for the count
     assert (labels[~water] == 0).all() and (labels[water] > 0).all()
     assert sorted(np.unique(labels).tolist()) == [0, 1, 2, 3]  # consecutive
     assert labels[0, 0] == labels[1, 1]
@@ -175,3 +175,54 @@ def test_open_diagonal_joins_across_the_seam():
     assert label_water(out, periodic_x=True)[1].size == 2
     r, c = opened[0]
     assert (r, c) in [(0, 2), (1, 0)]  # the land cells of the block spanning the seam
+
+
+# ------------------------------------------------------------------ connect_water
+
+
+def test_connect_water_equals_opening_then_labelling():
+    rng = np.random.default_rng(7)
+    for _ in range(200):
+        rows, cols = (int(v) for v in rng.integers(2, 25, 2))
+        water = rng.random((rows, cols)) < rng.uniform(0.3, 0.8)
+        ground = rng.normal(size=(rows, cols))
+        ground[rng.random((rows, cols)) < 0.1] = np.nan
+        for periodic in (False, True):
+            opened_water, opened = open_diagonal_joins(water, ground=ground, periodic_x=periodic)
+            labels, sizes = label_water(opened_water, periodic_x=periodic)
+            bodies = connectivity.connect_water(water, ground=ground, periodic_x=periodic)
+            assert bodies.opened == opened
+            assert_array_equal(bodies.water, opened_water)
+            assert bodies.labels.dtype == np.uint16
+            # The same bodies (numbered alike, except that on wrapping grids a body whose
+            # first cell is an opened one may take another number).
+            pairs = set(zip(labels.ravel().tolist(), bodies.labels.ravel().tolist()))
+            assert len(pairs) == len({a for a, _ in pairs}) == len({b for _, b in pairs})
+            if not periodic:
+                assert_array_equal(bodies.labels, labels)
+            assert sorted(bodies.sizes.tolist()) == sorted(sizes.tolist())
+
+
+def test_connect_water_reports_the_shallower_depth_of_each_pair():
+    water = _w(
+        """
+        ~~#~~
+        ~#~~~
+        """
+    )
+    depth = np.array([[40.0, 40.0, -3.0, 9.0, 9.0], [40.0, -1.0, 12.0, 9.0, 9.0]])
+    bodies = connectivity.connect_water(water, ground=depth)
+    assert bodies.opened == [(1, 1)]  # the lower land cell of the block
+    assert bodies.opened_ground.tolist() == [12.0]  # min(40 at (0, 1), 12 at (1, 2))
+    assert bodies.sizes.tolist() == [1, 9]
+    none = connectivity.connect_water(water, ground=depth, open_diagonal=False)
+    assert none.opened == [] and none.sizes.tolist() == [2, 3, 5]
+    assert_array_equal(none.water, water)
+
+
+def test_labels_widen_to_int32_beyond_65535_bodies():
+    water = np.zeros((600, 600), dtype=bool)
+    water[::2, ::2] = True  # 90 000 single-cell bodies, no diagonal touches
+    labels, sizes = label_water(water)
+    assert labels.dtype == np.int32 and int(labels.max()) == 90_000
+    assert sizes.size == 90_001 and (sizes[1:] == 1).all()

@@ -133,6 +133,51 @@ def test_inputs_are_not_modified():
         assert_array_equal(a, b)
 
 
+def test_borrowed_speed_gives_the_same_times_and_is_restored():
+    rng = np.random.default_rng(3)
+    speed = rng.uniform(1.0, 3.0, (ROWS, COLS))
+    barrier = np.zeros((ROWS, COLS), dtype=bool)
+    barrier[2:9, 20] = True
+    speed[barrier] = 1.0
+    before = speed.copy()
+    copied = _solve(speed, barrier)
+    assert_array_equal(speed, before)
+    borrowed = _solve(speed, barrier, borrow_speed=True)
+    assert_array_equal(borrowed, copied)
+    assert_array_equal(speed, before)  # the frozen cells' speeds were put back
+
+
+def test_borrowed_speed_is_restored_when_scikit_fmm_fails(monkeypatch):
+    import skfmm
+
+    speed = np.full((ROWS, COLS), 3.0)  # the band times of _solve are for 2.0: cells change
+    before = speed.copy()
+    seen = {}
+
+    def failing(phi, sp, **kw):
+        seen["changed"] = not np.array_equal(sp, before)
+        raise ValueError("boom")
+
+    monkeypatch.setattr(skfmm, "travel_time", failing)
+    with pytest.raises(SolverError, match="scikit-fmm failed: boom"):
+        _solve(speed, borrow_speed=True)
+    assert seen["changed"]  # the array was lent, not copied ...
+    assert_array_equal(speed, before)  # ... and restored
+
+
+def test_barrier_speeds_are_never_passed_on_as_nan():
+    # NaN on the barrier is allowed: such an array is copied with 1.0 there, even when
+    # it is lent, and left as it was.
+    speed = np.full((ROWS, COLS), 2.0)
+    barrier = np.zeros((ROWS, COLS), dtype=bool)
+    barrier[:, 30] = True
+    speed[barrier] = np.nan
+    before = speed.copy()
+    t = _solve(speed, barrier, borrow_speed=True)
+    assert_array_equal(speed, before)
+    assert np.isfinite(t[:, 7:30]).all()
+
+
 # ------------------------------------------------------------------ errors
 
 

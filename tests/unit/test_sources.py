@@ -381,3 +381,61 @@ def test_regional_grid_past_180_accepts_either_longitude_convention():
     assert 15 <= r1.summary.source_start_cells <= 30
     with pytest.raises(SourceError, match=r"\(lon 169.0000, lat -10.0000\) lies outside the grid"):
         medium.travel_time(Source.point(169.0, -10.0))
+
+
+@pytest.mark.parametrize("seam", [False, True])
+def test_area_on_lonlat_grid_is_exactly_zero_on_native_cells_inside(seam):
+    # 0.2-degree cells at 50-62 N: the Mercator rows are finer than the native rows and
+    # do not line up with them, so times carried back from the rows near the area's edge
+    # are interpolated. Native cells whose centres lie inside must still start at 0.
+    if seam:  # a global grid whose last column repeats the first
+        grid = Grid((60, 1801), Affine(0.2, 0, -180.1, 0, -0.2, 62.0), "EPSG:4326")
+        assert grid.has_seam_column
+        area = shapely.box(-183.05, 53.05, -176.95, 57.05)  # across the seam
+    else:
+        grid = Grid((60, 90), Affine(0.2, 0, 140.0, 0, -0.2, 62.0), "EPSG:4326")
+        area = shapely.box(144.05, 53.05, 151.05, 57.05)
+    medium = prepare_medium(np.full(grid.shape, 3000.0), grid)
+    result = medium.travel_time(Source.from_geometry(area))
+    t = result.arrival_time_s
+    rows, cols = np.mgrid[0 : grid.rows, 0 : grid.cols]
+    lon, lat = grid.xy(rows, cols)
+    lon = np.where(lon > 0.5 * (area.bounds[0] + area.bounds[2]) + 180.0, lon - 360.0, lon)
+    lon = np.where(lon < 0.5 * (area.bounds[0] + area.bounds[2]) - 180.0, lon + 360.0, lon)
+    inside = shapely.contains_xy(area, lon, lat)
+    if seam:
+        inside[:, -1] = inside[:, 0]
+    assert inside.sum() > 100
+    assert (t[inside] == 0.0).all()
+    assert (t[~inside] > 0.0).all()
+    # The summary counts native cells inside (a seam column counted once).
+    expected = int(inside[:, :-1].sum()) if seam else int(inside.sum())
+    assert result.summary.source_start_cells == expected
+
+
+def _global_with_land_east_of(col: int) -> tuple[Grid, np.ndarray]:
+    grid = Grid((40, 360), Affine(1.0, 0, -180.0, 0, -1.0, 20.0), "EPSG:4326")
+    depth = np.full(grid.shape, 3000.0)
+    depth[16:23, (col + 2) % 360] = -10.0  # a wall 2 cells east of the source's cell
+    return grid, depth
+
+
+def test_point_next_to_land_on_a_wrapping_grid_matches_a_crop():
+    # Along the columns of a wrapping grid scikit-fmm freezes start-region cells next to
+    # land as if the land were outside the region; they must get their exact times too.
+    grid, depth = _global_with_land_east_of(180)
+    src = Source.point(0.4, 0.3)  # column 180
+    t = prepare_medium(depth, grid).travel_time(src).arrival_time_s
+    crop = Grid((40, 120), Affine(1.0, 0, -60.0, 0, -1.0, 20.0), "EPSG:4326")
+    t_crop = prepare_medium(depth[:, 120:240], crop).travel_time(src).arrival_time_s
+    # Near the source no path wraps around the globe: the two solves agree.
+    np.testing.assert_allclose(t[:, 150:210], t_crop[:, 30:90], rtol=1e-9)
+
+
+def test_point_next_to_land_across_the_seam_of_a_wrapping_grid():
+    grid, depth = _global_with_land_east_of(359)  # the wall is in column 1, across the seam
+    t = prepare_medium(depth, grid).travel_time(Source.point(179.4, 0.3)).arrival_time_s
+    ref_grid, ref_depth = _global_with_land_east_of(180)
+    ref = prepare_medium(ref_depth, ref_grid).travel_time(Source.point(0.4, 0.3)).arrival_time_s
+    # The same set-up half a turn away (columns shifted by 179).
+    np.testing.assert_allclose(np.roll(t, -179, axis=1)[:, 150:210], ref[:, 150:210], rtol=1e-9)

@@ -14,12 +14,13 @@ from numpy.testing import assert_allclose
 
 from ttmap.errors import InputDataError
 from ttmap.physics import speed as speed_module
-from ttmap.physics.dispersion import group_speed_m_s
+from ttmap.physics.dispersion import group_speed_m_s, long_wave_speed_m_s
 from ttmap.physics.speed import (
     DEFAULT_FLOOR_DEPTH_M,
     SPEED_MODES,
     far_field_effective_depth_m,
     floor_depth,
+    water_speed_m_s,
     wave_speed_m_s,
 )
 
@@ -192,3 +193,34 @@ def test_period_refused_for_long_wave_mode():
         InputDataError, match=r"a wave period \(300.0 s\) only applies to the group and phase"
     ):
         wave_speed_m_s(100.0, period_s=300.0)
+
+
+# ------------------------------------------------------------------ the engine's fast path
+
+
+@pytest.mark.parametrize(
+    ("mode", "period_s", "far_field"),
+    [("long-wave", None, False), ("long-wave", None, True), ("group", 300.0, False),
+     ("phase", 600.0, True)],
+)
+def test_water_speed_is_bit_for_bit_wave_speed(mode, period_s, far_field):
+    rng = np.random.default_rng(5)
+    depth = rng.uniform(-50.0, 7000.0, (40, 50))
+    depth[rng.random(depth.shape) < 0.1] = np.nan
+    depth[0, :3] = [np.inf, -np.inf, 2.0]
+    expected = wave_speed_m_s(depth, mode=mode, period_s=period_s, far_field=far_field)
+    d = floor_depth(depth, DEFAULT_FLOOR_DEPTH_M)
+    land = ~(np.isfinite(d) & (d > 0.0))
+    before = d.copy()
+    got = water_speed_m_s(d, land=land, mode=mode, period_s=period_s, far_field=far_field)
+    np.testing.assert_array_equal(got, expected)  # NaN where NaN, equal elsewhere
+    np.testing.assert_array_equal(d, before)  # the input is left alone
+    d[land] = np.nan  # or land marked NaN in the depths themselves
+    got = water_speed_m_s(d, mode=mode, period_s=period_s, far_field=far_field)
+    np.testing.assert_array_equal(got, expected)
+    if mode == "long-wave" and not far_field:
+        np.testing.assert_array_equal(got, long_wave_speed_m_s(floor_depth(depth)))
+    # In place, into the depth array itself.
+    out = water_speed_m_s(d, mode=mode, period_s=period_s, far_field=far_field, out=d)
+    assert out is d
+    np.testing.assert_array_equal(d, expected)

@@ -20,6 +20,7 @@ from ttmap import (
     prepare_medium,
 )
 from ttmap import traveltime as traveltime_module
+from ttmap.errors import TtmapWarning
 
 G_M_S2 = 9.80665  # standard gravity, exact (3rd CGPM 1901; REFERENCE.md section 9 [S])
 
@@ -75,7 +76,7 @@ def test_medium_fields():
     depth = _depth()
     medium = prepare_medium(depth, _grid())
     assert medium.joins_opened == ((10, 2),)
-    assert medium.depth_m[10, 2] == 5.0  # opened land gets the floor depth
+    assert medium.depth_m[10, 2] == 50.0  # opened land: the depth of the water it joins
     assert medium.depth_m[5, 4] == 5.0  # shallow water raised to the floor depth
     assert np.isnan(medium.depth_m[0, 0])
     assert medium.water.sum() == int((depth > 0).sum()) + 1
@@ -83,6 +84,10 @@ def test_medium_fields():
     assert np.isnan(medium.speed_m_s[~medium.water]).all()
     assert medium.speed_m_s[5, 4] == pytest.approx(np.sqrt(G_M_S2 * 5.0), rel=1e-14)
     assert_array_equal(medium.barrier_plane, ~medium.water)  # projected: the grid itself
+    # Native speed: computed on request, the solve speed itself on projected grids.
+    assert_array_equal(medium.speed_m_s[medium.water], medium.speed_plane_m_s[medium.water])
+    assert (medium.speed_plane_m_s[medium.barrier_plane] == 1.0).all()
+    assert medium.basin_labels.dtype == np.uint16
     assert medium.settings == {
         "speed_mode": "long-wave",
         "period_s": None,
@@ -92,6 +97,41 @@ def test_medium_fields():
         "open_diagonal": True,
         "min_basin_share": 0.01,
     }
+
+
+@pytest.mark.parametrize(
+    ("pond_m", "strait_m", "expected_m"),
+    [(50.0, 50.0, 50.0), (30.0, 50.0, 30.0), (50.0, 20.0, 20.0), (2.0, 50.0, 5.0)],
+)
+def test_opened_join_gets_the_shallower_depth_of_its_water_pair(pond_m, strait_m, expected_m):
+    depth = _depth()
+    depth[10, 1] = pond_m  # the pond's corner cell
+    depth[11, 2] = strait_m  # the sea's corner cell
+    medium = prepare_medium(depth, _grid())
+    assert medium.joins_opened == ((10, 2),)
+    # The shallower of the two (after the floor depth), not the floor depth itself.
+    assert medium.depth_m[10, 2] == expected_m
+    assert medium.speed_plane_m_s[10, 2] == np.sqrt(G_M_S2 * expected_m)
+
+
+def test_front_through_an_opened_join_is_not_delayed():
+    # A deep pond joined to a deep sea only at a corner: the front crosses the opened
+    # cell at the deep-water speed, as if the corner were open water (it is, on a real
+    # coast). With the floor depth there it would lose about a cell at 7 m/s.
+    n, c_deep = 30, np.sqrt(G_M_S2 * 2000.0)
+    depth = np.full((n, n), 2000.0)
+    depth[:, 14:16] = -10.0  # wall
+    depth[10, 14] = 2000.0  # west body reaches (10, 14) ...
+    depth[11, 15] = 2000.0  # ... east body reaches (11, 15): a corner touch
+    medium = prepare_medium(depth, _grid(n))
+    assert medium.joins_opened == ((10, 15),)  # equal land: the first of the pair
+    assert medium.depth_m[10, 15] == 2000.0
+    t = medium.travel_time(Source.point_xy(5_500.0, 19_500.0)).arrival_time_s
+    # Lower bound: the straight path through the opened cell at the deep speed; upper:
+    # the same plus one cell (it is not slowed to the floor-depth speed).
+    x, y = _grid(n).xy(np.array([10, 15]), np.array([15, 25]))
+    via = np.hypot(x[0] - 5_500.0, y[0] - 19_500.0) + np.hypot(x[1] - x[0], y[1] - y[0])
+    assert via / c_deep * 0.99 < t[15, 25] < (via + 1000.0) / c_deep
 
 
 def test_compute_travel_time_equals_the_two_steps():
@@ -258,3 +298,42 @@ def test_bad_snap_radius(bad):
         InputDataError, match=rf"snap radius {bad!r} m must be a non-negative number"
     ):
         medium.travel_time(Source.point_xy(15_500.0, 15_500.0), snap_radius_m=bad)
+
+
+# ------------------------------------------------------------------ projected scale warning
+
+
+def _mercator_grid(y0_m: float) -> Grid:
+    return Grid((30, 30), Affine(1000.0, 0, 0, 0, -1000.0, y0_m), "EPSG:3857")
+
+
+def test_web_mercator_away_from_the_equator_warns_at_the_users_call():
+    grid = _mercator_grid(5_000_000.0)  # about 41 N: Web Mercator scale 1.32
+    depth = np.full(grid.shape, 1000.0)
+    pattern = (
+        r"the grid's CRS WGS 84 / Pseudo-Mercator \(EPSG:3857\) scales ground distances by "
+        r"1\.3\d\d at the grid's centre, so travel times are off by about 3\d %; reproject "
+        r"the bathymetry to a local equal-distance CRS \(UTM zone, azimuthal equidistant\) "
+        r"or use the longitude/latitude raster"
+    )
+    with pytest.warns(TtmapWarning, match=pattern) as rec:
+        prepare_medium(depth, grid)
+    assert len(rec) == 1 and rec[0].filename == __file__
+    with pytest.warns(TtmapWarning, match=pattern) as rec:
+        compute_travel_time(depth, grid, Source.point_xy(15_500.0, 4_985_500.0))
+    assert len(rec) == 1 and rec[0].filename == __file__
+
+
+def test_true_to_scale_projected_grids_are_silent(recwarn):
+    depth = np.full((30, 30), 1000.0)
+    prepare_medium(depth, _grid())  # UTM zone 1, 500 km from its central meridian
+    prepare_medium(depth, _mercator_grid(30_000.0))  # Web Mercator at the equator: 1.00000
+    assert not [w for w in recwarn if issubclass(w.category, TtmapWarning)]
+
+
+def test_scale_factors_of_a_grid_centre():
+    assert _mercator_grid(5_000_000.0).point_scale_factors()[0] == pytest.approx(
+        1.0 / np.cos(np.radians(40.9)), rel=2e-3  # Web Mercator: sec(latitude) [map definition]
+    )
+    geo = Grid((10, 10), Affine(1, 0, 0, 0, -1, 10), "EPSG:4326")
+    assert geo.point_scale_factors() is None

@@ -44,10 +44,10 @@ from typing import Any
 
 import numpy as np
 
-from ttmap._typing import FloatArray
+from ttmap._typing import BoolArray, FloatArray
 from ttmap.errors import InputDataError
 from ttmap.physics.constants import G_M_S2, SEAWATER_SOUND_SPEED_M_S
-from ttmap.physics.dispersion import group_speed_m_s, long_wave_speed_m_s, phase_speed_m_s
+from ttmap.physics.dispersion import group_speed_m_s, phase_speed_m_s
 
 __all__ = [
     "DEFAULT_FLOOR_DEPTH_M",
@@ -55,6 +55,8 @@ __all__ = [
     "floor_depth",
     "far_field_effective_depth_m",
     "wave_speed_m_s",
+    "water_speed_m_s",
+    "check_speed_options",
 ]
 
 #: Default floor depth in metres (see module notes; common practice).
@@ -74,11 +76,10 @@ def floor_depth(depth_m: Any, floor_depth_m: float = DEFAULT_FLOOR_DEPTH_M) -> F
     >>> floor_depth([-3.0, 0.5, 12.0, np.nan], 5.0).tolist()
     [-3.0, 5.0, 12.0, nan]
     """
-    if not np.isfinite(floor_depth_m) or floor_depth_m <= 0.0:
-        raise InputDataError(f"floor depth {floor_depth_m!r} m must be a positive number of metres")
+    _check_floor_depth(floor_depth_m)
     d = np.array(depth_m, dtype=np.float64)
-    shallow = (d > 0.0) & (d < floor_depth_m)
-    d[shallow] = floor_depth_m
+    with np.errstate(invalid="ignore"):
+        np.maximum(d, floor_depth_m, out=d, where=d > 0.0)
     return d
 
 
@@ -133,21 +134,107 @@ def wave_speed_m_s(
     >>> round(float(wave_speed_m_s(4000.0, mode="group", period_s=300.0) / 198.06), 3)
     0.914
     """
+    check_speed_options(mode, period_s, floor_depth_m)
+    d = floor_depth(depth_m, floor_depth_m)
+    with np.errstate(invalid="ignore"):
+        np.copyto(d, np.nan, where=~(np.isfinite(d) & (d > 0.0)))
+    return _water_speed_m_s(d, mode=mode, period_s=period_s, far_field=far_field)
+
+
+def check_speed_options(mode: str, period_s: float | None, floor_depth_m: float) -> None:
+    """Raise :class:`InputDataError` for an unknown mode, a period that does not fit the
+    mode, or a floor depth that is not a positive number of metres.
+
+    Examples
+    --------
+    >>> check_speed_options("group", 300.0, 5.0)  # fine: returns None
+    """
     if mode not in SPEED_MODES:
         raise InputDataError(f"speed mode {mode!r} is unknown; choose one of {', '.join(SPEED_MODES)}")
-    d = floor_depth(depth_m, floor_depth_m)
-    d = np.where(d > 0.0, d, np.nan)
-    if far_field:
-        d = far_field_effective_depth_m(d)
+    _check_floor_depth(floor_depth_m)
     if mode == "long-wave":
         if period_s is not None:
             raise InputDataError(
                 f"a wave period ({period_s} s) only applies to the group and phase speed modes; "
                 "drop it or choose mode 'group'"
             )
-        return long_wave_speed_m_s(d)
-    if period_s is None:
+    elif period_s is None:
         raise InputDataError(f"speed mode {mode!r} needs a wave period; give period_s (seconds)")
+
+
+def _check_floor_depth(floor_depth_m: float) -> None:
+    if not np.isfinite(floor_depth_m) or floor_depth_m <= 0.0:
+        raise InputDataError(f"floor depth {floor_depth_m!r} m must be a positive number of metres")
+
+
+def water_speed_m_s(
+    depth_m: FloatArray,
+    *,
+    land: BoolArray | None = None,
+    mode: str = "long-wave",
+    period_s: float | None = None,
+    far_field: bool = False,
+    out: FloatArray | None = None,
+) -> FloatArray:
+    """Wave speed of depths already raised to the floor depth: the engine's fast path.
+
+    :func:`wave_speed_m_s` without the floor depth, the land test and the
+    copies they make: the long-wave speed takes one pass into one new array.
+    The options are assumed checked (:func:`check_speed_options`).
+
+    Parameters
+    ----------
+    depth_m : ndarray, float64, metres, positive down
+        Water depths, at least the floor depth on water. Not modified.
+    land : ndarray of the same shape, bool, optional
+        Cells that get NaN whatever their depth; without it, ``depth_m``
+        must be NaN (or <= 0) on land.
+    mode, period_s, far_field
+        As for :func:`wave_speed_m_s`.
+    out : ndarray, float64, optional
+        Where to write the speeds; may be ``depth_m`` itself (in place).
+
+    Returns
+    -------
+    ndarray, float64, m/s
+        ``out``, or a new array of the shape of ``depth_m``; NaN on land. Bit
+        for bit the values of :func:`wave_speed_m_s` on water.
+
+    Examples
+    --------
+    >>> water_speed_m_s(np.array([4000.0, -3.0])).round(2).tolist()
+    [198.06, nan]
+    """
+    d = np.asarray(depth_m, dtype=np.float64)
+    with np.errstate(invalid="ignore"):
+        if mode == "long-wave" and not far_field:
+            out = np.multiply(d, G_M_S2, out=out)
+            np.sqrt(out, out=out)  # sqrt(g h) as long_wave_speed_m_s computes it; land: NaN
+        else:
+            w = np.where(d > 0.0, d, np.nan)
+            if land is not None:
+                np.copyto(w, np.nan, where=land)
+            c = _water_speed_m_s(w, mode=mode, period_s=period_s, far_field=far_field)
+            if out is None:
+                out = c
+            else:
+                out[...] = c
+    if land is not None:
+        np.copyto(out, np.nan, where=land)
+    return out
+
+
+def _water_speed_m_s(
+    d: FloatArray, *, mode: str, period_s: float | None, far_field: bool
+) -> FloatArray:
+    if far_field:
+        d = far_field_effective_depth_m(d)
+    if mode == "long-wave":
+        # sqrt(g h) element by element, as long_wave_speed_m_s computes it; NaN stays NaN.
+        np.multiply(d, G_M_S2, out=d)
+        np.sqrt(d, out=d)
+        return d[()] if d.ndim == 0 else d
+    assert period_s is not None  # checked by check_speed_options
     if mode == "group":
         return np.asarray(group_speed_m_s(d, period_s), dtype=np.float64)
     return np.asarray(phase_speed_m_s(d, period_s), dtype=np.float64)
