@@ -2,21 +2,27 @@
 
 Run from the repository root (ttmap need not be installed)::
 
-    python benchmarks/bench_cli.py            # 2000 x 2000 projected and 7200 x 4800 geographic
-    python benchmarks/bench_cli.py --quick    # the 2000 x 2000 case only
+    python benchmarks/bench_cli.py                  # 2000 x 2000 projected and 7200 x 4800 geographic
+    python benchmarks/bench_cli.py --quick          # the 2000 x 2000 case only
+    python benchmarks/bench_cli.py --coast rough    # cell-scale speckle coasts (the stress case)
+    python benchmarks/bench_cli.py --write-stages   # also time the products one by one
 
 For each case the script
 
 1. writes a test bathymetry GeoTIFF with rasterio into a temporary folder
    (float32 elevation, negative below sea level, tiled and DEFLATE-compressed;
-   the synthetic depth of ``bench_engine.py``, rough coastlines unless
-   ``--smooth-coast``);
+   the smooth random depth of ``bench_engine.py`` with one of three
+   coastlines, ``--coast``: ``realistic`` (the default: a coastline smoothed
+   at the cell scale but rough on scales of 8 to 100 cells, a few hundred
+   islands per 4 M cells), ``rough`` (``bench_engine.py``'s coast roughened
+   cell by cell: thousands of speckle islands, lakes and diagonal joins) or
+   ``smooth`` (no small features at all);
 2. runs ``ttmap map FILE --source ... --out DIR`` with its default products
-   (front arrival GeoTIFF and SLD, isochrone GeoPackage and SLDs, PNG map,
-   run.json) in a fresh Python process, timing the wall clock around it and
-   reading the child's peak resident memory from the kernel's resource usage
-   record of that child (``os.wait4``: the per-child form of
-   ``getrusage(RUSAGE_CHILDREN)``);
+   (front arrival GeoTIFF and SLD, isochrone GeoPackage and SLDs, coastal
+   arrival GeoPackage and SLD, PNG map, run.json) in a fresh Python process,
+   timing the wall clock around it and reading the child's peak resident
+   memory from the kernel's resource usage record of that child
+   (``os.wait4``: the per-child form of ``getrusage(RUSAGE_CHILDREN)``);
 3. times the raw ``skfmm.travel_time(phi, speed, dx, order=2, periodic=...)``
    call on the same grid in another fresh process (for the geographic grid: on
    the Mercator solve-plane arrays ttmap builds, the arrays a correct solve on
@@ -26,7 +32,9 @@ For each case the script
    from the same resource record; ``time.process_time`` for the raw call),
    their ratios, the memory figures, and the per-stage timings the job wrote
    to run.json (``timings_s``). CPU time is the steadier figure when other
-   processes compete for the cores.
+   processes compete for the cores;
+5. with ``--write-stages``, solves once more in a helper process and times
+   the write stage alone, product by product (:func:`_write_stages`).
 
 This process stays small (the arrays live in helper processes) so the
 children's ru_maxrss, a high-water mark that Linux carries over from the
@@ -48,6 +56,7 @@ import subprocess
 import sys
 import tempfile
 import time
+import warnings
 from pathlib import Path
 from typing import Any
 
@@ -63,6 +72,92 @@ import bench_engine as be
 # ---------------------------------------------------------------------------
 
 
+COASTS = ("realistic", "rough", "smooth")
+
+#: Relative amplitude and feature size (cells) of the finer shape octaves of
+#: the realistic coast, added to bench_engine's 100-cell field before the
+#: land threshold: 307 islands, 73 lakes and 9 diagonal-only water joins in
+#: the 2000 x 2000 grid (the rough coast: about 8400 closed water bodies and
+#: 10 355 diagonal joins).
+REALISTIC_OCTAVES = ((0.35, 25), (0.15, 8))
+
+
+def realistic_depth_m(rows: int, cols: int, *, seed: int = 1, land_share: float = 0.12) -> Any:
+    """Smooth random depth (m, positive down) with a realistic coast (land at -50 m).
+
+    The depth is ``bench_engine.synthetic_depth_m``'s (a random field of
+    100-cell features, cubic); the land is where that field plus finer
+    octaves (:data:`REALISTIC_OCTAVES`, also smooth) is in its top
+    ``land_share``: bays, capes and islands down to a few cells, no
+    cell-scale noise.
+    """
+    import numpy as np
+    from scipy import ndimage
+
+    rng = np.random.default_rng(seed)
+
+    def octave(cells: int) -> Any:
+        coarse = rng.standard_normal((max(4, rows // cells), max(4, cols // cells)))
+        f = ndimage.zoom(coarse, (rows / coarse.shape[0], cols / coarse.shape[1]), order=3)
+        f = f[:rows, :cols]
+        f -= f.mean()
+        f /= f.std()
+        return f
+
+    base = octave(100)
+    shape = base.copy()
+    for amplitude, cells in REALISTIC_OCTAVES:
+        shape += amplitude * octave(cells)
+    step = (max(1, rows // 500), max(1, cols // 500))
+    threshold = np.quantile(shape[:: step[0], :: step[1]], 1.0 - land_share)
+    depth = 3500.0 - 600.0 * base
+    depth[shape > threshold] = -50.0
+    return depth
+
+
+def _case(spec: dict[str, Any]) -> dict[str, Any]:
+    """bench_engine's projected or geographic case, with the coast ``spec['coast']``."""
+    from affine import Affine
+
+    coast = spec.get("coast", "realistic")
+    rows, cols = spec["rows"], spec["cols"]
+    seed = 1 if spec["kind"] == "projected" else 2  # as in bench_engine
+    if coast == "realistic":
+        depth = realistic_depth_m(rows, cols, seed=seed)
+    else:
+        roughness = 0.0 if coast == "smooth" else be.COAST_ROUGHNESS
+        depth = be.synthetic_depth_m(rows, cols, seed=seed, roughness=roughness)
+    if spec["kind"] == "projected":
+        cell = spec["cell_m"]
+        row, col = rows // 2, cols // 2
+        transform = Affine(cell, 0.0, 0.0, 0.0, -cell, rows * cell)
+        crs, kind = "EPSG:3857", "xy"
+    else:
+        transform = Affine(spec["res_deg"], 0.0, spec["west"], 0.0, -spec["res_deg"], spec["north"])
+        col, row = (int(v) for v in ~transform * tuple(spec["src"]))
+        crs, kind = "EPSG:4326", "lonlat"
+    be.deep_patch(depth, row, col)
+    x, y = transform * (col + 0.5, row + 0.5)
+    return {
+        "name": spec["name"],
+        "depth": depth,
+        "transform": tuple(transform)[:6],
+        "crs": crs,
+        "source": (kind, float(x), float(y)),
+    }
+
+
+def _coast_counts(depth: Any) -> dict[str, int]:
+    """Islands (8-connected land) and closed water bodies (4-connected, minus the sea)."""
+    import numpy as np
+    from scipy import ndimage
+
+    land = depth <= 0.0
+    islands = ndimage.label(land, structure=np.ones((3, 3), dtype=bool))[1]
+    waters = ndimage.label(~land)[1]
+    return {"islands": int(islands), "closed_water_bodies": max(int(waters) - 1, 0)}
+
+
 def _write_case(spec: dict[str, Any], folder: str) -> dict[str, Any]:
     """Make the synthetic grid, write its GeoTIFF and the raw-call inputs."""
     import numpy as np
@@ -71,21 +166,7 @@ def _write_case(spec: dict[str, Any], folder: str) -> dict[str, Any]:
 
     from ttmap.traveltime import prepare_medium
 
-    if spec["kind"] == "projected":
-        case = be.projected_case(
-            spec["cols"], spec["rows"], cell_m=spec["cell_m"], roughness=spec.get("roughness")
-        )
-    else:
-        case = be.geographic_case(
-            spec["cols"],
-            spec["rows"],
-            spec["west"],
-            spec["north"],
-            spec["res_deg"],
-            tuple(spec["src"]),
-            name=spec["name"],
-            roughness=spec.get("roughness"),
-        )
+    case = _case(spec)
     depth = case["depth"]
     tif = Path(folder) / "bathymetry.tif"
     profile = {
@@ -120,6 +201,7 @@ def _write_case(spec: dict[str, Any], folder: str) -> dict[str, Any]:
         if kind == "lonlat"
         else [f"--source-xy={a!r},{b!r}"],
         "cells": int(depth.size),
+        **_coast_counts(depth),
         "plane_shape": list(medium.plane.shape),
         "dx": raw["dx"],
         "periodic": raw["periodic"],
@@ -158,6 +240,88 @@ def _raw_solve(folder: str, dx: list[float], periodic: list[bool], repeat: int) 
         "times_s": times,
         "total_mib": peak - base,
         "call_mib": peak - loaded,
+    }
+
+
+def _feature_counts(out_dir: str) -> dict[str, int]:
+    """Features per layer of the vector products of one run (read in a helper process)."""
+    import pyogrio
+
+    counts: dict[str, int] = {}
+    for gpkg in sorted(Path(out_dir).glob("*.gpkg")):
+        for name, _ in pyogrio.list_layers(gpkg):
+            counts[f"{gpkg.stem}:{name}"] = int(pyogrio.read_info(gpkg, layer=name)["features"])
+    return counts
+
+
+#: What ``--write-stages`` times inside the write stage: (module, function, label).
+WRITE_STAGES = (
+    ("ttmap.io.raster", "write_arrival_geotiff", "arrival GeoTIFF (own thread)"),
+    ("ttmap.mapjob", "_coast_table", "coastal stretches"),
+    ("ttmap.products.isochrones", "isochrone_lines_and_bands", "isochrone lines and bands"),
+    ("ttmap.io.vector", "write_vector_layers", "GeoPackages (isochrones, coast)"),
+    ("ttmap.products.coast", "coast_layer", "coastal layer records"),
+    ("ttmap.products.maps", "render_arrival_map", "map: drawing"),
+    ("ttmap.products.maps", "save_figure", "map: PNG file"),
+)
+
+
+def _write_stages(tif: str, source_args: list[str], out_dir: str) -> dict[str, Any]:
+    """Solve once, then time the write stage alone, product by product (``--write-stages``).
+
+    Runs ``ttmap.mapjob._write_products`` as ``ttmap map`` does, with each
+    function of :data:`WRITE_STAGES` wrapped to record its wall time and the
+    CPU time of the thread that ran it. matplotlib is imported first and
+    timed apart (the CLI pays it inside the write stage).
+    """
+    import functools
+    import importlib
+
+    t0 = time.perf_counter()
+    for name in ("matplotlib.figure", "matplotlib.backends.backend_agg", "matplotlib.collections"):
+        importlib.import_module(name)
+    mpl_import_s = time.perf_counter() - t0
+    from ttmap import mapjob
+    from ttmap.io.raster import read_bathymetry
+    from ttmap.sources import Source
+    from ttmap.traveltime import prepare_medium
+
+    option, value = source_args[0].split("=", 1)
+    a, b = (float(v) for v in value.split(","))
+    source = Source.point(a, b) if option == "--source" else Source.point_xy(a, b)
+    bathy = read_bathymetry(tif)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")  # the CLI run printed them already
+        medium = prepare_medium(bathy.depth_m, bathy.grid)
+    result = medium.travel_time(source)
+    water = medium.water
+    del medium
+    stages: dict[str, list[float]] = {}
+    for module_name, name, label in WRITE_STAGES:
+        module = importlib.import_module(module_name)
+        if not hasattr(module, name):
+            continue
+        fn = getattr(module, name)
+
+        def timed(*args: Any, _fn: Any = fn, _label: str = label, **kw: Any) -> Any:
+            c, w = time.thread_time(), time.perf_counter()
+            try:
+                return _fn(*args, **kw)
+            finally:
+                got = stages.setdefault(_label, [0.0, 0.0])
+                got[0] += time.perf_counter() - w
+                got[1] += time.thread_time() - c
+
+        setattr(module, name, functools.wraps(fn)(timed))
+    Path(out_dir).mkdir(parents=True, exist_ok=True)
+    job = mapjob.MapJob(bathymetry=tif, source=source, out_dir=out_dir, overwrite=True)
+    c0, w0 = time.process_time(), time.perf_counter()
+    mapjob._write_products(job, mapjob.ProductSet("front", "long-wave", None), result, water)
+    return {
+        "wall_s": time.perf_counter() - w0,
+        "cpu_s": time.process_time() - c0,
+        "matplotlib_import_s": mpl_import_s,
+        "stages": stages,
     }
 
 
@@ -251,12 +415,24 @@ def main() -> None:
         "--keep", metavar="DIR", help="write the test files and outputs here and keep them"
     )
     ap.add_argument(
+        "--coast",
+        choices=COASTS,
+        default="realistic",
+        help="synthetic coastline: realistic (default; a few hundred islands per 4 M cells), "
+        "rough (roughened cell by cell: thousands of speckle islands and lakes) or smooth",
+    )
+    ap.add_argument(
+        "--write-stages",
+        action="store_true",
+        help="also time the write stage alone, product by product (one more solve per case)",
+    )
+    ap.add_argument(
         "--smooth-coast",
         action="store_true",
-        help="smooth coastlines (no cell-scale islands, lakes or diagonal joins)",
+        help="the same as --coast smooth (kept for older command lines)",
     )
     args = ap.parse_args()
-    roughness = 0.0 if args.smooth_coast else be.COAST_ROUGHNESS
+    coast = "smooth" if args.smooth_coast else args.coast
 
     ctx = be._context()
     if ctx.get_start_method() == "forkserver":
@@ -269,8 +445,8 @@ def main() -> None:
         f"  python {sys.version.split()[0]}, {platform.machine()}, {os.cpu_count()} CPUs; "
         f"helper processes: '{ctx.get_start_method()}'"
     )
-    print(f"  coastlines: {'smooth' if roughness == 0 else f'rough ({roughness:g})'}")
-    cases = [dict(c, roughness=roughness) for c in (CASES[:1] if args.quick else CASES)]
+    print(f"  coastlines: {coast}" + (f" ({be.COAST_ROUGHNESS:g})" if coast == "rough" else ""))
+    cases = [dict(c, coast=coast) for c in (CASES[:1] if args.quick else CASES)]
     results = []
     tmp_obj = None
     if args.keep:
@@ -290,7 +466,8 @@ def main() -> None:
             print(
                 f"  test GeoTIFF {info['tif_mib']:.0f} MiB written in {time.perf_counter() - t0:.1f} s; "
                 f"{info['cells'] / 1e6:.2f} M cells; solve plane {info['plane_shape'][0]} x "
-                f"{info['plane_shape'][1]}",
+                f"{info['plane_shape'][1]}; {info['islands']} islands, "
+                f"{info['closed_water_bodies']} closed water bodies",
                 flush=True,
             )
             runs = []
@@ -329,6 +506,22 @@ def main() -> None:
             print(
                 "  run.json timings_s (best run)  : "
                 + ", ".join(f"{k} {v:.2f}" for k, v in best["timings_s"].items())
+            )
+            if args.write_stages:
+                st = in_helper(
+                    _write_stages, info["tif"], info["source_args"], str(folder / "stages")
+                )
+                print(
+                    f"  write stage alone              : {st['wall_s']:8.2f} s wall, "
+                    f"{st['cpu_s']:.2f} s CPU (process), after importing matplotlib in "
+                    f"{st['matplotlib_import_s']:.2f} s"
+                )
+                for label, (wall, cpu) in st["stages"].items():
+                    print(f"    {label:<32} {wall:6.2f} s wall {cpu:6.2f} s CPU (its thread)")
+            counts = in_helper(_feature_counts, str(folder / "out0"))
+            print(
+                "  features written               : "
+                + ", ".join(f"{k} {v}" for k, v in counts.items())
             )
             s = best["summary"]
             if s:

@@ -40,6 +40,7 @@ import sys
 import time
 import warnings
 from collections.abc import Callable, Sequence
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, cast
@@ -350,12 +351,15 @@ def run_map_job(job: MapJob, *, progress: Callable[[str], None] | None = None) -
         if i == 1:
             out.mkdir(parents=True, exist_ok=True)
             check_writable(planned, job.overwrite)
-        files = _write_products(job, pset, result, medium.water, site_marks)
+        water = medium.water
+        if sites is not None and pset.mode == "long-wave":
+            front_depth_m = medium.depth_m
+        del medium  # the speeds and labels are not needed for the products: free them first
+        files = _write_products(job, pset, result, water, site_marks)
+        del water
         written += [str(p) for p in files]
         if sites is not None and pset.mode in ("long-wave", "group"):
             kept[pset.key] = result
-            if pset.mode == "long-wave":
-                front_depth_m = medium.depth_m
         t4 = time.perf_counter()
         timings[f"{pset.key}.speeds_s"] = t2 - t1
         timings[f"{pset.key}.solve_s"] = t3 - t2
@@ -367,7 +371,6 @@ def run_map_job(job: MapJob, *, progress: Callable[[str], None] | None = None) -
             **result.summary.as_dict(),
             "arrival_min_range": _range_min(result),
         }
-        del medium
     site_record: dict[str, Any] | None = None
     if sites is not None:
         t5 = time.perf_counter()
@@ -661,13 +664,20 @@ def _run_record(job: MapJob, bathy: Any, sets: list[ProductSet], summaries: dict
     }
 
 
+def _latest_min(time_min: np.ndarray) -> float | None:
+    """The latest finite arrival, minutes; None if there is none (no copy of the values)."""
+    finite = np.isfinite(time_min)
+    if not finite.any():
+        return None
+    return float(np.max(time_min, where=finite, initial=-np.inf))
+
+
 def _levels(job: MapJob, time_min: np.ndarray) -> np.ndarray:
     from ttmap.products.isochrones import default_levels_min, levels_from_interval
 
-    finite = time_min[np.isfinite(time_min)]
-    if finite.size == 0:
+    tmax = _latest_min(time_min)
+    if tmax is None:
         return np.array([])
-    tmax = float(finite.max())
     if job.isochrone_interval_min is not None:
         return levels_from_interval(job.isochrone_interval_min, tmax)
     return default_levels_min(tmax)
@@ -679,7 +689,7 @@ def _write_products(job: MapJob, pset: ProductSet, result: TravelTimeResult, wat
     from ttmap.io.raster import write_arrival_geotiff
     from ttmap.io.vector import VectorLayer, write_vector_layers
     from ttmap.products.cautions import CAUTION_SHORT
-    from ttmap.products.isochrones import isochrone_bands, isochrone_lines
+    from ttmap.products.isochrones import isochrone_lines_and_bands
     from ttmap.products.palette import arrival_colors_hex
     from ttmap.products.styles import bands_sld, lines_sld, raster_sld, write_sld
 
@@ -690,16 +700,22 @@ def _write_products(job: MapJob, pset: ProductSet, result: TravelTimeResult, wat
     key = pset.key
 
     tif = out / f"arrival_{key}.tif"
-    write_arrival_geotiff(
-        tif, time_min, grid, tags=_tags(job, pset, result),
-        band_description=f"arrival time of the {pset.title}, minutes after origin",
-        overwrite=job.overwrite,
-    )
+    # GDAL compresses the GeoTIFF without holding the GIL (rasterio keeps it
+    # while building overviews): write it in a second thread while this one
+    # computes the coastal stretches (numpy, which lets go of the GIL often) and
+    # the isochrones (contourpy, one short call per level). The files do not
+    # depend on the timing; an error in the GeoTIFF is raised here.
+    with ThreadPoolExecutor(max_workers=1, thread_name_prefix="ttmap-geotiff") as pool:
+        tif_done = pool.submit(
+            write_arrival_geotiff, tif, time_min, grid, tags=_tags(job, pset, result),
+            band_description=f"arrival time of the {pset.title}, minutes after origin",
+            overwrite=job.overwrite,
+        )
+        coast = _coast_table(job, time_min, water, grid) if job.coast else None
+        levels = _levels(job, time_min)
+        lines, bands = isochrone_lines_and_bands(time_min, grid.transform, levels)
+        tif_done.result()
     written.append(tif)
-
-    levels = _levels(job, time_min)
-    lines = isochrone_lines(time_min, grid.transform, levels)
-    bands = isochrone_bands(time_min, grid.transform, levels)
     n_colors = max(len(bands), 2)
     colors = arrival_colors_hex(n_colors)
     sld_r = out / f"arrival_{key}.sld"
@@ -759,8 +775,8 @@ def _write_products(job: MapJob, pset: ProductSet, result: TravelTimeResult, wat
                   overwrite=job.overwrite)
         written.append(sld_bs)
 
-    if job.coast:
-        written += _write_coast(job, pset, time_min, water, grid)
+    if coast is not None:
+        written += _write_coast(job, pset, coast, time_min, grid)
 
     if job.map_formats:
         from ttmap.products.maps import render_arrival_map, save_figure
@@ -790,16 +806,24 @@ def _write_products(job: MapJob, pset: ProductSet, result: TravelTimeResult, wat
     return written
 
 
-def _write_coast(job: MapJob, pset: ProductSet, time_min: np.ndarray, water: np.ndarray,
+def _coast_table(job: MapJob, time_min: np.ndarray, water: np.ndarray, grid: Any) -> Any:
+    """The coastal stretches of one product set, as columns (a CoastTable)."""
+    from ttmap.products.coast import coastal_arrival_table
+
+    return coastal_arrival_table(
+        time_min, water, grid.transform, class_interval_min=float(job.coast_interval_min)
+    )
+
+
+def _write_coast(job: MapJob, pset: ProductSet, segments: Any, time_min: np.ndarray,
                  grid: Any) -> list[Path]:
     """The coastal arrival layer of one product set and its style."""
-    from ttmap.products.coast import coast_classes, coast_layer, coast_sld, coastal_arrival_lines
+    from ttmap.products.coast import coast_classes, coast_layer, coast_sld
     from ttmap.products.palette import arrival_colors_hex
     from ttmap.products.styles import write_sld
 
     out = Path(job.out_dir)
     step = float(job.coast_interval_min)
-    segments = coastal_arrival_lines(time_min, water, grid.transform, class_interval_min=step)
     layer = coast_layer(
         segments,
         description=f"First-arrival minutes along the coast, by stretch of coast: {pset.title}.",
@@ -809,8 +833,8 @@ def _write_coast(job: MapJob, pset: ProductSet, time_min: np.ndarray, water: np.
     # Colour each class about as the map colours its lower bound (the map's
     # scale runs from 0 to the latest arrival), so coast and map agree.
     classes = coast_classes(segments)
-    finite = time_min[np.isfinite(time_min)]
-    n_all = max(math.ceil(float(finite.max()) / step) if finite.size else 1, 1)
+    latest = _latest_min(time_min)
+    n_all = max(math.ceil(latest / step) if latest is not None else 1, 1)
     ramp = arrival_colors_hex(n_all)
     colors = [ramp[min(round(lo / step), n_all - 1)] for lo, _, _ in classes]
     sld = out / f"coast_{pset.key}.sld"

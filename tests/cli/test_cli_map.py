@@ -675,3 +675,28 @@ def test_failed_vector_write_leaves_no_partial_file(
     assert leftovers(out) == []
     assert not [n for n in names if n.startswith("isochrones_front")]
     assert not [n for n in names if n.startswith(".")]
+
+
+def test_failed_geotiff_write_in_its_thread_is_reported(
+    run_cli, spec, utm_bathymetry, tmp_path, monkeypatch
+):
+    """The GeoTIFF is written in a second thread; its error still ends the run cleanly."""
+    import threading
+
+    from ttmap.errors import TtmapError
+    from ttmap.io import raster
+
+    threads = []
+
+    def fail(*args, **kw):
+        threads.append(threading.current_thread().name)
+        raise TtmapError("writing raster 'arrival_front.tif' failed (disk full)")
+
+    monkeypatch.setattr(raster, "write_arrival_geotiff", fail)
+    out = tmp_path / "out"
+    x, y = spec.UTM_SOURCE_XY
+    result = run_cli("map", utm_bathymetry, "--source-xy", f"{x},{y}", "--out", out)
+    assert "disk full" in _one_line_error(result)
+    assert threads and threads[0].startswith("ttmap-geotiff")
+    assert product_files(out) == set()  # raised before any other product was written
+    assert leftovers(out) == []

@@ -29,10 +29,12 @@ from ttmap.products.coast import (
     COAST_LAYER_NAME,
     UNREACHED_LABEL,
     CoastSegment,
+    CoastTable,
     coast_classes,
     coast_layer,
     coast_sld,
     coastal_arrival_lines,
+    coastal_arrival_table,
 )
 from ttmap.products.palette import arrival_colors_hex
 
@@ -274,6 +276,45 @@ def test_empty_layer_has_typed_columns() -> None:
     layer = coast_layer([])
     assert layer.attributes["minutes"].dtype == np.float64
     assert layer.attributes["reached"].dtype == np.bool_
+
+
+@pytest.mark.parametrize("levels", [None, [3.0, 20.0, 45.0]])
+def test_table_holds_the_same_stretches_as_the_records(levels) -> None:
+    rng = np.random.default_rng(11)
+    water = rng.random((40, 50)) < 0.7
+    rows, cols = np.indices(water.shape)
+    t = np.hypot(rows - 9.0, cols - 30.0) * 1.3
+    t[~water] = np.nan
+    t[30:, :10] = np.nan  # unreached water too
+    segs = coastal_arrival_lines(t, water, UTM, class_interval_min=7.5, levels_min=levels)
+    table = coastal_arrival_table(t, water, UTM, class_interval_min=7.5, levels_min=levels)
+    assert isinstance(table, CoastTable) and len(table) == len(segs) > 50
+    assert (~table.reached).any()
+    for a, b in zip(table.segments(), segs, strict=True):
+        assert type(a.minutes_min) is float and type(a.n_edges) is int
+        assert a.geometry.equals_exact(b.geometry, 0.0)
+        assert (a.label, a.n_edges) == (b.label, b.n_edges)
+        for name in ("minutes_min", "minutes_max", "minutes_mean", "class_min", "class_max"):
+            assert getattr(a, name) == getattr(b, name) or (
+                math.isnan(getattr(a, name)) and math.isnan(getattr(b, name))
+            )
+    assert coast_classes(table) == coast_classes(segs)
+    from_table, from_records = coast_layer(table), coast_layer(segs)
+    assert list(from_table.attributes) == list(from_records.attributes)
+    for name, column in from_records.attributes.items():
+        np.testing.assert_array_equal(from_table.attributes[name], column)
+        assert from_table.attributes[name].dtype == column.dtype
+    assert all(
+        a.equals_exact(b, 0.0)
+        for a, b in zip(from_table.geometries, from_records.geometries, strict=True)
+    )
+
+
+def test_empty_table() -> None:
+    table = coastal_arrival_table(np.zeros((4, 5)), np.ones((4, 5), dtype=bool), UTM)
+    assert len(table) == 0 and table.segments() == [] and coast_classes(table) == []
+    layer = coast_layer(table)
+    assert layer.attributes["minutes"].dtype == np.float64 and layer.geometries == ()
 
 
 def test_coast_sld_has_one_thick_rule_per_class_and_an_else_rule() -> None:

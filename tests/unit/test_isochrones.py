@@ -20,6 +20,7 @@ from affine import Affine
 from numpy.testing import assert_allclose
 
 from ttmap.errors import InputDataError
+from ttmap.products import isochrones as iso
 from ttmap.products.isochrones import (
     IsochroneBand,
     IsochroneLine,
@@ -28,6 +29,7 @@ from ttmap.products.isochrones import (
     format_minutes_label,
     isochrone_bands,
     isochrone_lines,
+    isochrone_lines_and_bands,
     levels_from_interval,
 )
 
@@ -326,3 +328,138 @@ def test_polygonal_only_repairs_a_bowtie():
     fixed = _polygonal_only(bowtie)
     assert fixed.geom_type == "MultiPolygon" and shapely.is_valid(fixed)
     assert_allclose(fixed.area, 2.0)
+
+
+# --- fast repair of touching rings, windows, shared tracing -------------------
+
+
+def speckled_field(shape=(240, 260), land_share=0.2, seed=3):
+    """A cone field with one-cell land speckles: many rings touch at masked corners."""
+    rows, cols = np.indices(shape, dtype=np.float64)
+    field = np.hypot(rows - 0.4 * shape[0], cols - 0.55 * shape[1]) / 20.0  # minutes
+    field[np.random.default_rng(seed).random(shape) < land_share] = np.nan
+    return field
+
+
+def raw_band_polygons(field, lower, upper):
+    """contourpy's polygons of one band as they come (some invalid), index coordinates."""
+    points, offsets, outer = iso._generator(field).filled(lower, upper)
+    return shapely.from_ragged_array(
+        shapely.GeometryType.POLYGON, points[0], (offsets[0], outer[0])
+    )
+
+
+def test_speckled_bands_are_valid_and_cover_what_make_valid_covers():
+    field = speckled_field()
+    levels = np.arange(1.0, 9.0)
+    bands = isochrone_bands(field, Affine.identity(), levels)
+    assert len(bands) == levels.size
+    n_repaired = 0
+    for band in bands:
+        # The whole band, with GEOS's full check (the code checks polygon by polygon).
+        assert shapely.is_valid(band.geometry), shapely.is_valid_reason(band.geometry)
+        lower = -np.inf if band.min_minutes == 0 else band.min_minutes
+        raw = raw_band_polygons(field, lower, band.max_minutes)
+        raw = shapely.transform(raw, lambda xy: xy + 0.5)  # cell centres, as isochrone_bands
+        n_repaired += int((~shapely.is_valid(raw)).sum())
+        reference = _polygonal_only(shapely.MultiPolygon(list(raw)))
+        assert_allclose(band.geometry.area, reference.area, rtol=1e-12)
+        assert shapely.symmetric_difference(band.geometry, reference).area < 1e-9
+    assert n_repaired > 20  # the fast repair did the work, not the fallback
+
+
+def test_split_ring_separates_lobes_and_an_inverted_hole():
+    # An exterior ring that passes (2, 2) three times: two lobes (0-2 and 2-4 on x)
+    # and, inside the second lobe, a loop turning the other way (a hole touching it).
+    ring = np.array(
+        [[2, 2], [0, 0], [0, 4], [2, 2], [4, 4], [4, 0], [2, 2], [3, 1.5], [3, 2.5], [2, 2]],
+        dtype=float,
+    )
+    loops = iso._split_ring(ring)
+    assert [loop.tolist() for loop in loops] == [
+        [[2, 2], [0, 0], [0, 4], [2, 2]],
+        [[2, 2], [4, 4], [4, 0], [2, 2]],
+        [[2, 2], [3, 1.5], [3, 2.5], [2, 2]],
+    ]
+    areas2 = iso._ring_areas2(np.concatenate(loops), np.array([0, 4, 8, 12]))
+    assert areas2.tolist() == [-8.0, -8.0, 1.0]  # the lobes turn as the ring does, the hole not
+    out = iso._split_touching_rings(ring, np.array([0, len(ring)]))
+    assert out is not None
+    polygons = shapely.from_ragged_array(shapely.GeometryType.POLYGON, out[0], (out[1], out[2]))
+    assert len(polygons) == 2 and shapely.is_valid(shapely.MultiPolygon(list(polygons)))
+    assert_allclose(sorted(shapely.area(polygons)), [3.5, 4.0])  # one lobe keeps the hole
+
+
+def test_a_hole_touching_the_shell_twice_cuts_the_interior():
+    shell = [[0, 0], [2, 0], [4, 0], [4, 4], [2, 4], [0, 4], [0, 0]]
+    twice = [[2, 0], [3, 2], [2, 4], [1, 2], [2, 0]]  # meets the shell at (2, 0) and (2, 4)
+    once = [[2, 0], [3, 2], [2, 3], [1, 2], [2, 0]]  # meets it at (2, 0) only
+    for hole, cut in ((twice, True), (once, False)):
+        coords = np.array(shell + hole, dtype=float)
+        rings = np.array([0, len(shell), len(shell) + len(hole)])
+        assert iso._interior_disconnected(coords, rings, np.array([0, 2])) is cut
+        polygon = shapely.Polygon(shell, [hole])
+        assert shapely.is_valid(polygon) is not cut  # GEOS agrees
+
+
+def test_polygons_invalid_for_another_reason_fall_back_to_make_valid():
+    bowtie = np.array([[0, 0], [2, 2], [2, 0], [0, 2], [0, 0]], dtype=float)
+    assert iso._split_touching_rings(bowtie, np.array([0, 5])) is None
+    polygons = iso._band_polygons(bowtie, np.array([0, 5]), np.array([0, 1]))
+    assert shapely.is_valid(polygons).all()
+    assert_allclose(shapely.area(polygons).sum(), 2.0)
+
+
+def test_windows_give_the_same_contours_as_one_pass():
+    field = speckled_field((700, 520), land_share=0.05)
+    levels = np.arange(2.0, 30.0, 2.0)
+    edges = np.concatenate([[-np.inf], levels])
+    lows = np.concatenate([[-np.inf], levels[:-1]])
+    plan = iso._plan_windows(field, lows, levels, np.full(levels.size, 2.2))
+    assert len(plan) > 1 and plan[0][2] != (0, 700, 0, 520)  # early levels use a window
+    lines, bands = iso._trace(field, levels, edges)
+    whole = iso._generator(field)
+    for level, got in zip(levels, lines, strict=True):
+        want = whole.lines(level)
+        for a, b in zip(got, want, strict=True):
+            np.testing.assert_array_equal(a[0], b[0])
+    for lower, upper, got in zip(edges[:-1], edges[1:], bands, strict=True):
+        want = whole.filled(lower, upper)
+        for a, b in zip(got, want, strict=True):
+            np.testing.assert_array_equal(a[0], b[0])
+
+
+def test_block_ranges_cover_every_quad():
+    field = speckled_field((300, 200), land_share=0.3)
+    lo, hi = iso._block_ranges(field)
+    block = iso._BLOCK
+    quad_lo = np.fmin.reduce([field[:-1, :-1], field[1:, :-1], field[:-1, 1:], field[1:, 1:]])
+    quad_hi = np.fmax.reduce([field[:-1, :-1], field[1:, :-1], field[:-1, 1:], field[1:, 1:]])
+    r, c = np.nonzero(np.isfinite(quad_lo))
+    assert np.all(lo[r // block, c // block] <= quad_lo[r, c])
+    assert np.all(hi[r // block, c // block] >= quad_hi[r, c])
+
+
+def test_lines_and_bands_together_equal_the_separate_calls():
+    field = speckled_field((150, 170), land_share=0.1)
+    levels = [1.5, 3.0, 4.5, 6.0, 99.0]
+    lines, bands = isochrone_lines_and_bands(field, NORTH_UP, levels)
+    assert [ln.label for ln in lines] == [
+        ln.label for ln in isochrone_lines(field, NORTH_UP, levels)
+    ]
+    for a, b in zip(lines, isochrone_lines(field, NORTH_UP, levels), strict=True):
+        assert shapely.equals_exact(a.geometry, b.geometry, tolerance=0.0)
+    for a, b in zip(bands, isochrone_bands(field, NORTH_UP, levels), strict=True):
+        assert (a.label, a.min_minutes, a.max_minutes) == (b.label, b.min_minutes, b.max_minutes)
+        assert shapely.equals_exact(a.geometry, b.geometry, tolerance=0.0)
+    assert isochrone_lines_and_bands(np.full((4, 4), np.nan), NORTH_UP, levels) == ([], [])
+
+
+def test_a_thin_last_block_still_gets_a_window_contourpy_accepts():
+    # 129 rows: the last block is one row thin; only it holds values near 50.
+    field = np.zeros((129, 700))
+    field[128, :] = 50.0
+    lines, bands = iso._trace(field, np.array([49.0]), np.array([-np.inf, 40.0, 49.0]))
+    whole = iso._generator(field)
+    np.testing.assert_array_equal(lines[0][0][0], whole.lines(49.0)[0][0])
+    np.testing.assert_array_equal(bands[1][0][0], whole.filled(40.0, 49.0)[0][0])

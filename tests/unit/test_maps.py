@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import io
 import math
 import subprocess
 import sys
@@ -287,6 +288,25 @@ def test_dense_lines_are_simplified_for_drawing(monkeypatch):
     assert drawn_vertices() == n_vertices
     monkeypatch.setattr(maps, "_MAX_LINE_VERTICES", 10)
     assert drawn_vertices() < n_vertices / 2
+
+
+def test_isochrones_have_a_faint_casing_underneath():
+    from matplotlib.colors import to_rgba
+
+    transform = Affine(250.0, 0.0, 400_000.0, 0.0, -250.0, 5_200_000.0)
+    time_min, land = case(transform, shape=(200, 240))
+    lines = isochrone_lines(time_min, transform, [1.0, 2.0, 3.0])
+    fig = render_arrival_map(
+        time_min, transform, land_mask=land, lines=lines, title="t", is_geographic=False, dpi=50
+    )
+    by_gid = {c.get_gid(): c for c in fig.axes[0].collections}
+    casing, ink = by_gid["isochrone-casing"], by_gid["isochrones"]
+    assert casing.get_zorder() < ink.get_zorder()
+    assert len(casing.get_segments()) == len(ink.get_segments()) > 0
+    assert casing.get_linewidth()[0] > ink.get_linewidth()[0]
+    assert tuple(casing.get_edgecolor()[0]) == to_rgba("white", 0.4)
+    assert not ink.get_path_effects()  # drawn by Agg in one call, not path by path
+    fig.savefig(io.BytesIO(), format="png")
 
 
 def test_caution_texts_cover_the_required_points():

@@ -520,6 +520,26 @@ def test_write_refusals(tmp_path: Path) -> None:
     assert list(tmp_path.iterdir()) == []
 
 
+def test_write_float_keeps_the_input_and_takes_integers(tmp_path: Path) -> None:
+    grid = small_grid(4, 5)
+    values = np.arange(20.0).reshape(4, 5)
+    values[1, 1], values[2, 3] = np.nan, -np.inf
+    before = values.copy()
+    write_raster(tmp_path / "f.tif", values, grid)
+    assert_array_equal(values, before)  # NaN/inf become nodata in a copy only
+    with rasterio.open(tmp_path / "f.tif") as src:
+        data = src.read(1)
+    assert data[1, 1] == data[2, 3] == -9999.0
+    assert_array_equal(data[0], np.arange(5.0, dtype=np.float32))
+    write_raster(tmp_path / "i.tif", np.arange(20).reshape(4, 5), grid, dtype="float64")
+    with rasterio.open(tmp_path / "i.tif") as src:
+        assert src.dtypes == ("float64",) and src.read(1)[3, 4] == 19.0
+    big = np.ones((4, 5))
+    big[0, 0], big[0, 1] = 1e39, np.nan  # overflow is told apart from NaN
+    with pytest.raises(InputDataError, match="^1 value.* overflow float32"):
+        write_raster(tmp_path / "o.tif", big, grid)
+
+
 def test_write_refuses_existing_unless_overwrite(tmp_path: Path) -> None:
     grid = small_grid(4, 5)
     out = tmp_path / "arrival.tif"

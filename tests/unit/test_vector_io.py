@@ -68,6 +68,30 @@ def test_layer_promotes_singles_and_types_columns() -> None:
     assert bands.attributes["label"].dtype == object
 
 
+def test_layer_promotes_many_singles_in_place_and_keeps_the_order() -> None:
+    import shapely
+
+    singles = shapely.linestrings(np.arange(3000.0).reshape(500, 3, 2))
+    geoms: list = list(singles)
+    geoms[7] = shapely.MultiLineString([singles[7], singles[8]])
+    geoms[9] = None
+    layer = VectorLayer(
+        "many",
+        geoms,
+        {"label": ["a"] * 499 + [None], "n": [1] * 499 + [None], "ok": [True] * 500},
+        "MultiLineString",
+    )
+    out = np.array(layer.geometries, dtype=object)
+    assert shapely.get_type_id(out[[0, 7, 499]]).tolist() == [5, 5, 5]
+    assert out[9] is None
+    assert shapely.get_num_geometries(out[7]) == 2
+    keep = np.array([i not in (7, 9) for i in range(500)])
+    assert shapely.equals_exact(shapely.get_geometry(out[keep], 0), singles[keep], 0.0).all()
+    assert layer.attributes["label"].dtype == object and layer.attributes["label"][-1] is None
+    assert layer.attributes["n"].dtype == np.float64 and np.isnan(layer.attributes["n"][-1])
+    assert layer.attributes["ok"].dtype == np.bool_
+
+
 def test_layer_refusals() -> None:
     line = LineString([(0, 0), (1, 1)])
     with pytest.raises(InputDataError, match="layer name 'iso lines' must start"):

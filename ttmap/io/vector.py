@@ -108,6 +108,21 @@ _WGS84 = CRS.from_epsg(4326)
 # ---------------------------------------------------------------------------
 
 
+def _value_kind(t: type) -> str | None:
+    """Column kind of a value type: none, bool, int, float or str (None: not allowed)."""
+    if t is type(None):
+        return "none"
+    if issubclass(t, (bool, np.bool_)):
+        return "bool"
+    if issubclass(t, (int, np.integer)):
+        return "int"
+    if issubclass(t, (float, np.floating)):
+        return "float"
+    if issubclass(t, str):
+        return "str"
+    return None
+
+
 def _column(layer: str, name: str, values: Sequence[Any], n: int) -> np.ndarray:
     """One attribute column as an int64, float64, bool or object (str) array."""
     if isinstance(values, np.ndarray) and values.dtype.kind in "biuf":
@@ -125,25 +140,20 @@ def _column(layer: str, name: str, values: Sequence[Any], n: int) -> np.ndarray:
             f"layer {layer!r}: column {name!r} has {len(vals)} values for {n} geometries; "
             "give one value per geometry"
         )
+    # Classify each distinct type once (a column of 10^5 values has one or two),
+    # in order of first appearance so that a refusal names the first bad value.
     kinds = set()
-    for v in vals:
-        if v is None:
-            kinds.add("none")
-        elif isinstance(v, (bool, np.bool_)):
-            kinds.add("bool")
-        elif isinstance(v, (int, np.integer)):
-            kinds.add("int")
-        elif isinstance(v, (float, np.floating)):
-            kinds.add("float")
-        elif isinstance(v, str):
-            kinds.add("str")
-        else:
+    for t in dict.fromkeys(map(type, vals)):
+        kind = _value_kind(t)
+        if kind is None:
+            v = next(v for v in vals if type(v) is t)
             raise InputDataError(
-                f"layer {layer!r}: column {name!r} holds a {type(v).__name__} ({v!r}); "
+                f"layer {layer!r}: column {name!r} holds a {t.__name__} ({v!r}); "
                 "use str, int or float values"
             )
+        kinds.add(kind)
+    has_none = "none" in kinds
     kinds.discard("none")
-    has_none = any(v is None for v in vals)
     if kinds <= {"str"}:
         return np.array(vals, dtype=object)
     if kinds == {"bool"} and not has_none:
@@ -219,11 +229,13 @@ class VectorLayer:
             )
         geoms = np.empty(len(self.geometries), dtype=object)
         geoms[:] = list(self.geometries)
-        for i, g in enumerate(geoms):
-            if g is not None and not isinstance(g, shapely.Geometry):
-                raise InputDataError(
-                    f"layer {self.name!r}: item {i} is a {type(g).__name__}, not a shapely geometry"
-                )
+        missing = np.fromiter((g is None for g in geoms), dtype=bool, count=len(geoms))
+        bad = np.flatnonzero(~missing & ~shapely.is_geometry(geoms))
+        if bad.size:
+            i = int(bad[0])
+            raise InputDataError(
+                f"layer {self.name!r}: item {i} is a {type(geoms[i]).__name__}, not a shapely geometry"
+            )
         geoms = self._promote(geoms)
         object.__setattr__(self, "geometries", tuple(geoms))
         columns: dict[str, np.ndarray] = {}
@@ -265,8 +277,8 @@ class VectorLayer:
                     "MultiPolygon": shapely.multipolygons,
                 }[gt]
                 geoms = geoms.copy()
-                for k in np.flatnonzero(single):
-                    geoms[k] = make([geoms[k]])
+                # one call for all: each single geometry becomes its own one-part Multi*
+                geoms[single] = make(geoms[single], indices=np.arange(int(single.sum())))
         return geoms
 
 

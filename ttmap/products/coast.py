@@ -59,10 +59,12 @@ __all__ = [
     "DEFAULT_CLASS_INTERVAL_MIN",
     "UNREACHED_LABEL",
     "CoastSegment",
+    "CoastTable",
     "coast_classes",
     "coast_layer",
     "coast_sld",
     "coastal_arrival_lines",
+    "coastal_arrival_table",
 ]
 
 #: Width of an arrival class along the coast, minutes.
@@ -118,6 +120,62 @@ class CoastSegment:
     def reached(self) -> bool:
         """True if the front reaches the water along this stretch."""
         return bool(math.isfinite(self.minutes_min))
+
+
+@dataclass(frozen=True, eq=False)
+class CoastTable:
+    """The stretches of coast as columns, one row per stretch (see :class:`CoastSegment`).
+
+    What :func:`coastal_arrival_table` returns: the same rows, in the same
+    order, as :func:`coastal_arrival_lines`, without a Python object per
+    stretch (a rough 35-million-cell grid has about 440 000 stretches).
+    :func:`coast_layer` and :func:`coast_classes` take either form.
+
+    Attributes
+    ----------
+    minutes_min, minutes_max, minutes_mean : ndarray of shape (n,), float64, minutes
+        NaN for unreached stretches.
+    class_min, class_max : ndarray of shape (n,), float64, minutes
+        ``class_max`` is inf for the open last class of a level list; both
+        NaN for unreached stretches.
+    label : ndarray of shape (n,), object (str)
+    n_edges : ndarray of shape (n,), int64
+    geometry : ndarray of shape (n,), object (shapely.LineString)
+    """
+
+    minutes_min: NDArray[np.float64]
+    minutes_max: NDArray[np.float64]
+    minutes_mean: NDArray[np.float64]
+    class_min: NDArray[np.float64]
+    class_max: NDArray[np.float64]
+    label: NDArray[np.object_]
+    n_edges: NDArray[np.int64]
+    geometry: NDArray[np.object_]
+
+    def __len__(self) -> int:
+        return int(self.minutes_min.size)
+
+    @property
+    def reached(self) -> NDArray[np.bool_]:
+        """True where the front reaches the water along the stretch."""
+        return np.isfinite(self.minutes_min)
+
+    def segments(self) -> list[CoastSegment]:
+        """The rows as :class:`CoastSegment` records."""
+        return [
+            CoastSegment(*row)
+            for row in zip(
+                self.minutes_min.tolist(),
+                self.minutes_max.tolist(),
+                self.minutes_mean.tolist(),
+                self.class_min.tolist(),
+                self.class_max.tolist(),
+                self.label.tolist(),
+                self.n_edges.tolist(),
+                self.geometry.tolist(),
+                strict=True,
+            )
+        ]
 
 
 # ---------------------------------------------------------------------------
@@ -482,13 +540,56 @@ def coastal_arrival_lines(
     ...  for s in coastal_arrival_lines(t, water, Affine.identity())]
     [(2.0, 4.0, '0:00-0:05', 'LINESTRING (2 0, 2 2)')]
     """
+    return coastal_arrival_table(
+        time_min,
+        water_mask,
+        transform,
+        class_interval_min=class_interval_min,
+        levels_min=levels_min,
+    ).segments()
+
+
+def coastal_arrival_table(
+    time_min: ArrayLike,
+    water_mask: ArrayLike,
+    transform: Affine,
+    *,
+    class_interval_min: float = DEFAULT_CLASS_INTERVAL_MIN,
+    levels_min: ArrayLike | None = None,
+) -> CoastTable:
+    """:func:`coastal_arrival_lines` as columns: the same stretches, one row each.
+
+    Parameters and errors are those of :func:`coastal_arrival_lines`; use
+    this form for large grids (no Python object per stretch), and
+    :meth:`CoastTable.segments` for the records.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from affine import Affine
+    >>> t = np.array([[1.0, 2.0, np.nan], [3.0, 4.0, np.nan]])
+    >>> water = np.array([[True, True, False], [True, True, False]])
+    >>> table = coastal_arrival_table(t, water, Affine.identity())
+    >>> len(table), table.minutes_mean.tolist(), table.label.tolist()
+    (1, [3.0], ['0:00-0:05'])
+    """
     import shapely
 
     field, water, coeffs = _check_inputs(time_min, water_mask, transform)
     step, levels = _check_classes(class_interval_min, levels_min)
     row0, col0, row1, col1, minutes = _coast_edges(field, water)
     if minutes.size == 0:
-        return []
+        empty = np.zeros(0)
+        return CoastTable(
+            empty,
+            empty,
+            empty,
+            empty,
+            empty,
+            np.zeros(0, dtype=object),
+            np.zeros(0, dtype=np.int64),
+            np.zeros(0, dtype=object),
+        )
     cls, lower, upper = _classify(minutes, step, levels)
     chains = _trace_chains(row0, col0, row1, col1, cls, water)
 
@@ -513,26 +614,24 @@ def coastal_arrival_lines(
 
     unreached = ~np.isfinite(t_min)
     rank = np.lexsort((seg_cls, np.where(unreached, np.inf, t_min), unreached))
-    labels = [
-        UNREACHED_LABEL if not math.isfinite(float(lo)) else _class_label(float(lo), float(hi))
-        for lo, hi in zip(lower, upper, strict=True)
-    ]
-    out: list[CoastSegment] = []
-    for i in rank:
-        k = int(seg_cls[i])
-        out.append(
-            CoastSegment(
-                minutes_min=float(t_min[i]),
-                minutes_max=float(t_max[i]),
-                minutes_mean=float(t_mean[i]),
-                class_min=float(lower[k]),
-                class_max=float(upper[k]),
-                label=labels[k],
-                n_edges=int(counts[i]),
-                geometry=lines[i],
-            )
-        )
-    return out
+    labels = np.array(
+        [
+            UNREACHED_LABEL if not math.isfinite(float(lo)) else _class_label(float(lo), float(hi))
+            for lo, hi in zip(lower, upper, strict=True)
+        ],
+        dtype=object,
+    )
+    k = seg_cls[rank]
+    return CoastTable(
+        minutes_min=t_min[rank].astype(np.float64),
+        minutes_max=t_max[rank].astype(np.float64),
+        minutes_mean=t_mean[rank].astype(np.float64),
+        class_min=np.asarray(lower, dtype=np.float64)[k],
+        class_max=np.asarray(upper, dtype=np.float64)[k],
+        label=labels[k],
+        n_edges=counts[rank].astype(np.int64),
+        geometry=lines[rank],
+    )
 
 
 # ---------------------------------------------------------------------------
@@ -540,7 +639,9 @@ def coastal_arrival_lines(
 # ---------------------------------------------------------------------------
 
 
-def coast_classes(segments: Sequence[CoastSegment]) -> list[tuple[float, float | None, str]]:
+def coast_classes(
+    segments: Sequence[CoastSegment] | CoastTable,
+) -> list[tuple[float, float | None, str]]:
     """The reached arrival classes present in ``segments``, earliest first.
 
     Returns
@@ -558,6 +659,19 @@ def coast_classes(segments: Sequence[CoastSegment]) -> list[tuple[float, float |
     >>> coast_classes(segs)
     [(0.0, 5.0, '0:00-0:05'), (5.0, 10.0, '0:05-0:10')]
     """
+    if isinstance(segments, CoastTable):
+        reached = np.flatnonzero(segments.reached)
+        _, first = np.unique(segments.class_min[reached], return_index=True)  # sorted by class_min
+        rows = reached[first]
+        return [
+            (lo, None if not math.isfinite(hi) else hi, label)
+            for lo, hi, label in zip(
+                segments.class_min[rows].tolist(),
+                segments.class_max[rows].tolist(),
+                segments.label[rows].tolist(),
+                strict=True,
+            )
+        ]
     seen: dict[float, tuple[float, float | None, str]] = {}
     for s in segments:
         if not s.reached:
@@ -568,14 +682,18 @@ def coast_classes(segments: Sequence[CoastSegment]) -> list[tuple[float, float |
 
 
 def coast_layer(
-    segments: Sequence[CoastSegment], *, name: str = COAST_LAYER_NAME, description: str = ""
+    segments: Sequence[CoastSegment] | CoastTable,
+    *,
+    name: str = COAST_LAYER_NAME,
+    description: str = "",
 ) -> VectorLayer:
     """The stretches as a MultiLineString vector layer.
 
     Parameters
     ----------
-    segments : sequence of CoastSegment
-        From :func:`coastal_arrival_lines` (may be empty).
+    segments : sequence of CoastSegment, or CoastTable
+        From :func:`coastal_arrival_lines` or :func:`coastal_arrival_table`
+        (may be empty).
     name : str
         Layer name (default ``"coastal_arrival"``).
     description : str, optional
@@ -602,7 +720,26 @@ def coast_layer(
         return np.asarray(values, dtype=np.float64).reshape(-1)
 
     text = description or "First-arrival minutes along the coast, by stretch of coast."
-    attributes: dict[str, Any] = {
+    if isinstance(segments, CoastTable):
+        table = segments
+        attributes: dict[str, Any] = {
+            "minutes": table.minutes_min,
+            "minutes_max": table.minutes_max,
+            "minutes_mean": table.minutes_mean,
+            "class_min": table.class_min,
+            "class_max": np.where(np.isfinite(table.class_max), table.class_max, np.nan),
+            "label": table.label,
+            "reached": table.reached,
+            "n_edges": table.n_edges,
+        }
+        return VectorLayer(
+            name,
+            list(table.geometry),
+            attributes,
+            "MultiLineString",
+            description=f"{text} {CAUTION_SHORT}",
+        )
+    attributes = {
         "minutes": col([s.minutes_min for s in segments]),
         "minutes_max": col([s.minutes_max for s in segments]),
         "minutes_mean": col([s.minutes_mean for s in segments]),

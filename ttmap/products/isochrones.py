@@ -42,6 +42,7 @@ __all__ = [
     "format_minutes_label",
     "isochrone_bands",
     "isochrone_lines",
+    "isochrone_lines_and_bands",
     "levels_from_interval",
 ]
 
@@ -296,21 +297,178 @@ def _check_levels(levels_min: ArrayLike) -> NDArray[np.float64]:
     return np.unique(levels)
 
 
-def _generator(field: NDArray[np.float64]) -> ContourGenerator:
+def _generator(field: NDArray[np.float64], row0: int = 0, col0: int = 0) -> ContourGenerator:
+    """A contourpy generator for ``field``, a window whose first cell is ``(row0, col0)``.
+
+    Points come out in (col, row) cell-centre indices of the whole grid.
+    """
     import contourpy
 
-    z = np.ma.masked_invalid(field, copy=False)
+    rows, cols = field.shape
+    # z is passed as it is: contourpy masks NaN and inf itself, in a third of the
+    # time it takes when handed a masked array (it then merges the two masks).
     # chunk_size=0: one chunk, so lines are not cut and band polygons do not
     # share edges at chunk borders (edge-sharing parts would make an invalid
     # MultiPolygon). Serial single-chunk speed is on a par with chunking here.
     return contourpy.contour_generator(
-        z=z,
+        x=np.arange(col0, col0 + cols, dtype=np.float64),
+        y=np.arange(row0, row0 + rows, dtype=np.float64),
+        z=field,
         name="serial",
         corner_mask=True,
         line_type=contourpy.LineType.ChunkCombinedOffset,
         fill_type=contourpy.FillType.ChunkCombinedOffsetOffset,
         chunk_size=0,
     )
+
+
+#: Side of the blocks whose value ranges choose each level's window (cells).
+_BLOCK = 64
+#: Cost of making a generator, in passes of one level over the same cells:
+#: contourpy copies and masks the field and builds two index grids, about 3
+#: passes when that memory is reused and 8 when it is fresh (contourpy 1.3,
+#: 35 M cells); planning with 3 to 16 gave the same times within noise.
+_GENERATOR_PASSES = 8.0
+#: Most level groups weighed against each other when planning windows.
+_MAX_PLAN_ITEMS = 48
+
+
+def _block_ranges(field: NDArray[np.float64]) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
+    """Smallest and largest finite value over the quads whose first corner lies in each block.
+
+    NaN for blocks without such values. A quad's corners reach one cell into
+    the next block, so each block's range also takes in its right, lower and
+    lower-right neighbours (a slightly wider, safe range).
+    """
+    rows, cols = field.shape
+    r_starts = np.arange(0, rows, _BLOCK)
+    c_starts = np.arange(0, cols, _BLOCK)
+    with np.errstate(invalid="ignore"):
+        # along rows first: contiguous memory, six times faster than the other order
+        lo = np.fmin.reduceat(np.fmin.reduceat(field, c_starts, axis=1), r_starts, axis=0)
+        hi = np.fmax.reduceat(np.fmax.reduceat(field, c_starts, axis=1), r_starts, axis=0)
+    lo[~np.isfinite(lo)] = np.nan
+    hi[~np.isfinite(hi)] = np.nan
+    for grow, reduce in ((lo, np.fmin), (hi, np.fmax)):
+        grow[:-1, :] = reduce(grow[:-1, :], grow[1:, :])
+        grow[:, :-1] = reduce(grow[:, :-1], grow[:, 1:])
+    return lo, hi
+
+
+def _plan_windows(
+    field: NDArray[np.float64],
+    lows: NDArray[np.float64],
+    highs: NDArray[np.float64],
+    passes: NDArray[np.float64],
+) -> list[tuple[int, int, tuple[int, int, int, int] | None]]:
+    """Split items (levels or bands) into runs, each contoured on the part of the grid it needs.
+
+    Item ``k`` needs the quads whose values reach ``[lows[k], highs[k]]``
+    (both increasing) and costs ``passes[k]`` passes over its window. A run of
+    items shares one generator on the bounding box of the blocks any of them
+    needs; the runs are chosen (dynamic programming over consecutive items)
+    to minimise generator cost plus passes, times window cells.
+
+    Returns
+    -------
+    list of (start, stop, window)
+        Items ``start:stop`` and their window ``(row0, row1, col0, col1)``
+        (end-exclusive), or None when no quad holds their values.
+
+    Notes
+    -----
+    Each quad lies in the window in full, and contourpy visits a window's
+    quads in the same relative order as the whole grid's, so the lines and
+    polygons are the same as from one pass over the whole grid.
+    """
+    rows, cols = field.shape
+    n = lows.size
+    if n == 0:
+        return []
+    if rows * cols <= 16 * _BLOCK * _BLOCK:
+        return [(0, n, (0, rows, 0, cols))]
+    block_lo, block_hi = _block_ranges(field)
+    # Coarsen the items to at most _MAX_PLAN_ITEMS runs before planning.
+    cuts = np.unique(np.linspace(0, n, min(n, _MAX_PLAN_ITEMS) + 1).round().astype(int))
+    m = cuts.size - 1
+    cum = np.r_[0.0, np.cumsum(passes)]
+
+    def window(i: int, j: int) -> tuple[int, int, int, int] | None:
+        """Window of items cuts[i]:cuts[j]."""
+        with np.errstate(invalid="ignore"):
+            need = (block_lo <= highs[cuts[j] - 1]) & (block_hi >= lows[cuts[i]])
+        r = np.flatnonzero(need.any(axis=1))
+        c = np.flatnonzero(need.any(axis=0))
+        if r.size == 0:
+            return None
+        r1 = min(rows, (int(r[-1]) + 1) * _BLOCK + 1)
+        c1 = min(cols, (int(c[-1]) + 1) * _BLOCK + 1)
+        # at least 2 x 2 cells (contourpy's minimum; a last block may be one cell thin)
+        return min(int(r[0]) * _BLOCK, r1 - 2), r1, min(int(c[0]) * _BLOCK, c1 - 2), c1
+
+    windows = {(i, j): window(i, j) for i in range(m) for j in range(i + 1, m + 1)}
+    best = np.full(m + 1, np.inf)
+    best[0] = 0.0
+    back = np.zeros(m + 1, dtype=int)
+    for j in range(1, m + 1):
+        for i in range(j):
+            w = windows[(i, j)]
+            cells = 0 if w is None else (w[1] - w[0]) * (w[3] - w[2])
+            cost = best[i] + cells * (_GENERATOR_PASSES + cum[cuts[j]] - cum[cuts[i]])
+            if cost < best[j]:
+                best[j], back[j] = cost, i
+    plan = []
+    j = m
+    while j > 0:
+        i = int(back[j])
+        plan.append((int(cuts[i]), int(cuts[j]), windows[(i, j)]))
+        j = i
+    return plan[::-1]
+
+
+def _trace(
+    field: NDArray[np.float64],
+    line_levels: NDArray[np.float64],
+    band_edges: NDArray[np.float64],
+) -> tuple[list[Any], list[Any]]:
+    """contourpy's raw lines per level and filled polygons per band, window by window.
+
+    ``band_edges`` (n + 1 increasing values, the first may be -inf) bound
+    n consecutive bands. Returns the per-level and per-band outputs in the
+    order of ``line_levels`` and of the bands, as one whole-grid pass would.
+    """
+    n_bands = max(band_edges.size - 1, 0)
+    uppers = band_edges[1:]
+    values = np.union1d(line_levels, uppers)
+    lows = values.copy()
+    is_upper = np.isin(values, uppers)
+    lows[is_upper] = band_edges[:-1][np.searchsorted(uppers, values[is_upper])]
+    lows = np.minimum.accumulate(lows[::-1])[::-1]  # increasing, as the plan needs
+    passes = np.isin(values, line_levels) * 1.0 + is_upper * 1.2
+    lines: list[Any] = [None] * line_levels.size
+    bands: list[Any] = [None] * n_bands
+    for start, stop, win in _plan_windows(field, lows, values, passes):
+        group = values[start:stop]
+        line_idx = np.flatnonzero(np.isin(line_levels, group))
+        band_idx = np.flatnonzero(np.isin(uppers, group))
+        if win is None:
+            empty_lines = ([None], [None])
+            for k in line_idx:
+                lines[k] = empty_lines
+            for k in band_idx:
+                bands[k] = ([None], [None], [None])
+            continue
+        r0, r1, c0, c1 = win
+        generator = _generator(field[r0:r1, c0:c1], r0, c0)
+        # One call per level, not multi_lines/multi_filled: contourpy holds the
+        # GIL in a call, and short calls let another thread (a GeoTIFF being
+        # compressed) go on between them.
+        for k in line_idx:
+            lines[k] = generator.lines(line_levels[k])
+        for k in band_idx:
+            bands[k] = generator.filled(band_edges[k], band_edges[k + 1])
+        del generator
+    return lines, bands
 
 
 def _to_map(points: NDArray[np.float64], transform: Affine) -> NDArray[np.float64]:
@@ -328,8 +486,9 @@ def _value_range(field: NDArray[np.float64]) -> tuple[float, float] | None:
     finite = np.isfinite(field)
     if not finite.any():
         return None
-    values = field[finite]
-    return float(values.min()), float(values.max())
+    return float(np.min(field, where=finite, initial=np.inf)), float(
+        np.max(field, where=finite, initial=-np.inf)
+    )
 
 
 def isochrone_lines(
@@ -376,20 +535,28 @@ def isochrone_lines(
     >>> [line.label for line in isochrone_lines(t, Affine.identity(), [15, 25, 99])]
     ['0:15', '0:25']
     """
+    field = _check_field(time_min, transform)
+    levels = _line_levels(_check_levels(levels_min), _value_range(field))
+    raw, _ = _trace(field, levels, np.zeros(0))
+    return _lines_from(raw, levels, transform)
+
+
+def _line_levels(
+    levels: NDArray[np.float64], value_range: tuple[float, float] | None
+) -> NDArray[np.float64]:
+    """The levels inside the range of the values (no line can come from the others)."""
+    if value_range is None:
+        return levels[:0]
+    lo, hi = value_range
+    return levels[(levels >= lo) & (levels <= hi)]
+
+
+def _lines_from(
+    per_level: list[Any], levels: NDArray[np.float64], transform: Affine
+) -> list[IsochroneLine]:
+    """IsochroneLines from contourpy's ChunkCombinedOffset output, one entry per level."""
     import shapely
 
-    field = _check_field(time_min, transform)
-    levels = _check_levels(levels_min)
-    value_range = _value_range(field)
-    if value_range is None or levels.size == 0:
-        return []
-    lo, hi = value_range
-    levels = levels[(levels >= lo) & (levels <= hi)]
-    if levels.size == 0:
-        return []
-
-    # ChunkCombinedOffset: per level, (points per chunk, offsets per chunk).
-    per_level: list[Any] = list(_generator(field).multi_lines(levels))
     result: list[IsochroneLine] = []
     for level, (points_chunks, offsets_chunks) in zip(levels, per_level, strict=True):
         coords_parts = []
@@ -416,7 +583,7 @@ def isochrone_lines(
 
 
 def _polygonal_only(geometry: BaseGeometry) -> MultiPolygon:
-    """Repair an invalid geometry, keeping only its polygonal parts."""
+    """Repair an invalid geometry, keeping only its polygonal parts (the slow, general path)."""
     import shapely
 
     try:
@@ -441,23 +608,283 @@ def _polygonal_only(geometry: BaseGeometry) -> MultiPolygon:
     return merged
 
 
-def _assemble_valid(polygons: NDArray[np.object_]) -> MultiPolygon:
-    """One valid MultiPolygon from the polygons of one band.
+def _ring_areas2(coords: NDArray[np.float64], offsets: NDArray[np.int64]) -> NDArray[np.float64]:
+    """Twice the signed area of each closed ring ``coords[offsets[i]:offsets[i + 1]]``.
 
-    contourpy's polygons of one band never overlap, but a rare ring touches
-    itself at a vertex (GEOS: "Ring Self-intersection"). Only those polygons
-    are repaired, which is far cheaper than repairing the whole band.
+    Shoelace sums, vectorised over the rings; > 0 for counter-clockwise rings.
+
+    >>> square = np.array([[0, 0], [1, 0], [1, 1], [0, 1], [0, 0]], float)
+    >>> _ring_areas2(np.concatenate([square, square[::-1]]), np.array([0, 5, 10])).tolist()
+    [2.0, -2.0]
+    """
+    x, y = coords[:, 0], coords[:, 1]
+    cross = x[:-1] * y[1:] - x[1:] * y[:-1]
+    cross[offsets[1:-1] - 1] = 0.0  # the step from one ring's end to the next ring's start
+    return np.add.reduceat(cross, offsets[:-1])
+
+
+def _repeat_groups(xy: NDArray[np.float64]) -> tuple[NDArray[np.intp], NDArray[np.int64]]:
+    """Positions of points that occur more than once, and a group number per such point."""
+    order = np.lexsort((xy[:, 1], xy[:, 0]))
+    ordered = xy[order]
+    same = np.all(ordered[1:] == ordered[:-1], axis=1)
+    if not same.any():
+        return np.zeros(0, dtype=np.intp), np.zeros(0, dtype=np.int64)
+    group = np.concatenate([[0], np.cumsum(~same)])
+    repeated = np.bincount(group)[group] > 1
+    return order[repeated], group[repeated]
+
+
+def _split_ring(
+    xy: NDArray[np.float64],
+    positions: NDArray[np.intp] | None = None,
+    group: NDArray[np.int64] | None = None,
+) -> list[NDArray[np.float64]]:
+    """Split a closed ring that passes a vertex more than once into simple closed loops.
+
+    ``positions`` and ``group`` (the repeated vertices and a number per
+    distinct point, as from :func:`_repeat_groups`) are found here unless
+    given. The walk keeps the open path since the last visit of each
+    repeated vertex; coming back to one closes the loop in between. Only the
+    repeated vertices are visited in Python (a handful per ring).
+
+    >>> eight = np.array([[0, 0], [1, 1], [2, 0], [1, -1], [0, 0], [-1, 1], [-2, 0], [-1, -1], [0, 0]], float)
+    >>> [len(loop) for loop in _split_ring(eight)]
+    [5, 5]
+    """
+    points = xy[:-1]
+    n = len(points)
+    if positions is None or group is None:
+        positions, group = _repeat_groups(points)
+    if positions.size == 0:
+        return [xy]
+    key = np.full(n, -1, dtype=np.int64)
+    key[positions] = group
+    events = np.flatnonzero(key >= 0)
+    first = int(events[0])
+    loops: list[NDArray[np.float64]] = []
+    spans: list[tuple[int, int]] = []  # the open path, as [start, stop) runs of ring positions
+    opened = {int(key[first]): 0}  # repeated vertex -> index in ``spans`` of the run it starts
+    last = first
+    for p in [*events[1:].tolist(), first + n]:  # round the ring back to ``first``
+        k = int(key[p % n])
+        spans.append((last, p))
+        if k in opened:
+            i = opened[k]
+            runs = [np.arange(a, b) for a, b in spans[i:]]
+            loop = np.concatenate([*runs, [spans[i][0]]]) % n
+            loops.append(points[loop])
+            del spans[i:]
+            for kk in [kk for kk, v in opened.items() if v >= i]:
+                del opened[kk]
+        opened[k] = len(spans)
+        last = p
+    return loops
+
+
+def _open_ring_points(ring_offsets: NDArray[np.int64]) -> tuple[NDArray[np.intp], NDArray[np.intp]]:
+    """Positions of the points of closed rings without their closing points, and their ring."""
+    starts = ring_offsets[:-1]
+    lengths = ring_offsets[1:] - 1 - starts
+    ring_of = np.repeat(np.arange(starts.size), lengths)
+    take = np.arange(int(lengths.sum())) + np.repeat(
+        starts - (np.cumsum(lengths) - lengths), lengths
+    )
+    return take, ring_of
+
+
+def _interior_disconnected(
+    coords: NDArray[np.float64], ring_offsets: NDArray[np.int64], poly_offsets: NDArray[np.int64]
+) -> bool:
+    """True if a ring still touches itself, or touching rings cut a polygon's interior.
+
+    Rings that touch at vertices form a graph (rings and touch points as
+    nodes); a polygon's interior is cut exactly when that graph has a cycle
+    (a hole touching the shell twice, or a chain of holes from the shell back
+    to it). Vectorised over all polygons; touches are looked for at vertices
+    only (see :func:`_split_touching_rings`).
+    """
+    from scipy.sparse import coo_matrix
+    from scipy.sparse.csgraph import connected_components
+
+    take, ring_of = _open_ring_points(ring_offsets)
+    poly_of_ring = np.repeat(np.arange(poly_offsets.size - 1), np.diff(poly_offsets))
+    xy = coords[take]
+    order = np.lexsort((xy[:, 1], xy[:, 0], poly_of_ring[ring_of]))
+    ordered = np.column_stack([poly_of_ring[ring_of][order], xy[order]])
+    same = np.all(ordered[1:] == ordered[:-1], axis=1)
+    if not same.any():
+        return False
+    group = np.concatenate([[0], np.cumsum(~same)])
+    shared = np.bincount(group)[group] > 1
+    rings, points = ring_of[order][shared], group[shared]
+    pairs = np.unique(np.column_stack([points, rings]), axis=0)
+    if len(pairs) < len(rings):
+        return True  # a ring passes a vertex twice
+    _, ring_node = np.unique(pairs[:, 1], return_inverse=True)
+    _, point_node = np.unique(pairs[:, 0], return_inverse=True)
+    n_rings = int(ring_node.max()) + 1
+    n_nodes = n_rings + int(point_node.max()) + 1
+    graph = coo_matrix(
+        (np.ones(len(pairs), dtype=np.int8), (ring_node, n_rings + point_node)),
+        shape=(n_nodes, n_nodes),
+    )
+    n_components = connected_components(graph, directed=False)[0]
+    return len(pairs) - n_nodes + n_components > 0  # a forest has edges = nodes - components
+
+
+def _split_touching_rings(
+    coords: NDArray[np.float64], ring_offsets: NDArray[np.int64]
+) -> tuple[NDArray[np.float64], NDArray[np.int64], NDArray[np.int64]] | None:
+    """Rebuild one contourpy polygon whose rings touch themselves as valid polygons.
+
+    Parameters
+    ----------
+    coords : ndarray of shape (n, 2), float64
+        All points of the band, map coordinates.
+    ring_offsets : ndarray of shape (rings + 1,), int64
+        Offsets into ``coords`` of this polygon's rings, exterior first;
+        every ring is closed (first point repeated at its end).
+
+    Returns
+    -------
+    (coords, ring_offsets, polygon_offsets) or None
+        Ragged arrays of the repaired polygons (``shapely.from_ragged_array``
+        layout); None when the polygon is invalid for another reason (the
+        caller then falls back to ``shapely.make_valid``).
+
+    Notes
+    -----
+    Marching squares puts every vertex on a quad edge or at a cell centre,
+    and every segment inside one quad, so rings can touch only at shared
+    vertices (where masked cells meet at a corner). A ring that passes a
+    vertex twice is split there into simple loops. A loop turning the same
+    way as its ring keeps the ring's role; one turning the other way swaps it
+    (an exterior loop that turns back is a hole touching the exterior; a hole
+    loop that turns back is an island inside the hole). Loops without area
+    are dropped. Holes go to the smallest shell that covers them. The result
+    is refused if touching rings still cut an interior
+    (:func:`_interior_disconnected`); contourpy itself never crosses or nests
+    rings wrongly.
     """
     import shapely
 
-    invalid = ~shapely.is_valid(polygons)
-    if invalid.any():
-        repaired = [shapely.get_parts(_polygonal_only(p)) for p in polygons[invalid]]
-        polygons = np.concatenate([polygons[~invalid], *repaired])
-    geometry = shapely.multipolygons(polygons)
-    if not shapely.is_valid(geometry):  # not seen in practice; keep the promise anyway
-        geometry = _polygonal_only(geometry)
-    return geometry
+    take, ring_of = _open_ring_points(ring_offsets)
+    positions, group = _repeat_groups(coords[take])
+    if positions.size == 0:
+        return None
+    rings_at = ring_of[positions]
+    _, inverse, counts = np.unique(
+        np.column_stack([group, rings_at]), axis=0, return_inverse=True, return_counts=True
+    )
+    within = counts[inverse.ravel()] > 1  # the vertex repeats in its own ring
+    if not within.any():
+        return None
+    by_ring = np.argsort(rings_at[within], kind="stable")
+    own_ring = rings_at[within][by_ring]
+    own_position = positions[within][by_ring] - (
+        ring_offsets[own_ring] - ring_offsets[0] - own_ring
+    )
+    own_group = group[within][by_ring]
+    ring_ids, first = np.unique(own_ring, return_index=True)
+    last = np.r_[first[1:], own_ring.size]
+    self_touching = {
+        int(j): (own_position[a:b], own_group[a:b])
+        for j, a, b in zip(ring_ids.tolist(), first.tolist(), last.tolist(), strict=True)
+    }
+    base = int(ring_offsets[0])
+    parent_area2 = _ring_areas2(coords[base : int(ring_offsets[-1])], ring_offsets - base)
+    pieces: list[NDArray[np.float64]] = []
+    is_shell: list[bool] = []
+    for j in range(ring_offsets.size - 1):
+        ring = coords[ring_offsets[j] : ring_offsets[j + 1]]
+        if j not in self_touching:
+            pieces.append(ring)
+            is_shell.append(j == 0)
+            continue
+        if parent_area2[j] == 0.0:
+            return None
+        loops = [loop for loop in _split_ring(ring, *self_touching[j]) if len(loop) >= 4]
+        if not loops:
+            continue
+        lengths = np.fromiter((len(loop) for loop in loops), dtype=np.int64, count=len(loops))
+        areas2 = _ring_areas2(np.concatenate(loops), np.r_[0, np.cumsum(lengths)])
+        for loop, area2 in zip(loops, areas2.tolist(), strict=True):
+            if area2 == 0.0:
+                continue  # a collapsed loop: no area
+            keeps_role = (area2 > 0.0) == (parent_area2[j] > 0.0)
+            pieces.append(loop)
+            is_shell.append(keeps_role == (j == 0))
+    shell_ids = [k for k, flag in enumerate(is_shell) if flag]
+    hole_ids = [k for k, flag in enumerate(is_shell) if not flag]
+    if not shell_ids:
+        return None
+    owner = np.zeros(len(hole_ids), dtype=np.int64)
+    if len(shell_ids) > 1 and hole_ids:
+        shells = np.array([shapely.Polygon(pieces[k]) for k in shell_ids], dtype=object)
+        holes = np.array([shapely.Polygon(pieces[k]) for k in hole_ids], dtype=object)
+        areas = shapely.area(shells)
+        owner[:] = -1
+        smallest = np.full(len(hole_ids), np.inf)
+        for s, shell in enumerate(shells):
+            shapely.prepare(shell)
+            inside = shapely.covers(shell, holes) & (areas[s] < smallest)
+            owner[inside] = s
+            smallest[inside] = areas[s]
+        if (owner < 0).any():
+            return None
+    ordered: list[NDArray[np.float64]] = []
+    rings_per_polygon = []
+    for s, k in enumerate(shell_ids):
+        mine = [pieces[hole_ids[h]] for h in np.flatnonzero(owner == s)]
+        ordered += [pieces[k], *mine]
+        rings_per_polygon.append(1 + len(mine))
+    lengths = np.fromiter((len(r) for r in ordered), dtype=np.int64, count=len(ordered))
+    out_coords = np.concatenate(ordered)
+    out_rings = np.r_[0, np.cumsum(lengths)].astype(np.int64)
+    out_polys = np.r_[0, np.cumsum(rings_per_polygon)].astype(np.int64)
+    if _interior_disconnected(out_coords, out_rings, out_polys):
+        return None
+    return out_coords, out_rings, out_polys
+
+
+def _band_polygons(
+    coords: NDArray[np.float64], ring_offsets: NDArray[np.int64], poly_offsets: NDArray[np.int64]
+) -> NDArray[np.object_]:
+    """Valid polygons of one band from contourpy's filled output (map coordinates).
+
+    contourpy's polygons of one band never overlap, but a rare ring touches
+    itself at a vertex (GEOS: "Ring Self-intersection"). Every polygon is
+    checked with one vectorised ``shapely.is_valid`` call (cheap: an invalid
+    polygon fails fast); only the invalid ones are rebuilt, by
+    :func:`_split_touching_rings`, or in the last resort by
+    ``shapely.make_valid``.
+    """
+    import shapely
+
+    polygons = shapely.from_ragged_array(
+        shapely.GeometryType.POLYGON, coords, (ring_offsets, poly_offsets)
+    )
+    invalid = np.flatnonzero(~shapely.is_valid(polygons))
+    if invalid.size == 0:
+        return polygons
+    keep = np.ones(polygons.size, dtype=bool)
+    keep[invalid] = False
+    parts = [polygons[keep]]
+    for i in invalid:
+        rebuilt = _split_touching_rings(
+            coords, ring_offsets[poly_offsets[i] : poly_offsets[i + 1] + 1]
+        )
+        if rebuilt is None:
+            parts.append(shapely.get_parts(_polygonal_only(polygons[i])))
+        else:
+            out_coords, out_rings, out_polys = rebuilt
+            parts.append(
+                shapely.from_ragged_array(
+                    shapely.GeometryType.POLYGON, out_coords, (out_rings, out_polys)
+                )
+            )
+    return np.concatenate(parts)
 
 
 def isochrone_bands(
@@ -486,8 +913,17 @@ def isochrone_bands(
         Ordered by time; bands with no area are left out. Each geometry is a
         valid MultiPolygon: every polygon is checked with ``shapely.is_valid``
         and the rare invalid one (a ring that touches itself where two land
-        cells meet at a corner) is repaired with ``shapely.make_valid``,
-        keeping polygons only.
+        cells meet at a corner) is split at the vertex it passes twice into
+        valid polygons of the same area (``shapely.make_valid``, keeping
+        polygons only, is the fallback for anything else).
+
+    Notes
+    -----
+    contourpy fills each band from one pass over the grid, so the polygons
+    of a band never overlap or share an edge; they may touch at points,
+    which a valid MultiPolygon allows. That is why the band as a whole is not
+    checked again (GEOS's check of a polygon with thousands of holes costs
+    seconds); the tests check it on grids with many touching islands.
 
     Raises
     ------
@@ -502,28 +938,39 @@ def isochrone_bands(
     >>> [(b.label, b.geometry.area) for b in isochrone_bands(t, Affine.identity(), [15, 25])]
     [('0:00-0:15', 4.5), ('0:15-0:25', 3.0)]
     """
-    import shapely
-
     field = _check_field(time_min, transform)
-    levels = _check_levels(levels_min)
-    value_range = _value_range(field)
+    lowers, uppers, edges = _band_levels(_check_levels(levels_min), _value_range(field))
+    _, raw = _trace(field, np.zeros(0), edges)
+    return _bands_from(raw, lowers, uppers, transform)
+
+
+def _band_levels(
+    levels: NDArray[np.float64], value_range: tuple[float, float] | None
+) -> tuple[NDArray[np.float64], NDArray[np.float64], NDArray[np.float64]]:
+    """Lower and upper minutes of the bands to fill, and the edges to give contourpy."""
+    empty = np.zeros(0)
     if value_range is None or levels.size == 0:
-        return []
+        return empty, empty, empty
     lo, hi = value_range
     # Band i spans [lowers[i], uppers[i]]; the first one takes everything
     # below its upper level. Keep the (contiguous) run of bands that overlaps
-    # the range of the values; any that still come out empty are dropped below.
+    # the range of the values; any that still come out empty are dropped later.
     lowers = np.concatenate([[0.0], levels[:-1]])
     uppers = levels
     fill_from = lowers.copy()
     fill_from[0] = -np.inf
     keep = (fill_from <= hi) & (uppers >= lo)
     if not keep.any():
-        return []
-    lowers, uppers = lowers[keep], uppers[keep]
-    edges = np.concatenate([fill_from[keep][:1], uppers])
-    # ChunkCombinedOffsetOffset: per band, (points, ring offsets, polygon offsets) per chunk.
-    filled: list[Any] = list(_generator(field).multi_filled(edges))
+        return empty, empty, empty
+    edges = np.concatenate([fill_from[keep][:1], uppers[keep]])
+    return lowers[keep], uppers[keep], edges
+
+
+def _bands_from(
+    filled: list[Any], lowers: NDArray[np.float64], uppers: NDArray[np.float64], transform: Affine
+) -> list[IsochroneBand]:
+    """IsochroneBands from contourpy's ChunkCombinedOffsetOffset output, one entry per band."""
+    import shapely
 
     result: list[IsochroneBand] = []
     for lower, upper, (points_chunks, offsets_chunks, outer_chunks) in zip(
@@ -545,13 +992,57 @@ def isochrone_bands(
         coords = _to_map(np.concatenate(coords_parts), transform)
         ring_offsets = np.append(np.concatenate(ring_parts), n_points)
         poly_offsets = np.append(np.concatenate(poly_parts), n_rings)
-        polygons = shapely.from_ragged_array(
-            shapely.GeometryType.POLYGON, coords, (ring_offsets, poly_offsets)
-        )
-        geometry = _assemble_valid(polygons)
+        geometry = shapely.multipolygons(_band_polygons(coords, ring_offsets, poly_offsets))
         if geometry.is_empty or geometry.area == 0.0:
             continue
         lower_min, upper_min = float(lower), float(upper)
         label = f"{format_minutes_label(lower_min)}-{format_minutes_label(upper_min)}"
         result.append(IsochroneBand(lower_min, upper_min, label, geometry))
     return result
+
+
+def isochrone_lines_and_bands(
+    time_min: ArrayLike,
+    transform: Affine,
+    levels_min: ArrayLike,
+) -> tuple[list[IsochroneLine], list[IsochroneBand]]:
+    """Isochrone lines and bands of one field, traced together.
+
+    The same as ``(isochrone_lines(...), isochrone_bands(...))`` with the
+    same arguments, but the field is checked once and each contourpy
+    generator serves the lines and the bands of its levels (making one costs
+    about as much as nine passes of a level over the same cells).
+
+    Parameters
+    ----------
+    time_min, transform, levels_min
+        As for :func:`isochrone_lines`.
+
+    Returns
+    -------
+    lines : list of IsochroneLine
+    bands : list of IsochroneBand
+
+    Raises
+    ------
+    InputDataError
+        As for :func:`isochrone_lines`.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from affine import Affine
+    >>> t = np.add.outer(np.arange(5.0), np.zeros(4)) * 10
+    >>> lines, bands = isochrone_lines_and_bands(t, Affine.identity(), [15, 25])
+    >>> [ln.label for ln in lines], [b.label for b in bands]
+    (['0:15', '0:25'], ['0:00-0:15', '0:15-0:25'])
+    """
+    field = _check_field(time_min, transform)
+    levels = _check_levels(levels_min)
+    value_range = _value_range(field)
+    line_levels = _line_levels(levels, value_range)
+    lowers, uppers, edges = _band_levels(levels, value_range)
+    raw_lines, raw_bands = _trace(field, line_levels, edges)
+    return _lines_from(raw_lines, line_levels, transform), _bands_from(
+        raw_bands, lowers, uppers, transform
+    )

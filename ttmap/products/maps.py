@@ -571,7 +571,6 @@ def render_arrival_map(
     more than 300 000 vertices in total are simplified to about a third of a
     drawn pixel before drawing.
     """
-    from matplotlib import patheffects
     from matplotlib.backends.backend_agg import FigureCanvasAgg
     from matplotlib.collections import LineCollection
     from matplotlib.colors import ListedColormap, Normalize
@@ -668,18 +667,24 @@ def render_arrival_map(
     parts_by_line = [_line_parts(ln.geometry, simplify_m) for ln in lines]
     all_parts = [p for parts in parts_by_line for p in parts]
     if all_parts:
-        halo = [
-            patheffects.Stroke(linewidth=1.8, foreground="white", alpha=0.4),
-            patheffects.Normal(),
-        ]
+        # The faint white casing is a collection of its own under the lines (not a
+        # path effect, which matplotlib draws path by path in Python: a second per
+        # 20 000 parts); both are drawn by Agg in one call each.
         ax.add_collection(
             LineCollection(
                 all_parts,
-                colors=_LINE_COLOR,
-                linewidths=0.75,
-                zorder=4,
-                path_effects=halo,
-                gid="isochrones",
+                colors="white",
+                alpha=0.4,
+                linewidths=1.8,
+                capstyle="butt",
+                joinstyle="round",
+                zorder=3.9,
+                gid="isochrone-casing",
+            )
+        )
+        ax.add_collection(
+            LineCollection(
+                all_parts, colors=_LINE_COLOR, linewidths=0.75, zorder=4, gid="isochrones"
             )
         )
     obstacles = _obstacle_points(source_geometry, sites)
