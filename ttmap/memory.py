@@ -58,18 +58,19 @@ __all__ = [
 # growth was fitted by least squares to ``a * native + b * solve + c`` over
 # projected grids of 1000^2, 2000^2, 3000^2 and 4000^2 cells (native = solve)
 # and lon/lat grids of 1500 x 1000, 2000 x 1500 and 3000 x 2000 cells between
-# 40 and 70 degrees north (solve grids 1.85 times taller): a = 34.9, b = 65.2,
-# c = 20.1 MiB, worst residual 1.6 % (118 MiB at 1000^2, 1.51 GiB at 4000^2).
-# The constants below are those figures rounded up. GDAL's block cache and
+# 40 and 70 degrees north (solve grids 1.85 times taller). Refitted on
+# 2026-12-01 after the engine's memory work: a = 21.1, b = 51.0, c = 19.3 MiB,
+# worst residual 1.5 % (89 MiB at 1000^2, 1.10 GiB at 4000^2); before it the fit
+# was 34.9 / 65.2 / 20.1 MiB. The constants below are the new figures rounded up. GDAL's block cache and
 # writing the GeoTIFF (overviews) are not included. A batch worker holds the
 # same (depth, one medium, one solve: ttmap.batch.MEDIA_PER_WORKER = 1).
 
 #: Bytes of peak memory per cell of the native (raster) grid.
-BYTES_PER_NATIVE_CELL: float = 36.0
+BYTES_PER_NATIVE_CELL: float = 22.0
 #: Bytes of peak memory per cell of the solve grid.
-BYTES_PER_SOLVE_CELL: float = 66.0
+BYTES_PER_SOLVE_CELL: float = 52.0
 #: Fixed part of the peak beyond the imported libraries, bytes.
-BASE_BYTES: float = 24.0 * 2**20
+BASE_BYTES: float = 20.0 * 2**20
 
 #: Share of the machine's memory one run may plan to use.
 DEFAULT_MEMORY_SHARE: float = 0.6
@@ -106,7 +107,7 @@ def estimate_peak_bytes(grid_shape: Sequence[int], solve_shape: Sequence[int] | 
 
     Examples
     --------
-    >>> estimate_peak_bytes((1000, 1000)) > 100 * 2**20
+    >>> 80 * 2**20 < estimate_peak_bytes((1000, 1000)) < 100 * 2**20
     True
     >>> estimate_peak_bytes((1000, 1000), (1800, 1000)) > estimate_peak_bytes((1000, 1000))
     True
