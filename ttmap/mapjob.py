@@ -297,17 +297,8 @@ def run_map_job(job: MapJob, *, progress: Callable[[str], None] | None = None) -
         raise InputDataError(
             f"coast interval {job.coast_interval_min!r} min must be a positive number of minutes"
         )
-    out = Path(job.out_dir)
-    if out.exists() and not out.is_dir():
-        raise InputDataError(f"output folder {str(out)!r} is a file; give a folder name")
     planned = planned_outputs(job)
-    # Refuse existing outputs and unwritable places before any work, but
-    # create the folder only when the first product is written, so that a
-    # run refused for its input (missing file, source on land) leaves nothing.
-    if out.is_dir():
-        check_writable(planned, job.overwrite)
-    else:
-        _check_creatable(out)
+    out = _refuse_outputs_up_front(job.out_dir, planned, job.overwrite)
 
     timings: dict[str, float] = {}
     started = _iso_now()
@@ -553,6 +544,25 @@ def _write_one_layer(final: Path, layer: Any, crs: Any, overwrite: bool) -> Path
                 f.rename(stage / (final.stem + f.name[len(stem):]))
     return final
 
+
+
+def _refuse_outputs_up_front(out_dir: str, planned: Sequence[Path], overwrite: bool) -> Path:
+    """Refuse existing outputs and unwritable places before any work.
+
+    The folder itself is created only when the first product is written, so
+    that a run refused for its input (missing file, source on land) leaves
+    nothing behind.
+    """
+    from ttmap.io.atomic import check_writable
+
+    out = Path(out_dir)
+    if out.exists() and not out.is_dir():
+        raise InputDataError(f"output folder {str(out)!r} is a file; give a folder name")
+    if out.is_dir():
+        check_writable(planned, overwrite)
+    else:
+        _check_creatable(out)
+    return out
 
 def _check_creatable(out: Path) -> None:
     """Refuse an output folder that cannot be created (its nearest existing parent is not writable)."""
@@ -989,14 +999,8 @@ def run_site_map_job(job: SiteMapJob, *, progress: Callable[[str], None] | None 
                 f"{MAX_NOTIFICATION_DELAY_MIN:g} minutes; give e.g. 10"
             )
         delays[site.name] = float(d)
-    out = Path(job.out_dir)
-    if out.exists() and not out.is_dir():
-        raise InputDataError(f"output folder {str(out)!r} is a file; give a folder name")
     planned = planned_site_map_outputs(job)
-    if out.is_dir():
-        check_writable(planned, job.overwrite)
-    else:
-        _check_creatable(out)
+    out = _refuse_outputs_up_front(job.out_dir, planned, job.overwrite)
 
     timings: dict[str, float] = {}
     started = _iso_now()
