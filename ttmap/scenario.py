@@ -2069,6 +2069,13 @@ def run_scenario_file(
                 continue
             diff = write_difference(str(out), fronts[a], fronts[b], a, b, derived_overwrite)
             products["differences"].append({"a": a, "b": b, "files": _product_paths(diff)})
+    sites_summary: dict[str, Any] | None = None
+    if sf.sites_path is not None:
+        sites_summary = _write_sites_x_scenarios(sf, out, fronts, by_name, derived_overwrite)
+        if sites_summary.get("files"):
+            products["sites"] = sites_summary["files"]
+        else:
+            products["skipped"].append(f"sites by scenarios: {sites_summary.get('skipped')}")
     compare_s = time.perf_counter() - t1
 
     def _file(path: str | None) -> dict[str, Any] | None:
@@ -2130,6 +2137,8 @@ def run_scenario_file(
         ],
         "failed": failed,
         "products": products,
+        "files_written": _files_written(products),
+        "sites": sites_summary,
         "versions": software_versions(),
         "timings_s": {
             **({"validate": validate_s} if validate_s is not None else {}),
@@ -2142,6 +2151,78 @@ def run_scenario_file(
         Path(tmp).write_text(json.dumps(record, indent=2, default=_json_default) + "\n")
     record["run_json"] = str(run_json)
     return record
+
+
+def _write_sites_x_scenarios(
+    sf: ScenarioFile,
+    out: Path,
+    fronts: Mapping[str, str],
+    by_name: Mapping[str, Any],
+    overwrite: bool,
+) -> dict[str, Any]:
+    """Sites by scenarios (CSV tables and chart) from the finished fronts; a summary for run.json."""
+    from ttmap.io.sites import read_sites
+    from ttmap.products.compare import write_sites_by_scenarios
+
+    if sf.sites_path is None or not fronts:
+        return {"path": sf.sites_path, "skipped": "no finished front to read the sites from"}
+    energy: dict[tuple[str, float], str] = {}
+    for name in fronts:
+        for p in sf.speed.periods_s:
+            s = by_name.get(f"{name}_{sf.speed.period_speed}_T{p:g}s")
+            if s is not None and s.ok and s.raster:
+                energy[(name, float(p))] = s.raster
+    try:
+        sites = read_sites(sf.sites_path)
+        written = write_sites_by_scenarios(
+            str(out), sites, dict(fronts), energy, overwrite=overwrite
+        )
+    except InputDataError as err:  # a bad site row must not lose the finished solves
+        return {"path": sf.sites_path, "skipped": f"site table not written ({err})"}
+    table = written.pop("table")
+    first: dict[str, Any] = {}
+    statuses: dict[str, str] = {}
+    for site, sc, front, is_first, status in zip(
+        table["site"], table["scenario"], table["front_min"], table["earliest_for_site"],
+        table["status"], strict=True,
+    ):
+        statuses[site] = status
+        if is_first and site not in first:
+            first[site] = {"scenario": sc, "front_min": round(float(front), 3)}
+    return {
+        "path": sf.sites_path,
+        "count": len(statuses),
+        "scenarios": list(fronts),
+        "periods_s": sorted({p for _, p in energy}),
+        "no_arrival": sorted(s for s in statuses if s not in first),
+        "snap_status": {k: sum(1 for v in statuses.values() if v == k)
+                        for k in dict.fromkeys(statuses.values())},
+        "earliest": first,
+        "files": {k: v for k, v in written.items() if isinstance(v, str)},
+        "caution": "margins are planning figures, not promises",
+    }
+
+
+def _files_written(products: Mapping[str, Any]) -> list[str]:
+    """Every derived file in ``products`` (envelope, differences, site tables), in order."""
+    out: list[str] = []
+
+    def walk(value: Any) -> None:
+        if isinstance(value, str):
+            if value not in out:
+                out.append(value)
+        elif isinstance(value, Mapping):
+            for v in value.values():
+                walk(v)
+        elif isinstance(value, (list, tuple)):
+            for v in value:
+                walk(v)
+
+    walk(products.get("envelope"))
+    for d in products.get("differences", []):
+        walk(d.get("files"))
+    walk(products.get("sites"))
+    return out
 
 
 def _product_paths(value: Any) -> Any:

@@ -19,6 +19,7 @@ REPO = Path(__file__).resolve().parents[2]
 DEMO_DIR = REPO / "demo_bathymetry"
 DEMO_TOML = DEMO_DIR / "demo_scenarios.toml"
 DEMO_TIF = DEMO_DIR / "demo_bathymetry.tif"
+DEMO_SITES = DEMO_DIR / "demo_sites.csv"
 
 #: Two ruptures generated along the invented trench and a point over the invented seamount.
 SMALL = f"""\
@@ -41,6 +42,9 @@ max_time_h = 3
 name = "seamount-point"
 point = [-146.90, -33.30]
 max_time_h = 3
+
+[sites]
+path = "{DEMO_SITES.as_posix()}"
 
 [outputs]
 folder = "out"
@@ -200,6 +204,67 @@ def test_run_record(small_run):
     assert record["versions"]["ttmap"]
     assert set(record["timings_s"]) >= {"validate", "solve", "compare", "total"}
     assert record["products"]["envelope"]["envelope_min"] == str(out / "envelope_min.tif")
+
+
+def test_run_writes_sites_by_scenarios(small_run):
+    import csv
+
+    import matplotlib.image as mpimg
+
+    out = small_run["out"]
+    assert small_run["result"].exit_code == 0, small_run["result"].output
+    from ttmap.products.cautions import CAUTION_SHORT
+
+    table, first, png = (
+        out / "sites_x_scenarios.csv",
+        out / "earliest_by_site.csv",
+        out / "sites_x_scenarios.png",
+    )
+    for path in (table, first):
+        assert path.read_text().splitlines()[0] == "# " + CAUTION_SHORT
+    rows = list(csv.DictReader(x for x in table.read_text().splitlines() if not x.startswith("#")))
+    names = ["seamount-point", "arc-01", "arc-02"]
+    assert len(rows) == 8 * 3
+    assert [r["scenario"] for r in rows[:3]] == names
+    assert "energy_T600s_min" in rows[0]
+    fronts = {n: _read(out / f"arrival_{n}_front.tif") for n in names}
+    env = _read(out / "envelope_min.tif")
+    reached = [r for r in rows if r["front_min"]]
+    assert reached  # some demo towns lie within the search radius of reached water
+    by_site: dict[str, list[dict]] = {}
+    for r in rows:
+        by_site.setdefault(r["site"], []).append(r)
+    earliest = {
+        r["site"]: r for r in csv.DictReader(
+            x for x in first.read_text().splitlines() if not x.startswith("#")
+        )
+    }
+    assert len(earliest) == 8
+    for site, group in by_site.items():
+        times = {r["scenario"]: float(r["front_min"]) for r in group if r["front_min"]}
+        flagged = [r["scenario"] for r in group if r["earliest_for_site"] == "true"]
+        if not times:
+            assert flagged == [] and earliest[site]["earliest_scenario"] == ""
+            continue
+        best = min(times.values())
+        assert flagged == [n for n, t in times.items() if t == best]
+        assert earliest[site]["earliest_scenario"] == ";".join(flagged)
+        # the envelope holds the earliest front at every cell, so at the snapped one too
+        assert float(earliest[site]["front_min"]) == pytest.approx(best, abs=0.01)
+        assert best >= np.nanmin(env) - 0.01
+        assert all(np.nanmin(fronts[n]) - 0.01 <= t for n, t in times.items())
+    img = mpimg.imread(png)
+    assert img.shape[0] > 300
+    assert np.unique(img.reshape(-1, img.shape[-1]), axis=0).shape[0] > 50  # not blank
+
+    record = json.loads((out / "run.json").read_text())
+    for path in (table, first, png):
+        assert str(path) in record["files_written"]
+    assert str(out / "envelope_min.tif") in record["files_written"]
+    summary = record["sites"]
+    assert summary["count"] == 8 and summary["scenarios"] == names
+    assert summary["files"]["chart_png"] == str(png)
+    assert set(summary["earliest"]) == {s for s, r in earliest.items() if r["earliest_scenario"]}
 
 
 def test_rerun_resumes_and_no_resume_refuses(small_run, run_cli):

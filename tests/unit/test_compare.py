@@ -204,3 +204,214 @@ def test_read_minutes_refuses_other_units(tmp_path):
         read_minutes(p)
     with pytest.raises(InputDataError, match="does not exist"):
         read_minutes(tmp_path / "nope.tif")
+
+
+# ---------------------------------------------------------------------------
+# Sites across scenarios
+# ---------------------------------------------------------------------------
+
+
+def _site_fields() -> dict[str, np.ndarray]:
+    """Two invented front fields (minutes) on GRID with land, a gap and a tie."""
+    rows, cols = np.indices(GRID.shape).astype(np.float64)
+    a = 100.0 + cols
+    b = 50.0 + 3.0 * rows
+    a[10:20, 10:20] = b[10:20, 10:20] = np.nan  # land in both
+    a[10:20, 20] = np.nan  # reached by b only: snapping must use the envelope
+    a[5, 5] = b[5, 5] = 42.0  # a tie
+    return {"alpha": a, "beta": b}
+
+
+def _site_list():
+    from ttmap.io.sites import Site, SiteList
+
+    def centre(r: int, c: int) -> tuple[float, float]:
+        return 150.05 + 0.1 * c, -30.05 - 0.1 * r
+
+    return SiteList(
+        (
+            Site("Open", *centre(2, 30), safe_ground_distance_m=444.0),
+            Site(
+                "East", *centre(30, 3), safe_ground_distance_m=900.0, walking_speed_m_s=1.0,
+                preparation_min=5.0, notification_delay_min=20.0,
+            ),
+            Site("Tie", *centre(5, 5)),
+            Site("Gap", *centre(15, 19), safe_ground_distance_m=0.0),
+            Site("Far", 170.0, -31.0),
+        )
+    )
+
+
+def _rows(table: dict) -> dict[tuple[str, str], dict]:
+    keys = list(table)
+    n = len(table["site"])
+    return {
+        (table["site"][i], table["scenario"][i]): {k: table[k][i] for k in keys} for i in range(n)
+    }
+
+
+def test_sites_by_scenarios_reads_each_site_at_its_envelope_cell():
+    from ttmap.products.budget import STATUS_NO_ARRIVAL, STATUS_NO_DISTANCE
+    from ttmap.products.compare import sites_by_scenarios
+    from ttmap.products.sites import SNAP_MOVED, SNAP_OK, SNAP_OUTSIDE, snap_sites
+
+    fronts = _site_fields()
+    energy = {
+        ("alpha", 600): fronts["alpha"] + 30.0,
+        ("beta", 600.0): fronts["beta"] + 40.0,
+        ("alpha", 1200): fronts["alpha"] + 55.0,
+    }
+    sites = _site_list()
+    table = sites_by_scenarios(sites, GRID, fronts, energy, search_radius_m=15000.0)
+    assert list(table) == [
+        "site", "scenario", "status", "moved_m", "front_min", "energy_T600s_min",
+        "energy_T1200s_min", "minutes_left", "minutes_needed", "margin_min", "budget_status",
+        "earliest_for_site",
+    ]
+    assert table["site"] == [s for s in ("Open", "East", "Tie", "Gap", "Far") for _ in range(2)]
+    assert table["scenario"] == ["alpha", "beta"] * 5
+
+    env = np.fmin(fronts["alpha"], fronts["beta"])
+    snapped = {s.name: s for s in snap_sites(sites, GRID, np.isfinite(env), search_radius_m=15000.0)}
+    assert (snapped["Gap"].row, snapped["Gap"].col) == (15, 20)  # alpha never reaches it
+    rows = _rows(table)
+    for (site, sc), row in rows.items():
+        s = snapped[site]
+        assert row["status"] == s.status
+        if s.row < 0:
+            assert np.isnan(row["front_min"]) and np.isnan(row["energy_T600s_min"])
+            continue
+        np.testing.assert_equal(row["front_min"], fronts[sc][s.row, s.col])
+        np.testing.assert_equal(row["energy_T600s_min"], energy[(sc, 600.0)][s.row, s.col])
+    assert rows[("Open", "alpha")]["status"] == SNAP_OK
+    assert rows[("Gap", "beta")]["status"] == SNAP_MOVED and rows[("Gap", "beta")]["moved_m"] > 0
+    assert rows[("Far", "alpha")]["status"] == SNAP_OUTSIDE
+    assert np.isnan(rows[("Open", "beta")]["energy_T1200s_min"])  # no such solve for beta
+    assert rows[("Open", "alpha")]["energy_T1200s_min"] == 130.0 + 55.0
+
+    # earliest: beta at Open (56 < 130), alpha at East (103 < 140), both on the tie,
+    # beta at Gap (alpha has no arrival), nobody at Far.
+    first = {k: r["earliest_for_site"] for k, r in rows.items()}
+    assert first == {
+        ("Open", "alpha"): False, ("Open", "beta"): True,
+        ("East", "alpha"): True, ("East", "beta"): False,
+        ("Tie", "alpha"): True, ("Tie", "beta"): True,
+        ("Gap", "alpha"): False, ("Gap", "beta"): True,
+        ("Far", "alpha"): False, ("Far", "beta"): False,
+    }
+
+    # Budget by hand. Open uses the defaults: delay 10 min, preparation 3 min, 0.74 m/s:
+    # needed = 3 + 444 / (0.74 * 60) = 13 min.
+    o = rows[("Open", "beta")]
+    assert o["front_min"] == 56.0
+    assert o["minutes_left"] == pytest.approx(46.0)
+    assert o["minutes_needed"] == pytest.approx(13.0)
+    assert o["margin_min"] == pytest.approx(33.0)
+    assert rows[("Open", "alpha")]["margin_min"] == pytest.approx(130.0 - 10.0 - 13.0)
+    # East uses its own values: delay 20, preparation 5, 900 m at 1.0 m/s -> needed 20.
+    e = rows[("East", "alpha")]
+    assert (e["minutes_left"], e["minutes_needed"], e["margin_min"]) == pytest.approx((83.0, 20.0, 63.0))
+    # Gap: distance 0 -> needed = preparation only; no arrival for alpha.
+    assert rows[("Gap", "beta")]["margin_min"] == pytest.approx(95.0 - 10.0 - 3.0)
+    assert rows[("Gap", "alpha")]["budget_status"] == STATUS_NO_ARRIVAL
+    assert np.isnan(rows[("Gap", "alpha")]["margin_min"])
+    # No distance: margin blank.
+    assert rows[("Tie", "alpha")]["budget_status"] == STATUS_NO_DISTANCE
+    assert np.isnan(rows[("Tie", "alpha")]["margin_min"])
+
+    # Budget defaults can be changed.
+    other = _rows(sites_by_scenarios(
+        sites, GRID, fronts, search_radius_m=15000.0, notification_delay_min=0.0,
+        preparation_min=1.0, walking_speed_m_s=0.5,
+    ))
+    assert other[("Open", "beta")]["margin_min"] == pytest.approx(56.0 - 0.0 - (1.0 + 444.0 / 30.0))
+    assert other[("East", "alpha")]["margin_min"] == pytest.approx(63.0)  # its own values
+
+
+def test_sites_by_scenarios_refuses_bad_input():
+    from ttmap.products.compare import sites_by_scenarios
+
+    fronts = _site_fields()
+    sites = _site_list()
+    with pytest.raises(InputDataError, match="no front"):
+        sites_by_scenarios(sites, GRID, {})
+    with pytest.raises(InputDataError, match="has no front"):
+        sites_by_scenarios(sites, GRID, fronts, {("gamma", 600): fronts["alpha"]})
+    with pytest.raises(InputDataError, match="shape"):
+        sites_by_scenarios(sites, GRID, {"alpha": fronts["alpha"][:5]})
+    with pytest.raises(InputDataError, match="SiteList"):
+        sites_by_scenarios([("A", 150.0, -30.0)], GRID, fronts)
+
+
+def test_write_sites_by_scenarios_from_rasters(tmp_path):
+    import matplotlib.image as mpimg
+
+    from ttmap.products.compare import SITES_X_SCENARIOS_FILES, write_sites_by_scenarios
+
+    fronts = _site_fields()
+    paths = {}
+    for name, t in fronts.items():
+        p = tmp_path / f"arrival_{name}_front.tif"
+        write_arrival_geotiff(p, t, GRID, tags={}, band_description="front")
+        paths[name] = str(p)
+    e = tmp_path / "arrival_alpha_group_T600s.tif"
+    write_arrival_geotiff(e, fronts["alpha"] + 30.0, GRID, tags={}, band_description="energy")
+    out = write_sites_by_scenarios(
+        tmp_path, _site_list(), paths, {("alpha", 600.0): str(e)}, search_radius_m=15000.0
+    )
+    assert [Path(out[k]).name for k in ("table_csv", "earliest_csv", "chart_png")] == list(
+        SITES_X_SCENARIOS_FILES
+    )
+    for key in ("table_csv", "earliest_csv"):
+        lines = Path(out[key]).read_text().splitlines()
+        assert lines[0] == "# " + CAUTION_SHORT
+    text = Path(out["table_csv"]).read_text()
+    assert "planning figures, not promises" in text
+    rows = list(csv.DictReader(line for line in text.splitlines() if not line.startswith("#")))
+    by = {(r["site"], r["scenario"]): r for r in rows}
+    assert len(rows) == 10
+    assert by[("Open", "beta")]["front_min"] == "56.00"
+    assert by[("Open", "beta")]["margin_min"] == "33.00"
+    assert by[("Open", "alpha")]["energy_T600s_min"] == "160.00"
+    assert by[("Open", "beta")]["energy_T600s_min"] == ""
+    assert by[("Gap", "alpha")]["front_min"] == "" and by[("Gap", "beta")]["earliest_for_site"] == "true"
+    first_lines = Path(out["earliest_csv"]).read_text().splitlines()
+    first = list(csv.DictReader(line for line in first_lines if not line.startswith("#")))
+    assert [(r["site"], r["earliest_scenario"], r["front_min"]) for r in first] == [
+        ("Open", "beta", "56.00"),
+        ("East", "alpha", "103.00"),
+        ("Tie", "alpha;beta", "42.00"),
+        ("Gap", "beta", "95.00"),
+        ("Far", "", ""),
+    ]
+    img = mpimg.imread(out["chart_png"])
+    assert img.shape[0] > 300 and img.shape[1] > 600
+    assert np.unique(img.reshape(-1, img.shape[-1]), axis=0).shape[0] > 50  # not blank
+    with pytest.raises(OutputExistsError):
+        write_sites_by_scenarios(tmp_path, _site_list(), paths)
+
+
+def test_write_sites_by_scenarios_refuses_a_raster_on_another_grid(tmp_path):
+    from ttmap.products.compare import write_sites_by_scenarios
+
+    fronts = _site_fields()
+    other = Grid(GRID.shape, Affine(0.1, 0.0, 151.0, 0.0, -0.1, -30.0), "EPSG:4326")
+    pa, pb = tmp_path / "a.tif", tmp_path / "b.tif"
+    write_arrival_geotiff(pa, fronts["alpha"], GRID, tags={}, band_description="t")
+    write_arrival_geotiff(pb, fronts["beta"], other, tags={}, band_description="t")
+    with pytest.raises(InputDataError, match="not on the grid"):
+        write_sites_by_scenarios(tmp_path, _site_list(), {"alpha": str(pa), "beta": str(pb)})
+    assert not (tmp_path / "sites_x_scenarios.csv").exists()
+
+
+def test_render_sites_by_scenarios_orders_by_earliest_and_shows_the_caution():
+    from ttmap.products.compare import render_sites_by_scenarios, sites_by_scenarios
+
+    table = sites_by_scenarios(_site_list(), GRID, _site_fields(), search_radius_m=15000.0)
+    fig = render_sites_by_scenarios(table)
+    ax = fig.axes[0]
+    labels = [t.get_text() for t in ax.get_yticklabels()]
+    assert labels == ["Tie", "Open", "Gap", "East", "Far"]  # 42, 56, 95, 103, none
+    texts = " ".join(t.get_text() for t in fig.texts)
+    assert " ".join(CAUTION_SHORT.split()[:6]) in " ".join(texts.split())
+    assert fig.legends

@@ -23,14 +23,29 @@ say what the values mean:
 
 A difference is NaN (nodata) wherever either scenario has no arrival. The
 envelope is NaN only where no scenario arrives.
+
+Sites across scenarios:
+
+- :func:`sites_by_scenarios` - each site is snapped once, to the nearest
+  reached water cell of the envelope (earliest arrival over all scenarios),
+  and read there in every scenario: front and energy arrivals, and the time
+  budget of :mod:`ttmap.products.budget` counted from that scenario's front
+  (no speed-uncertainty band). One row per site and scenario.
+- :func:`write_sites_by_scenarios` - ``sites_x_scenarios.csv`` (that table),
+  ``earliest_by_site.csv`` (the scenario giving each site's earliest front)
+  and the chart ``sites_x_scenarios.png`` (a dot per scenario at its front
+  arrival, one row per site).
+
+Margins are planning figures, not promises.
 """
 
 from __future__ import annotations
 
 import csv
+import math
 import os
 import re
-from collections.abc import Iterable, Iterator, Sequence
+from collections.abc import Iterable, Iterator, Mapping, Sequence
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
@@ -48,6 +63,11 @@ __all__ = [
     "write_envelope",
     "write_difference",
     "read_minutes",
+    "sites_by_scenarios",
+    "earliest_by_site",
+    "render_sites_by_scenarios",
+    "write_sites_by_scenarios",
+    "SITES_X_SCENARIOS_FILES",
     "MAX_SCENARIOS",
     "NO_SCENARIO",
 ]
@@ -56,6 +76,13 @@ __all__ = [
 MAX_SCENARIOS: int = int(np.iinfo(np.int16).max)
 #: First-scenario index where no scenario arrives.
 NO_SCENARIO: int = -1
+
+#: File names written by :func:`write_sites_by_scenarios`.
+SITES_X_SCENARIOS_FILES: tuple[str, str, str] = (
+    "sites_x_scenarios.csv",
+    "earliest_by_site.csv",
+    "sites_x_scenarios.png",
+)
 
 _NAME_RE = re.compile(r"^[A-Za-z0-9_.-]+$")
 
@@ -434,3 +461,464 @@ def write_difference(
         overwrite=overwrite,
     )
     return {"difference": str(target)}
+
+
+# ---------------------------------------------------------------------------
+# Sites across scenarios
+# ---------------------------------------------------------------------------
+
+FieldLike = Any  # a path to an arrival raster in minutes, or a 2-D array of minutes
+
+
+def _load_field(value: FieldLike, grid: Grid | None, what: str) -> tuple[NDArray[np.float64], Grid | None]:
+    """Minutes of one field (path or array), checked against ``grid``."""
+    if isinstance(value, (str, os.PathLike)):
+        values, g, _ = read_minutes(value)
+        if grid is None:
+            return values, g
+        if not _same_grid(g, grid):
+            raise InputDataError(
+                f"{what} raster {os.fspath(value)!r} ({_grid_text(g)}) is not on the grid of the "
+                f"others ({_grid_text(grid)}); use rasters of one bathymetry and crop"
+            )
+        return values, grid
+    values = _as_minutes(value, what).astype(np.float64)
+    values[~np.isfinite(values)] = np.nan
+    if grid is not None and tuple(values.shape) != tuple(grid.shape):
+        raise InputDataError(
+            f"{what} has shape {values.shape} but the grid is {tuple(grid.shape)}; give fields of one grid"
+        )
+    return values, grid
+
+
+def sites_by_scenarios(
+    sites: Any,
+    grid: Grid | None,
+    front_paths: Mapping[str, FieldLike],
+    energy_paths: Mapping[tuple[str, float], FieldLike] | None = None,
+    *,
+    search_radius_m: float | None = None,
+    notification_delay_min: float | None = None,
+    preparation_min: float | None = None,
+    walking_speed_m_s: float | None = None,
+    little_margin_min: float | None = None,
+) -> dict[str, list[Any]]:
+    """Arrival times and time budget of every site in every scenario.
+
+    Parameters
+    ----------
+    sites : SiteList
+        From :func:`ttmap.io.sites.read_sites`.
+    grid : Grid or None
+        The grid of the fields; None takes that of the first front raster
+        (then the fronts must be paths).
+    front_paths : mapping of scenario name to path or ndarray
+        Front arrival of each scenario, minutes (raster path, or a 2-D array
+        of minutes with NaN where it has no arrival), all on one grid. Read
+        twice, one at a time: once for the envelope, once for the values.
+    energy_paths : mapping of (scenario, period_s) to path or ndarray, optional
+        Energy arrivals, minutes; periods missing for a scenario give blanks.
+    search_radius_m : float, optional
+        Snapping radius (default
+        :data:`ttmap.products.sites.DEFAULT_SEARCH_RADIUS_M`).
+    notification_delay_min, preparation_min, walking_speed_m_s : float, optional
+        Budget defaults where a site gives none (defaults of
+        :mod:`ttmap.products.budget`).
+    little_margin_min : float, optional
+        Little-margin threshold (default
+        :data:`ttmap.products.budget.LITTLE_MARGIN_MIN`).
+
+    Returns
+    -------
+    dict of str to list
+        Ordered columns, one row per site and scenario (sites in file order,
+        scenarios in mapping order): ``site, scenario, status, moved_m,
+        front_min, energy_T{T}s_min`` (one per period), ``minutes_left,
+        minutes_needed, margin_min, budget_status, earliest_for_site``.
+        ``status``/``moved_m`` are the snapping of the site to the nearest
+        reached water cell of the envelope (the same cell for every
+        scenario). ``minutes_left = front_min - notification delay``;
+        ``minutes_needed = preparation + distance / walking speed`` (NaN
+        without a distance); ``margin_min`` their difference.
+        ``earliest_for_site`` is True for the scenario(s) whose front
+        reaches the site first (all of them on a tie).
+
+    Raises
+    ------
+    InputDataError
+        No fronts, bad names, fields on different grids, an energy key of an
+        unknown scenario, bad budget values.
+    """
+    from ttmap.io.sites import SiteList
+    from ttmap.products import budget as _budget
+    from ttmap.products.sites import DEFAULT_SEARCH_RADIUS_M, period_label, snap_sites
+
+    if not isinstance(sites, SiteList):
+        raise InputDataError(
+            f"sites must be a SiteList (see read_sites), got {type(sites).__name__}"
+        )
+    names = _check_names(list(front_paths), "scenario")
+    if not names:
+        raise InputDataError("no front arrival fields were given; pass at least one scenario")
+    energy = dict(energy_paths or {})
+    periods: list[float] = []
+    for key in energy:
+        if not (isinstance(key, tuple) and len(key) == 2):
+            raise InputDataError(f"energy key {key!r} must be (scenario, period_s)")
+        sc, t = key
+        if sc not in front_paths:
+            raise InputDataError(
+                f"energy field for scenario {sc!r} has no front; give the front of every scenario"
+            )
+        t = float(t)
+        if not (math.isfinite(t) and t > 0.0):
+            raise InputDataError(f"wave period {key[1]!r} s must be a positive number of seconds")
+        if t not in periods:
+            periods.append(t)
+    periods.sort()
+    energy_by = {(str(sc), float(t)): v for (sc, t), v in energy.items()}
+
+    defaults = {
+        "notification_delay_min": _budget.DEFAULT_NOTIFICATION_DELAY_MIN
+        if notification_delay_min is None else float(notification_delay_min),
+        "preparation_min": _budget.DEFAULT_PREPARATION_MIN
+        if preparation_min is None else float(preparation_min),
+        "walking_speed_m_s": _budget.DEFAULT_WALKING_SPEED_M_S
+        if walking_speed_m_s is None else float(walking_speed_m_s),
+    }
+    little = _budget.LITTLE_MARGIN_MIN if little_margin_min is None else float(little_margin_min)
+    # Checks the defaults and the threshold once, with a clear message.
+    _budget.warning_budget(
+        None, defaults["notification_delay_min"], defaults["preparation_min"], None,
+        defaults["walking_speed_m_s"], little_margin_min=little,
+    )
+
+    # 1. Envelope, one field at a time; it fixes the grid.
+    ref: dict[str, Grid | None] = {"grid": grid}
+
+    def _fronts() -> Iterator[NDArray[np.float64]]:
+        for n in names:
+            values, ref["grid"] = _load_field(front_paths[n], ref["grid"], f"front of {n}")
+            yield values
+
+    earliest, _ = envelope(_fronts())
+    g = ref["grid"]
+    if g is None:
+        raise InputDataError("no grid: pass grid=... when the fronts are arrays")
+    radius = DEFAULT_SEARCH_RADIUS_M if search_radius_m is None else float(search_radius_m)
+    snapped = snap_sites(sites, g, np.isfinite(earliest), search_radius_m=radius)
+    del earliest
+
+    # 2. Values at the snapped cells, one field at a time.
+    def _values(field: FieldLike, what: str) -> list[float]:
+        arr, _ = _load_field(field, g, what)
+        return [float(arr[s.row, s.col]) if s.row >= 0 else math.nan for s in snapped]
+
+    front_at = {n: _values(front_paths[n], f"front of {n}") for n in names}
+    energy_at: dict[tuple[str, float], list[float]] = {}
+    for (sc, t), field in energy_by.items():
+        energy_at[(sc, t)] = _values(field, f"energy of {sc}, T = {t:g} s")
+
+    labels = [period_label(t) for t in periods]
+    cols: dict[str, list[Any]] = {k: [] for k in ("site", "scenario", "status", "moved_m", "front_min")}
+    for lab in labels:
+        cols[f"energy_T{lab}s_min"] = []
+    for k in ("minutes_left", "minutes_needed", "margin_min", "budget_status", "earliest_for_site"):
+        cols[k] = []
+    for i, (site, snap) in enumerate(zip(sites, snapped, strict=True)):
+        fronts_here = [front_at[n][i] for n in names]
+        finite = [f for f in fronts_here if math.isfinite(f)]
+        first = min(finite) if finite else math.nan
+        values = {
+            k: defaults[k] if getattr(site, k) is None else float(getattr(site, k))
+            for k in defaults
+        }
+        for n, front in zip(names, fronts_here, strict=True):
+            b = _budget.warning_budget(
+                front if math.isfinite(front) else None,
+                values["notification_delay_min"],
+                values["preparation_min"],
+                site.safe_ground_distance_m,
+                values["walking_speed_m_s"],
+                little_margin_min=little,
+            )
+            cols["site"].append(site.name)
+            cols["scenario"].append(n)
+            cols["status"].append(snap.status)
+            cols["moved_m"].append(snap.moved_m)
+            cols["front_min"].append(front)
+            for lab, t in zip(labels, periods, strict=True):
+                got = energy_at.get((n, t))
+                cols[f"energy_T{lab}s_min"].append(got[i] if got is not None else math.nan)
+            cols["minutes_left"].append(b.minutes_left)
+            cols["minutes_needed"].append(b.minutes_needed)
+            cols["margin_min"].append(b.margin_min)
+            cols["budget_status"].append(b.status)
+            cols["earliest_for_site"].append(bool(math.isfinite(front) and front == first))
+    return cols
+
+
+def earliest_by_site(table: Mapping[str, Sequence[Any]]) -> dict[str, list[Any]]:
+    """One row per site: the scenario(s) giving its earliest front, and that time.
+
+    Parameters
+    ----------
+    table : mapping
+        Columns from :func:`sites_by_scenarios`.
+
+    Returns
+    -------
+    dict of str to list
+        ``site`` (first-seen order), ``earliest_scenario`` (names joined by
+        ``;`` on a tie; empty when no scenario arrives), ``front_min`` (NaN
+        when none arrives).
+
+    Examples
+    --------
+    >>> t = {"site": ["A", "A", "B", "B"], "scenario": ["x", "y", "x", "y"],
+    ...      "front_min": [30.0, 20.0, float("nan"), float("nan")],
+    ...      "earliest_for_site": [False, True, False, False]}
+    >>> earliest_by_site(t)
+    {'site': ['A', 'B'], 'earliest_scenario': ['y', ''], 'front_min': [20.0, nan]}
+    """
+    out: dict[str, list[Any]] = {"site": [], "earliest_scenario": [], "front_min": []}
+    where: dict[str, int] = {}
+    for site, sc, front, first in zip(
+        table["site"], table["scenario"], table["front_min"], table["earliest_for_site"], strict=True
+    ):
+        if site not in where:
+            where[site] = len(out["site"])
+            out["site"].append(site)
+            out["earliest_scenario"].append("")
+            out["front_min"].append(math.nan)
+        if first:
+            k = where[site]
+            prev = out["earliest_scenario"][k]
+            out["earliest_scenario"][k] = f"{prev};{sc}" if prev else str(sc)
+            out["front_min"][k] = float(front)
+    return out
+
+
+def render_sites_by_scenarios(
+    table: Mapping[str, Sequence[Any]],
+    *,
+    title: str = "Front arrival at each site, by scenario",
+    caution: str | None = None,
+    width_in: float = 9.0,
+    dpi: float = 120.0,
+) -> Any:
+    """Chart of :func:`sites_by_scenarios`: one row per site, a dot per scenario.
+
+    Sites are ordered by their earliest front arrival (earliest at the top;
+    sites without any arrival last). With up to 10 scenarios each has its
+    own colour and the earliest at a site is ringed in black; with more,
+    dots are grey and the earliest is red. The caution is printed at the
+    bottom of the figure.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        On an Agg canvas (no pyplot state); the caller drops it.
+    """
+    import textwrap
+
+    from matplotlib import colormaps
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.figure import Figure
+    from matplotlib.lines import Line2D
+
+    from ttmap.products.cautions import CAUTION_SHORT
+
+    caution = CAUTION_SHORT if caution is None else caution
+    sites_col = [str(s) for s in table["site"]]
+    scen_col = [str(s) for s in table["scenario"]]
+    if not sites_col:
+        raise InputDataError("the site table has no rows; nothing to chart")
+    fronts = np.asarray(
+        [math.nan if v is None else float(v) for v in table["front_min"]], dtype=np.float64
+    )
+    firsts = [bool(v) for v in table["earliest_for_site"]]
+    site_names = list(dict.fromkeys(sites_col))
+    scen_names = list(dict.fromkeys(scen_col))
+    best = {s: math.inf for s in site_names}
+    for s, f in zip(sites_col, fronts, strict=True):
+        if math.isfinite(f):
+            best[s] = min(best[s], float(f))
+    order = sorted(range(len(site_names)), key=lambda i: (best[site_names[i]], i))
+    row_of = {site_names[i]: y for y, i in enumerate(order)}
+    n = len(site_names)
+
+    coloured = len(scen_names) <= 10
+    cmap = colormaps["tab10"]
+    colour = {sc: (cmap(k) if coloured else "#9a9a9a") for k, sc in enumerate(scen_names)}
+
+    footer_font = 8.0
+    chars = max(40, int((width_in - 0.9) * 72.0 / (0.52 * footer_font)))
+    footer = textwrap.fill("Caution: " + " ".join(caution.split()), width=chars)
+    footer_top = 0.12 + (footer.count("\n") + 1) * footer_font * 1.35 / 72.0 + 0.15
+    legend_items = len(scen_names) if coloured else 2
+    legend_h = 0.22 * math.ceil((legend_items + 1) / 3) + 0.1
+    bottom_in = footer_top + legend_h + 0.55
+    top_in = 0.75
+    axes_h = max(1.2, 0.34 * n)
+    fig_h = top_in + axes_h + bottom_in
+    left_in = min(3.0, 0.45 + 0.075 * max(len(s) for s in site_names))
+    fig = Figure(figsize=(width_in, fig_h), dpi=dpi, facecolor="white")
+    FigureCanvasAgg(fig)
+    ax = fig.add_axes(
+        (left_in / width_in, bottom_in / fig_h, 1.0 - (left_in + 0.4) / width_in, axes_h / fig_h)
+    )
+    for s, sc, f, first in zip(sites_col, scen_col, fronts, firsts, strict=True):
+        if not math.isfinite(f):
+            continue
+        y = row_of[s]
+        if coloured:
+            ax.plot(f, y, "o", color=colour[sc], markersize=6.5, zorder=3,
+                    markeredgecolor="black" if first else "white",
+                    markeredgewidth=1.6 if first else 0.5)
+        else:
+            ax.plot(f, y, "o", color="#c0392b" if first else colour[sc],
+                    markersize=7 if first else 5, zorder=4 if first else 3)
+    for s in site_names:
+        if not math.isfinite(best[s]):
+            ax.text(0.01, row_of[s], "no arrival computed", transform=ax.get_yaxis_transform(),
+                    va="center", fontsize=7.5, color="#555555")
+    finite = fronts[np.isfinite(fronts)]
+    xmax = max(10.0, float(finite.max()) * 1.06) if finite.size else 60.0
+    ax.set_xlim(0.0, xmax)
+    ax.set_ylim(n - 0.5, -0.5)
+    ax.set_yticks(range(n))
+    ax.set_yticklabels([site_names[i] for i in order], fontsize=8.5)
+    ax.set_xlabel("Front arrival, minutes after the earthquake (origin time)", fontsize=9)
+    ax.tick_params(axis="x", labelsize=8)
+    ax.tick_params(axis="y", length=0)
+    ax.grid(axis="x", color="#d9d9d9", linewidth=0.6, zorder=1)
+    for y in range(n):
+        ax.axhline(y, color="#eeeeee", linewidth=0.6, zorder=1)
+    ax.set_axisbelow(True)
+    for side in ("top", "right"):
+        ax.spines[side].set_visible(False)
+
+    if coloured:
+        items: list[Any] = [
+            Line2D([], [], marker="o", linestyle="none", color=colour[sc], label=sc)
+            for sc in scen_names
+        ]
+        items.append(Line2D([], [], marker="o", linestyle="none", color="white",
+                            markeredgecolor="black", markeredgewidth=1.6,
+                            label="earliest at the site"))
+    else:
+        items = [
+            Line2D([], [], marker="o", linestyle="none", color="#9a9a9a",
+                   label=f"one of {len(scen_names)} scenarios"),
+            Line2D([], [], marker="o", linestyle="none", color="#c0392b",
+                   label="earliest at the site"),
+        ]
+    fig.legend(handles=items, loc="center", ncol=3,
+               bbox_to_anchor=(0.5, (footer_top + legend_h / 2.0) / fig_h),
+               frameon=False, fontsize=7.5)
+    fig.text(0.5, 1.0 - 0.2 / fig_h, title, ha="center", va="top", fontsize=12, fontweight="bold")
+    fig.text(0.5, 1.0 - 0.48 / fig_h,
+             "Sites sorted by earliest front arrival over the scenarios. Planning figures, "
+             "not promises.", ha="center", va="top", fontsize=8.5, color="#333333")
+    fig.text(0.5, 0.12 / fig_h, footer, ha="center", va="bottom", fontsize=footer_font,
+             color="#3d2e00", linespacing=1.35, gid="ttmap-caution",
+             bbox={"boxstyle": "round,pad=0.45", "facecolor": "#fff4cc",
+                   "edgecolor": "#c79a00", "linewidth": 0.9})
+    return fig
+
+
+def write_sites_by_scenarios(
+    out_dir: str | os.PathLike[str],
+    sites: Any,
+    front_paths: Mapping[str, FieldLike],
+    energy_paths: Mapping[tuple[str, float], FieldLike] | None = None,
+    *,
+    grid: Grid | None = None,
+    overwrite: bool = False,
+    **options: Any,
+) -> dict[str, Any]:
+    """Write ``sites_x_scenarios.csv``, ``earliest_by_site.csv`` and ``sites_x_scenarios.png``.
+
+    Parameters
+    ----------
+    out_dir : path-like
+        Existing output folder.
+    sites, front_paths, energy_paths, grid
+        As for :func:`sites_by_scenarios`.
+    overwrite : bool
+        Replace existing files (checked before anything is read).
+    **options
+        Budget and snapping options of :func:`sites_by_scenarios`.
+
+    Returns
+    -------
+    dict
+        ``{"table_csv", "earliest_csv", "chart_png"}`` paths and ``"table"``
+        (the columns).
+
+    Notes
+    -----
+    Both CSVs start with ``# `` + the short caution; the files are committed
+    together (:func:`ttmap.io.atomic.atomic_output_set`).
+    """
+    from types import SimpleNamespace
+
+    from ttmap.io.atomic import atomic_output_set, check_writable
+    from ttmap.io.sites import write_site_table_csv
+    from ttmap.products import budget as _budget
+    from ttmap.products.cautions import CAUTION_SHORT
+    from ttmap.products.maps import save_figure
+
+    out = Path(out_dir)
+    targets = [out / name for name in SITES_X_SCENARIOS_FILES]
+    check_writable(targets, overwrite)
+    table = sites_by_scenarios(sites, grid, front_paths, energy_paths, **options)
+    first = earliest_by_site(table)
+    base = {
+        "notification_delay_min": _budget.DEFAULT_NOTIFICATION_DELAY_MIN,
+        "preparation_min": _budget.DEFAULT_PREPARATION_MIN,
+        "walking_speed_m_s": _budget.DEFAULT_WALKING_SPEED_M_S,
+    }
+    d = {k: float(v if options.get(k) is None else options[k]) for k, v in base.items()}
+    note = (
+        "One row per site and scenario; times in minutes after origin, distances in metres. "
+        "Each site is read at one cell for every scenario: the nearest water cell reached in the "
+        "earliest-arrival envelope. minutes_left = front_min - notification delay; "
+        "minutes_needed = preparation + distance / walking speed; margin_min = minutes_left - "
+        "minutes_needed (no speed-uncertainty band). Defaults where a site gives none: "
+        f"notification delay {d['notification_delay_min']:g} min, "
+        f"preparation {d['preparation_min']:g} min, walking speed {d['walking_speed_m_s']:g} m/s. "
+        "Margins are planning figures, not promises."
+    )
+    decimals = {k: 2 for k in table if k.endswith("_min") or k.startswith("minutes_")}
+    decimals["moved_m"] = 0
+    fig = render_sites_by_scenarios(table)
+    with atomic_output_set(targets, overwrite=overwrite) as (t_table, t_first, t_png):
+        write_site_table_csv(
+            t_table, SimpleNamespace(columns=table, comments=(CAUTION_SHORT, note), decimals=decimals),
+            overwrite=True,
+        )
+        write_site_table_csv(
+            t_first,
+            SimpleNamespace(
+                columns=first,
+                comments=(
+                    CAUTION_SHORT,
+                    (
+                        "earliest_scenario: the scenario whose front reaches the site first "
+                        "(';' between ties); front_min: minutes after origin"
+                    ),
+                ),
+                decimals={"front_min": 2},
+            ),
+            overwrite=True,
+        )
+        save_figure(fig, t_png, format="png")
+    del fig
+    return {
+        "table_csv": str(targets[0]),
+        "earliest_csv": str(targets[1]),
+        "chart_png": str(targets[2]),
+        "table": table,
+    }
