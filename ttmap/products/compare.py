@@ -720,13 +720,13 @@ def render_sites_by_scenarios(
     matplotlib.figure.Figure
         On an Agg canvas (no pyplot state); the caller drops it.
     """
-    import textwrap
 
     from matplotlib import colormaps
     from matplotlib.backends.backend_agg import FigureCanvasAgg
     from matplotlib.figure import Figure
     from matplotlib.lines import Line2D
 
+    from ttmap.products._footer import caution_footer, draw_caution_footer
     from ttmap.products.cautions import CAUTION_SHORT
 
     caution = CAUTION_SHORT if caution is None else caution
@@ -752,10 +752,8 @@ def render_sites_by_scenarios(
     cmap = colormaps["tab10"]
     colour = {sc: (cmap(k) if coloured else "#9a9a9a") for k, sc in enumerate(scen_names)}
 
-    footer_font = 8.0
-    chars = max(40, int((width_in - 0.9) * 72.0 / (0.52 * footer_font)))
-    footer = textwrap.fill("Caution: " + " ".join(caution.split()), width=chars)
-    footer_top = 0.12 + (footer.count("\n") + 1) * footer_font * 1.35 / 72.0 + 0.15
+    footer = caution_footer(" ".join(caution.split()), width_in)
+    footer_top = footer.top_in(0.15)
     legend_items = len(scen_names) if coloured else 2
     legend_h = 0.22 * math.ceil((legend_items + 1) / 3) + 0.1
     bottom_in = footer_top + legend_h + 0.55
@@ -821,10 +819,7 @@ def render_sites_by_scenarios(
     fig.text(0.5, 1.0 - 0.48 / fig_h,
              "Sites sorted by earliest front arrival over the scenarios. Planning figures, "
              "not promises.", ha="center", va="top", fontsize=8.5, color="#333333")
-    fig.text(0.5, 0.12 / fig_h, footer, ha="center", va="bottom", fontsize=footer_font,
-             color="#3d2e00", linespacing=1.35, gid="ttmap-caution",
-             bbox={"boxstyle": "round,pad=0.45", "facecolor": "#fff4cc",
-                   "edgecolor": "#c79a00", "linewidth": 0.9})
+    draw_caution_footer(fig, footer, fig_h)
     return fig
 
 

@@ -16,7 +16,6 @@ from __future__ import annotations
 
 import math
 import os
-import textwrap
 from collections.abc import Sequence
 from typing import TYPE_CHECKING, Any, Literal
 
@@ -24,6 +23,7 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 from ttmap.errors import InputDataError
+from ttmap.products._footer import caution_footer, draw_caution_footer
 from ttmap.products.cautions import CAUTION_SHORT
 from ttmap.products.isochrones import IsochroneLine
 from ttmap.products.palette import ARRIVAL_CMAP
@@ -606,20 +606,8 @@ def render_arrival_map(
     fig_w, fig_h = float(figsize[0]), float(figsize[1])
     fig = Figure(figsize=(fig_w, fig_h), dpi=dpi, facecolor="white")
     FigureCanvasAgg(fig)
-    footer_font = 8.0
-    chars_per_line = max(40, int((fig_w - 0.9) * 72.0 / (0.52 * footer_font)))
-    paragraphs = [" ".join(p.split()) for p in caution.splitlines() if p.strip()]
-    if len(paragraphs) > 1:  # a list of cautions: a heading, then one bullet each
-        bullets = [
-            textwrap.fill(p, width=chars_per_line, initial_indent="\u2022 ", subsequent_indent="  ")
-            for p in paragraphs
-        ]
-        footer = "\n".join(["Caution:", *bullets])
-    else:
-        footer = textwrap.fill(f"Caution: {' '.join(paragraphs)}", width=chars_per_line)
-    footer_lines = footer.count("\n") + 1
-    footer_y = 0.12  # inches from the bottom edge to the footer text
-    footer_top = footer_y + footer_lines * footer_font * 1.35 / 72.0 + 0.06
+    footer = caution_footer(caution, fig_w)
+    footer_top = footer.top_in(0.06)
     top_h = 0.62 + (0.25 if subtitle else 0.0)
     legend_h = 0.3
     legend_y = footer_top + 0.1 + legend_h / 2.0
@@ -791,24 +779,7 @@ def render_arrival_map(
         fig.text(
             0.5, 1.0 - 0.55 / fig_h, subtitle, ha="center", va="top", fontsize=9.5, color="#333333"
         )
-    fig.text(
-        0.5,
-        footer_y / fig_h,
-        footer,
-        ha="center",
-        va="bottom",
-        fontsize=footer_font,
-        color="#3d2e00",
-        linespacing=1.35,
-        multialignment="left" if len(paragraphs) > 1 else "center",
-        gid="ttmap-caution",
-        bbox={
-            "boxstyle": "round,pad=0.45",
-            "facecolor": "#fff4cc",
-            "edgecolor": "#c79a00",
-            "linewidth": 0.9,
-        },
-    )
+    draw_caution_footer(fig, footer, fig_h)
     return fig
 
 

@@ -25,7 +25,6 @@ the figure is built on an Agg canvas without ``pyplot``, as in
 from __future__ import annotations
 
 import math
-import textwrap
 from collections.abc import Mapping, Sequence
 from typing import TYPE_CHECKING, Any
 
@@ -33,6 +32,7 @@ import numpy as np
 
 from ttmap.errors import InputDataError
 from ttmap.products.budget import LITTLE_MARGIN_MIN
+from ttmap.products._footer import caution_footer, draw_caution_footer
 from ttmap.products.cautions import CAUTION_SHORT
 
 if TYPE_CHECKING:
@@ -202,12 +202,8 @@ def render_timeline(
     left_in = min(3.0, 0.45 + 0.075 * name_chars)
     right_in = 1.7
     fig_w = float(width_in)
-    footer_font = 8.0
-    chars = max(40, int((fig_w - 0.9) * 72.0 / (0.52 * footer_font)))
-    footer = textwrap.fill("Caution: " + " ".join(caution.split()), width=chars)
-    footer_lines = footer.count("\n") + 1
-    footer_y = 0.12
-    footer_top = footer_y + footer_lines * footer_font * 1.35 / 72.0 + 0.1
+    footer = caution_footer(" ".join(caution.split()), fig_w)
+    footer_top = footer.top_in(0.1)
     legend_rows = math.ceil((6 + len(periods)) / 3)
     legend_h = 0.22 * legend_rows + 0.1
     bottom_in = footer_top + 0.1 + legend_h + 0.5
@@ -390,21 +386,5 @@ def render_timeline(
         fig.text(
             0.5, 1.0 - 0.52 / fig_h, subtitle, ha="center", va="top", fontsize=8.5, color="#333333"
         )
-    fig.text(
-        0.5,
-        footer_y / fig_h,
-        footer,
-        ha="center",
-        va="bottom",
-        fontsize=footer_font,
-        color="#3d2e00",
-        linespacing=1.35,
-        gid="ttmap-caution",
-        bbox={
-            "boxstyle": "round,pad=0.45",
-            "facecolor": "#fff4cc",
-            "edgecolor": "#c79a00",
-            "linewidth": 0.9,
-        },
-    )
+    draw_caution_footer(fig, footer, fig_h)
     return fig
