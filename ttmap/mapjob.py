@@ -617,6 +617,16 @@ def _json_default(o: Any) -> Any:
     return str(o)
 
 
+
+def _bathymetry_record(path: str, bathy: Any) -> dict[str, Any]:
+    """The bathymetry entry of a run record: where, which hash, how it was read."""
+    return {
+        "path": os.path.abspath(path),
+        "sha256": bathy.sha256,
+        "band": bathy.band,
+        "notes": list(bathy.notes),
+    }
+
 def _run_record(job: MapJob, bathy: Any, sets: list[ProductSet], summaries: dict[str, Any],
                 timings: dict[str, float], written: list[str], started: str) -> dict[str, Any]:
     from ttmap.products.cautions import CAUTION_LINES
@@ -628,14 +638,7 @@ def _run_record(job: MapJob, bathy: Any, sets: list[ProductSet], summaries: dict
         "finished_utc": _iso_now(),
         "command_line": job.command_line,
         "cautions": list(CAUTION_LINES),
-        "inputs": {
-            "bathymetry": {
-                "path": os.path.abspath(job.bathymetry),
-                "sha256": bathy.sha256,
-                "band": bathy.band,
-                "notes": list(bathy.notes),
-            },
-        },
+        "inputs": {"bathymetry": _bathymetry_record(job.bathymetry, bathy)},
         "parameters": {
             "source": job.source.describe(),
             "depth_positive": job.depth_positive,
@@ -1115,14 +1118,7 @@ def run_site_map_job(job: SiteMapJob, *, progress: Callable[[str], None] | None 
         "command_line": job.command_line,
         "cautions": list(CAUTION_LINES),
         "reciprocity": RECIPROCITY_NOTE,
-        "inputs": {
-            "bathymetry": {
-                "path": os.path.abspath(job.bathymetry),
-                "sha256": bathy.sha256,
-                "band": bathy.band,
-                "notes": list(bathy.notes),
-            },
-        },
+        "inputs": {"bathymetry": _bathymetry_record(job.bathymetry, bathy)},
         "parameters": {
             "sites": [{"name": s.name, "x": s.x, "y": s.y, "notification_delay_min": s.notification_delay_min}
                       for s in job.sites],
