@@ -73,6 +73,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
+from ttmap.defaults import FLOOR_DEPTH_M, CONNECT_TIMEOUT_S, EXECUTORS, MEDIA_PER_WORKER
 from ttmap.errors import InputDataError, OutputExistsError, TtmapError, TtmapWarning
 from ttmap.sources import Source
 
@@ -87,21 +88,7 @@ __all__ = [
     "run_tasks",
     "task_output_paths",
     "check_executor",
-    "EXECUTORS",
-    "MEDIA_PER_WORKER",
 ]
-
-#: Executor names besides a scheduler address.
-EXECUTORS: tuple[str, ...] = ("serial", "local")
-
-#: Seconds to wait for a scheduler given by address.
-CONNECT_TIMEOUT_S: float = 20.0
-
-#: Prepared media a worker keeps at once. Each is several grid-sized arrays;
-#: with one, a worker's peak is that of a single job (what :mod:`ttmap.memory`
-#: estimates). Tasks are queued grouped by (mode, period), so a worker switches
-#: medium about once per group; raise this only when memory allows.
-MEDIA_PER_WORKER: int = 1
 
 _NAME_RE = re.compile(r"^[A-Za-z0-9_.-]+$")
 _ADDRESS_RE = re.compile(r"^([a-z][a-z0-9+.-]*://)?[^\s/:]+:\d{1,5}$|^[a-z][a-z0-9+.-]*://\S+$")
@@ -130,7 +117,7 @@ class MediumSpec:
     window: tuple[float, float, float, float] | None = None
     window_crs: str | None = "EPSG:4326"
     coarsen: int = 1
-    floor_depth_m: float = 5.0
+    floor_depth_m: float = FLOOR_DEPTH_M
     far_field: bool = False
     earth: str = "wgs84"
 

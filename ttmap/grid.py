@@ -36,6 +36,7 @@ import numpy as np
 from affine import Affine
 from pyproj import CRS
 
+from ttmap.defaults import EARTH_MODELS
 from ttmap._typing import EarthModel, FloatArray, IntArray
 from ttmap.errors import GridError
 from ttmap.physics.constants import MEAN_EARTH_RADIUS_M, WGS84_A_M, WGS84_E, WGS84_E2
@@ -48,16 +49,12 @@ __all__ = [
     "latitude_from_isometric",
     "mercator_scale_factor",
     "MAX_ABS_LATITUDE_DEG",
-    "EARTH_MODELS",
 ]
 
 #: Grids reaching closer to a pole than this are refused: the Mercator scale
 #: factor (11.5 at 85 degrees) would make the solve plane too large, and
 #: tsunami travel-time maps there are rarely meaningful at gridded resolution.
 MAX_ABS_LATITUDE_DEG: float = 85.0
-
-#: Figures of the Earth accepted for geographic grids.
-EARTH_MODELS: tuple[str, ...] = ("wgs84", "sphere")
 
 # Relative tolerance used when deciding whether a grid spans 360 degrees.
 _WRAP_RTOL = 1e-6

@@ -47,16 +47,12 @@ from typing import Any, cast
 
 import numpy as np
 
+from ttmap.defaults import FLOOR_DEPTH_M, MAP_FORMATS, VECTOR_FORMATS
 from ttmap.errors import InputDataError, SourceError, TtmapWarning
 from ttmap.memory import check_memory
-from ttmap.products.budget import (
-    DEFAULT_NOTIFICATION_DELAY_MIN,
-    DEFAULT_PREPARATION_MIN,
-    DEFAULT_WALKING_SPEED_M_S,
-    LITTLE_MARGIN_MIN,
-)
-from ttmap.products.coast import DEFAULT_CLASS_INTERVAL_MIN
-from ttmap.products.sites import DEFAULT_SEARCH_RADIUS_M, DEFAULT_SPEED_UNCERTAINTY
+from ttmap.defaults import NOTIFICATION_DELAY_MIN, PREPARATION_MIN, WALKING_SPEED_M_S, LITTLE_MARGIN_MIN
+from ttmap.defaults import COAST_CLASS_INTERVAL_MIN
+from ttmap.defaults import SITE_SEARCH_RADIUS_M, SPEED_UNCERTAINTY
 from ttmap.sources import Source
 from ttmap.traveltime import TravelTimeResult, prepare_medium
 
@@ -70,9 +66,6 @@ __all__ = [
     "run_site_map_job",
     "software_versions",
 ]
-
-VECTOR_FORMATS: dict[str, str] = {"gpkg": ".gpkg", "shp": ".shp", "geojson": ".geojson"}
-MAP_FORMATS: tuple[str, ...] = ("png", "pdf")
 
 
 @dataclass(frozen=True)
@@ -121,7 +114,7 @@ class MapJob:
     period_mode: str = "group"
     front: bool = True
     far_field: bool = False
-    floor_depth_m: float = 5.0
+    floor_depth_m: float = FLOOR_DEPTH_M
     earth: str = "wgs84"
     max_time_s: float | None = None
     snap_radius_m: float | None = None
@@ -131,17 +124,17 @@ class MapJob:
     overwrite: bool = False
     command_line: str = ""
     coast: bool = True
-    coast_interval_min: float = DEFAULT_CLASS_INTERVAL_MIN
+    coast_interval_min: float = COAST_CLASS_INTERVAL_MIN
     sites: str | None = None
     sites_layer: str | None = None
     sites_name_field: str | None = None
     sites_crs: str | None = None
-    site_search_radius_m: float = DEFAULT_SEARCH_RADIUS_M
-    speed_uncertainty: float = DEFAULT_SPEED_UNCERTAINTY
+    site_search_radius_m: float = SITE_SEARCH_RADIUS_M
+    speed_uncertainty: float = SPEED_UNCERTAINTY
     origin_time_utc: _dt.datetime | None = None
-    notification_delay_min: float = DEFAULT_NOTIFICATION_DELAY_MIN
-    preparation_min: float = DEFAULT_PREPARATION_MIN
-    walking_speed_m_s: float = DEFAULT_WALKING_SPEED_M_S
+    notification_delay_min: float = NOTIFICATION_DELAY_MIN
+    preparation_min: float = PREPARATION_MIN
+    walking_speed_m_s: float = WALKING_SPEED_M_S
     little_margin_min: float = LITTLE_MARGIN_MIN
     timeline_title: str | None = None
     extra: dict[str, Any] = field(default_factory=dict)
@@ -905,10 +898,10 @@ class SiteMapJob:
     period_s: float | None = None
     period_mode: str = "group"
     far_field: bool = False
-    floor_depth_m: float = 5.0
+    floor_depth_m: float = FLOOR_DEPTH_M
     earth: str = "wgs84"
-    notification_delay_min: float = DEFAULT_NOTIFICATION_DELAY_MIN
-    snap_radius_m: float = DEFAULT_SEARCH_RADIUS_M
+    notification_delay_min: float = NOTIFICATION_DELAY_MIN
+    snap_radius_m: float = SITE_SEARCH_RADIUS_M
     max_time_s: float | None = None
     isochrone_interval_min: float | None = None
     vector_formats: Sequence[str] = ("gpkg",)
@@ -977,12 +970,12 @@ def run_site_map_job(job: SiteMapJob, *, progress: Callable[[str], None] | None 
     from ttmap.io.atomic import atomic_output, check_writable
     from ttmap.io.raster import read_bathymetry
     from ttmap.sitemap import (
-        MAX_NOTIFICATION_DELAY_MIN,
         combine_site_times,
         site_centred_times,
         write_combined_products,
         write_site_products,
     )
+    from ttmap.defaults import MAX_NOTIFICATION_DELAY_MIN
 
     say = progress or (lambda msg: None)
     for fmt in job.vector_formats:

@@ -34,13 +34,13 @@ from collections.abc import Sequence
 from pathlib import Path
 from typing import Any
 
+from ttmap.defaults import MEMORY_SHARE
 from ttmap.errors import InputDataError
 
 __all__ = [
     "BYTES_PER_NATIVE_CELL",
     "BYTES_PER_SOLVE_CELL",
     "BASE_BYTES",
-    "DEFAULT_MEMORY_SHARE",
     "estimate_peak_bytes",
     "total_memory_bytes",
     "check_memory",
@@ -71,9 +71,6 @@ BYTES_PER_NATIVE_CELL: float = 22.0
 BYTES_PER_SOLVE_CELL: float = 52.0
 #: Fixed part of the peak beyond the imported libraries, bytes.
 BASE_BYTES: float = 20.0 * 2**20
-
-#: Share of the machine's memory one run may plan to use.
-DEFAULT_MEMORY_SHARE: float = 0.6
 
 _FIX = "crop with --crop-lonlat or coarsen with --coarsen N"
 
@@ -167,7 +164,7 @@ def check_memory(
     grid: Any,
     *,
     limit_bytes: int | None = None,
-    share: float = DEFAULT_MEMORY_SHARE,
+    share: float = MEMORY_SHARE,
     workers: int = 1,
     earth: str = "wgs84",
 ) -> int:

@@ -76,19 +76,14 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
+from ttmap.defaults import FLOOR_DEPTH_M, EARTH_MODELS, EXECUTORS, MAX_TRENCH_RUPTURES, PERIOD_SPEEDS
 from ttmap.batch import MediumSpec, SolveTask
 from ttmap.errors import InputDataError, TtmapError
-from ttmap.physics.scaling import (
-    DEFAULT_RELATION,
-    MW_MAX,
-    MW_MIN,
-    SCALING_RELATIONS,
-    rupture_size_km,
-)
+from ttmap.physics.scaling import MW_MAX, MW_MIN, SCALING_RELATIONS, rupture_size_km
+from ttmap.defaults import SCALING_RELATION
 from ttmap.sources import Source
 
 __all__ = [
-    "EXECUTOR_NAMES",
     "RUPTURE_KEYS",
     "SECTION_KEYS",
     "BathymetrySettings",
@@ -145,15 +140,8 @@ RUPTURE_KEYS: tuple[str, ...] = (
     "mw",
     "scaling_law",
 )
-#: Executor names besides a scheduler address.
-EXECUTOR_NAMES: tuple[str, ...] = ("serial", "local")
-
 _SOURCE_FORMS = ("point", "rupture", "source_file")
-_EARTH_MODELS = ("wgs84", "sphere")
-_PERIOD_SPEEDS = ("group", "phase")
 _NAME_RE = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.-]{0,63}$")
-#: Largest number of ruptures one [[trench]] may generate.
-MAX_TRENCH_RUPTURES = 99
 _STEPS = tuple(k / 8.0 for k in range(9))
 
 KeyPath = tuple[str | int, ...]
@@ -412,7 +400,7 @@ class BathymetrySettings:
 class SpeedSettings:
     """The ``[speed]`` table."""
 
-    floor_depth_m: float = 5.0
+    floor_depth_m: float = FLOOR_DEPTH_M
     far_field: bool = False
     earth: str = "wgs84"
     periods_s: tuple[float, ...] = ()
@@ -687,7 +675,7 @@ def check_executor(value: Any) -> str | None:
     if problem is None:
         return None
     if isinstance(value, str):
-        close = difflib.get_close_matches(value, list(EXECUTOR_NAMES), n=1, cutoff=0.6)
+        close = difflib.get_close_matches(value, list(EXECUTORS), n=1, cutoff=0.6)
         if close:
             problem += f"; did you mean {close[0]!r}?"
     return problem
@@ -1177,8 +1165,8 @@ class _Loader:
         self.known_keys(tbl, SECTION_KEYS["speed"], path)
         floor = self.number(tbl, "floor_depth_m", path, positive=True)
         far = self.boolean(tbl, "far_field", path, False)
-        earth = self.text(tbl, "earth", path, choices=_EARTH_MODELS)
-        mode = self.text(tbl, "period_speed", path, choices=_PERIOD_SPEEDS)
+        earth = self.text(tbl, "earth", path, choices=EARTH_MODELS)
+        mode = self.text(tbl, "period_speed", path, choices=PERIOD_SPEEDS)
         periods: list[float] = []
         if "periods_s" in tbl:
             v = tbl["periods_s"]
@@ -1209,7 +1197,7 @@ class _Loader:
                     else:
                         periods.append(float(p))
         return SpeedSettings(
-            floor_depth_m=5.0 if floor is None else floor,
+            floor_depth_m=FLOOR_DEPTH_M if floor is None else floor,
             far_field=far,
             earth=earth or "wgs84",
             periods_s=tuple(periods),
@@ -1248,7 +1236,7 @@ class _Loader:
 
     def scaling_law(self, tbl: Mapping[str, Any], path: KeyPath) -> str | None:
         if "scaling_law" not in tbl:
-            return DEFAULT_RELATION
+            return SCALING_RELATION
         return self.text(tbl, "scaling_law", path, choices=tuple(SCALING_RELATIONS))
 
     def scenario(self, tbl: Any, i: int, bathy: BathymetrySettings | None) -> ScenarioSpec | None:

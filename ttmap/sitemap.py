@@ -55,6 +55,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
+from ttmap.defaults import MAP_FORMATS, MAX_NOTIFICATION_DELAY_MIN, SITE_SEARCH_RADIUS_M, VECTOR_FORMATS
 from ttmap._typing import FloatArray
 from ttmap.errors import InputDataError, SourceError
 from ttmap.grid import Grid
@@ -65,8 +66,6 @@ if TYPE_CHECKING:
     from matplotlib.figure import Figure
 
 __all__ = [
-    "DEFAULT_SITE_SNAP_RADIUS_M",
-    "MAX_NOTIFICATION_DELAY_MIN",
     "RECIPROCITY_NOTE",
     "SITE_MAP_TITLE",
     "combine_site_times",
@@ -81,12 +80,6 @@ __all__ = [
     "write_site_products",
 ]
 
-#: Default search radius for moving a site to open water (sites sit on the coast).
-DEFAULT_SITE_SNAP_RADIUS_M: float = 2000.0
-
-#: Largest notification delay accepted, minutes (one day).
-MAX_NOTIFICATION_DELAY_MIN: float = 1440.0
-
 #: Tag text stored with every site-centred raster.
 RECIPROCITY_NOTE: str = (
     "time from a source at this cell to the site; reciprocal times hold for isotropic "
@@ -99,8 +92,6 @@ SITE_MAP_TITLE: str = "Minutes from a source here to {site}"
 
 _NODATA = -9999.0
 _INDEX_NODATA = -1
-_VECTOR_SUFFIXES: dict[str, str] = {"gpkg": ".gpkg", "shp": ".shp", "geojson": ".geojson"}
-_MAP_FORMATS: tuple[str, ...] = ("png", "pdf")
 _ISO_LAYERS = ("isochrone_lines", "isochrone_bands")
 _SHP_COMPANIONS = (".shx", ".dbf", ".prj", ".cpg")
 #: Colour of the "wave arrives before the message" class of the minutes-left style.
@@ -135,7 +126,7 @@ def site_centred_times(
     site: Source | tuple[float, float],
     *,
     name: str | None = None,
-    snap_radius_m: float | None = DEFAULT_SITE_SNAP_RADIUS_M,
+    snap_radius_m: float | None = SITE_SEARCH_RADIUS_M,
     max_time_s: float | None = None,
 ) -> TravelTimeResult:
     """Time from every possible source cell to a site, from one solve started at the site.
@@ -425,14 +416,14 @@ def site_file_stem(name: str) -> str:
 
 def _check_formats(vector_formats: Sequence[str], map_formats: Sequence[str]) -> None:
     for fmt in vector_formats:
-        if fmt not in _VECTOR_SUFFIXES:
+        if fmt not in VECTOR_FORMATS:
             raise InputDataError(
-                f"vector format {fmt!r} is unknown; choose from {', '.join(_VECTOR_SUFFIXES)}"
+                f"vector format {fmt!r} is unknown; choose from {', '.join(VECTOR_FORMATS)}"
             )
     for fmt in map_formats:
-        if fmt not in _MAP_FORMATS:
+        if fmt not in MAP_FORMATS:
             raise InputDataError(
-                f"map format {fmt!r} is unknown; choose from {', '.join(_MAP_FORMATS)}"
+                f"map format {fmt!r} is unknown; choose from {', '.join(MAP_FORMATS)}"
             )
 
 
@@ -465,7 +456,7 @@ def site_product_paths(
     ]
     for fmt in vector_formats:
         paths += vector_output_paths(
-            out / f"isochrones_site_{stem}{_VECTOR_SUFFIXES[fmt]}", _ISO_LAYERS
+            out / f"isochrones_site_{stem}{VECTOR_FORMATS[fmt]}", _ISO_LAYERS
         )
     paths += [out / f"isochrones_site_{stem}_lines.sld", out / f"isochrones_site_{stem}_bands.sld"]
     if "shp" in vector_formats:
@@ -825,7 +816,7 @@ def _write_site_set(
     )
     for fmt in vector_formats:
         write_vector_layers(
-            folder / f"isochrones_site_{stem}{_VECTOR_SUFFIXES[fmt]}",
+            folder / f"isochrones_site_{stem}{VECTOR_FORMATS[fmt]}",
             [line_layer, band_layer],
             crs=grid.crs,
         )

@@ -23,11 +23,13 @@ from typing import Any
 
 import numpy as np
 
+from ttmap.defaults import MAX_PROJECTED_SCALE_ERROR, MIN_BASIN_SHARE
 from ttmap._typing import BoolArray, EarthModel, FloatArray, IntArray
 from ttmap.connectivity import connect_water
 from ttmap.errors import InputDataError, TtmapWarning
 from ttmap.grid import Grid, SolvePlane, solve_plane
-from ttmap.physics.speed import DEFAULT_FLOOR_DEPTH_M, check_speed_options, water_speed_m_s
+from ttmap.physics.speed import check_speed_options, water_speed_m_s
+from ttmap.defaults import FLOOR_DEPTH_M
 from ttmap.solver import fast_march_s
 from ttmap.sources import Source, place_source
 
@@ -37,17 +39,7 @@ __all__ = [
     "TravelTimeSummary",
     "prepare_medium",
     "compute_travel_time",
-    "DEFAULT_MIN_BASIN_SHARE",
-    "MAX_PROJECTED_SCALE_ERROR",
 ]
-
-#: A water body holding less than this share of the grid's water, and not
-#: the largest one, is a closed basin: sources may not start there.
-DEFAULT_MIN_BASIN_SHARE: float = 0.01
-
-#: A projected grid whose CRS scales ground distances at the grid's centre by
-#: more than this fraction (either way) gets a warning from prepare_medium.
-MAX_PROJECTED_SCALE_ERROR: float = 0.01
 
 # A solve lends the medium's speed array to the solver, which changes a few cells of it
 # for the duration of the march (ttmap.solver, borrow_speed). Solves are serialised per
@@ -329,11 +321,11 @@ def prepare_medium(
     *,
     mode: str = "long-wave",
     period_s: float | None = None,
-    floor_depth_m: float = DEFAULT_FLOOR_DEPTH_M,
+    floor_depth_m: float = FLOOR_DEPTH_M,
     far_field: bool = False,
     earth: EarthModel = "wgs84",
     open_diagonal: bool = True,
-    min_basin_share: float = DEFAULT_MIN_BASIN_SHARE,
+    min_basin_share: float = MIN_BASIN_SHARE,
 ) -> Medium:
     """Turn a depth grid into a solve-ready speed field.
 
@@ -530,7 +522,7 @@ def compute_travel_time(
     *,
     mode: str = "long-wave",
     period_s: float | None = None,
-    floor_depth_m: float = DEFAULT_FLOOR_DEPTH_M,
+    floor_depth_m: float = FLOOR_DEPTH_M,
     far_field: bool = False,
     earth: EarthModel = "wgs84",
     max_time_s: float | None = None,
@@ -552,6 +544,6 @@ def compute_travel_time(
     medium = _prepare_medium(
         depth_m, grid, mode=mode, period_s=period_s, floor_depth_m=floor_depth_m,
         far_field=far_field, earth=earth, open_diagonal=True,
-        min_basin_share=DEFAULT_MIN_BASIN_SHARE,
+        min_basin_share=MIN_BASIN_SHARE,
     )
     return medium.travel_time(source, max_time_s=max_time_s, snap_radius_m=snap_radius_m)

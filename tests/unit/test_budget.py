@@ -11,6 +11,7 @@ import math
 import numpy as np
 import pytest
 
+from ttmap import defaults
 from ttmap.errors import InputDataError
 from ttmap.products import budget as b
 from ttmap.products.budget import (
@@ -34,19 +35,19 @@ from ttmap.products.budget import (
 def test_default_walking_speed_is_the_observed_2011_mean():
     # Mean evacuation speed observed in 2011, 2.65 km/h (MLIT survey, REFERENCE.md section 6
     # [S, secondary source]); the 2002 guideline assumed 3.6 km/h = 1.0 m/s.
-    assert b.DEFAULT_WALKING_SPEED_M_S == pytest.approx(2.65 / 3.6, abs=0.005)
-    assert b.DEFAULT_WALKING_SPEED_M_S == 0.74
-    assert b.DEFAULT_WALKING_SPEED_M_S < 3.6 / 3.6  # more cautious than the guideline's 1.0 m/s
+    assert defaults.WALKING_SPEED_M_S == pytest.approx(2.65 / 3.6, abs=0.005)
+    assert defaults.WALKING_SPEED_M_S == 0.74
+    assert defaults.WALKING_SPEED_M_S < 3.6 / 3.6  # more cautious than the guideline's 1.0 m/s
 
 
 def test_default_delays_are_the_cited_values():
     # Departure delay of the guideline's worked example: 3 min (REFERENCE.md section 6 [S]).
-    assert b.DEFAULT_PREPARATION_MIN == 3.0
+    assert defaults.PREPARATION_MIN == 3.0
     # Warning centres "can often" message within 10 min (IOC/ITIC glossary, REFERENCE.md
     # section 6 [S]).
-    assert b.DEFAULT_NOTIFICATION_DELAY_MIN == 10.0
+    assert defaults.NOTIFICATION_DELAY_MIN == 10.0
     # Little-margin threshold: common practice, no source.
-    assert b.LITTLE_MARGIN_MIN == 5.0
+    assert defaults.LITTLE_MARGIN_MIN == 5.0
 
 
 def test_module_text_cites_each_default():
@@ -207,6 +208,6 @@ def test_budget_refuses_bad_values(kwargs, match):
         "walking_speed_m_s": 1.0,
     }
     args.update(kwargs)
-    little = args.pop("little_margin_min", b.LITTLE_MARGIN_MIN)
+    little = args.pop("little_margin_min", defaults.LITTLE_MARGIN_MIN)
     with pytest.raises(InputDataError, match=match):
         warning_budget(**args, little_margin_min=little)

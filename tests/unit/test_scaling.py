@@ -18,12 +18,12 @@ from numpy.testing import assert_allclose
 from ttmap.errors import InputDataError
 from ttmap.physics import scaling
 from ttmap.physics.scaling import (
-    DEFAULT_RELATION,
     SCALING_RELATIONS,
     ScalingRelation,
     rupture_size_km,
     seismic_moment_n_m,
 )
+from ttmap.defaults import SCALING_RELATION
 
 ALL_KEYS = {
     "strasser2010-interface",
@@ -80,7 +80,7 @@ def test_registry_holds_exactly_the_documented_relations():
 
 
 def test_default_relation_is_strasser_interface():
-    assert DEFAULT_RELATION == "strasser2010-interface"
+    assert SCALING_RELATION == "strasser2010-interface"
     assert rupture_size_km(8.5) == rupture_size_km(8.5, "strasser2010-interface")
 
 
@@ -126,7 +126,7 @@ def test_relation_is_frozen():
 
 def test_registry_is_read_only():
     with pytest.raises(TypeError):
-        SCALING_RELATIONS["mine"] = SCALING_RELATIONS[DEFAULT_RELATION]  # type: ignore[index]
+        SCALING_RELATIONS["mine"] = SCALING_RELATIONS[SCALING_RELATION]  # type: ignore[index]
 
 
 # --- check rows -----------------------------------------------------------------------------

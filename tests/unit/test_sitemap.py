@@ -27,7 +27,6 @@ from ttmap import Grid, Source, prepare_medium
 from ttmap.errors import InputDataError, OutputExistsError, SourceError
 from ttmap.products.cautions import CAUTION_SHORT
 from ttmap.sitemap import (
-    DEFAULT_SITE_SNAP_RADIUS_M,
     RECIPROCITY_NOTE,
     combine_site_times,
     combine_sites,
@@ -40,6 +39,7 @@ from ttmap.sitemap import (
     write_combined_products,
     write_site_products,
 )
+from ttmap.defaults import SITE_SEARCH_RADIUS_M
 
 G_M_S2 = 9.80665  # standard gravity, exact (3rd CGPM 1901; REFERENCE.md section 9)
 DEPTH_M = 1000.0
@@ -83,7 +83,7 @@ def test_site_on_land_is_moved_to_the_nearest_water_and_the_move_is_reported(med
     assert sm.source_moved_m == pytest.approx(1400.0)  # from x = 70.9 km to the centre 69.5 km
     assert harbour.settings["site"] == "Harbour"
     assert harbour.settings["site_moved_m"] == pytest.approx(1400.0)
-    assert harbour.settings["snap_radius_m"] == DEFAULT_SITE_SNAP_RADIUS_M
+    assert harbour.settings["snap_radius_m"] == SITE_SEARCH_RADIUS_M
     assert harbour.settings["reciprocity"] == RECIPROCITY_NOTE
     assert harbour.source.kind == "point" and harbour.source.params["x"] == centre(30, 70)[0] + 400
 

@@ -33,7 +33,6 @@ from ttmap.products.budget import (
 )
 from ttmap.products.cautions import CAUTION_SHORT
 from ttmap.products.sites import (
-    DEFAULT_SEARCH_RADIUS_M,
     SNAP_MOVED,
     SNAP_NO_WATER,
     SNAP_OK,
@@ -42,6 +41,7 @@ from ttmap.products.sites import (
     site_table_layer,
     snap_sites,
 )
+from ttmap.defaults import SITE_SEARCH_RADIUS_M
 
 DEMO_SITES = Path(ttmap.__file__).parent / "demo_data" / "demo_sites.csv"
 UTM56S = "EPSG:32756"  # UTM zone 56 south: central meridian 153 E (6 * 56 - 183)
@@ -294,7 +294,7 @@ def test_far_inland_and_outside_sites_are_reported_not_dropped(coast):
     assert snap_sites(near, grid, front)[0].status == SNAP_NO_WATER  # default 2 km
     far = snap_sites(near, grid, front, search_radius_m=6_000.0)[0]
     assert far.status == SNAP_MOVED and far.moved_m == pytest.approx(5_050.0)
-    assert DEFAULT_SEARCH_RADIUS_M == 2000.0
+    assert SITE_SEARCH_RADIUS_M == 2000.0
 
 
 def test_lonlat_sites_are_transformed_to_the_grid_crs(coast):

@@ -16,13 +16,13 @@ from ttmap.errors import InputDataError
 from ttmap.physics import speed as speed_module
 from ttmap.physics.dispersion import group_speed_m_s, long_wave_speed_m_s
 from ttmap.physics.speed import (
-    DEFAULT_FLOOR_DEPTH_M,
     SPEED_MODES,
     far_field_effective_depth_m,
     floor_depth,
     water_speed_m_s,
     wave_speed_m_s,
 )
+from ttmap.defaults import FLOOR_DEPTH_M
 
 G_M_S2 = 9.80665  # standard gravity, exact (3rd CGPM 1901; REFERENCE.md section 9 [S])
 
@@ -47,7 +47,7 @@ def test_floor_depth_raises_shallow_water_only():
 
 def test_default_floor_depth_is_5_m():
     # Common practice, no source (see the module notes).
-    assert DEFAULT_FLOOR_DEPTH_M == 5.0
+    assert FLOOR_DEPTH_M == 5.0
     assert float(wave_speed_m_s(1.0)) == pytest.approx(np.sqrt(G_M_S2 * 5.0), rel=1e-14)
 
 
@@ -209,7 +209,7 @@ def test_water_speed_is_bit_for_bit_wave_speed(mode, period_s, far_field):
     depth[rng.random(depth.shape) < 0.1] = np.nan
     depth[0, :3] = [np.inf, -np.inf, 2.0]
     expected = wave_speed_m_s(depth, mode=mode, period_s=period_s, far_field=far_field)
-    d = floor_depth(depth, DEFAULT_FLOOR_DEPTH_M)
+    d = floor_depth(depth, FLOOR_DEPTH_M)
     land = ~(np.isfinite(d) & (d > 0.0))
     before = d.copy()
     got = water_speed_m_s(d, land=land, mode=mode, period_s=period_s, far_field=far_field)

@@ -20,14 +20,9 @@ from ttmap.cli.options import (
     verbosity_options,
 )
 from ttmap.physics.scaling import SCALING_RELATIONS
-from ttmap.products.budget import (
-    DEFAULT_NOTIFICATION_DELAY_MIN,
-    DEFAULT_PREPARATION_MIN,
-    DEFAULT_WALKING_SPEED_M_S,
-    LITTLE_MARGIN_MIN,
-)
-from ttmap.products.coast import DEFAULT_CLASS_INTERVAL_MIN
-from ttmap.products.sites import DEFAULT_SEARCH_RADIUS_M, DEFAULT_SPEED_UNCERTAINTY
+from ttmap.defaults import FLOOR_DEPTH_M, NOTIFICATION_DELAY_MIN, PREPARATION_MIN, WALKING_SPEED_M_S, LITTLE_MARGIN_MIN
+from ttmap.defaults import COAST_CLASS_INTERVAL_MIN
+from ttmap.defaults import SITE_SEARCH_RADIUS_M, SPEED_UNCERTAINTY
 
 __all__ = [
     "bathymetry_options",
@@ -105,24 +100,24 @@ def site_table_options(f: Any) -> Any:
                      show_default=True, callback=finite_callback,
                      help="Margins below this are flagged as little.")(f)
     f = click.option("--walking-speed-m-s", type=click.FloatRange(min=0.0, min_open=True),
-                     default=DEFAULT_WALKING_SPEED_M_S, show_default=True, callback=finite_callback,
+                     default=WALKING_SPEED_M_S, show_default=True, callback=finite_callback,
                      help="Walking speed for sites that give none (mean observed in the 2011 "
                           "evacuations; slower than the older 1.0 m/s planning value).")(f)
-    f = click.option("--preparation-min", type=click.FloatRange(min=0.0), default=DEFAULT_PREPARATION_MIN,
+    f = click.option("--preparation-min", type=click.FloatRange(min=0.0), default=PREPARATION_MIN,
                      show_default=True, callback=finite_callback,
                      help="Minutes before people start walking, for sites that give none.")(f)
     f = click.option("--notification-delay-min", type=click.FloatRange(0.0, 1440.0),
-                     default=DEFAULT_NOTIFICATION_DELAY_MIN, show_default=True, callback=finite_callback,
+                     default=NOTIFICATION_DELAY_MIN, show_default=True, callback=finite_callback,
                      help="Minutes from the earthquake until an official message can reach people, "
                           "for sites that give none.")(f)
     f = click.option("--origin-time", metavar="ISO8601", callback=origin_time_callback,
                      help="Earthquake origin time with a zone (e.g. 2026-03-01T03:12:00Z); adds UTC "
                           "clock times to the site table.")(f)
     f = click.option("--speed-uncertainty-pct", type=click.FloatRange(0.0, 100.0, max_open=True),
-                     default=100.0 * DEFAULT_SPEED_UNCERTAINTY, show_default=True, callback=finite_callback,
+                     default=100.0 * SPEED_UNCERTAINTY, show_default=True, callback=finite_callback,
                      help="Stated +/- wave-speed uncertainty behind the earliest/latest columns.")(f)
     f = click.option("--site-search-radius-km", type=click.FloatRange(min=0.0),
-                     default=DEFAULT_SEARCH_RADIUS_M / 1000.0, show_default=True, callback=finite_callback,
+                     default=SITE_SEARCH_RADIUS_M / 1000.0, show_default=True, callback=finite_callback,
                      help="Read a site's time at the nearest reached water cell within this distance.")(f)
     return site_file_options(f)
 
@@ -210,7 +205,7 @@ def build_source(opts: dict[str, Any]) -> Any:
 @click.option("--no-map", is_flag=True, help="Skip the map picture.")
 @click.option("--coast/--no-coast", default=True, show_default=True,
               help="Write the coastal arrival layer (coastline stretches with first-arrival minutes).")
-@click.option("--coast-interval-min", type=float, default=DEFAULT_CLASS_INTERVAL_MIN, show_default=True,
+@click.option("--coast-interval-min", type=float, default=COAST_CLASS_INTERVAL_MIN, show_default=True,
               callback=positive_callback, help="Width of the coastal arrival classes, minutes.")
 @site_table_options
 @bathymetry_options
@@ -273,7 +268,7 @@ def job_from_options(bathymetry: str, opts: dict[str, Any]) -> Any:
         period_mode=opts.get("period_speed", "group"),
         front=opts.get("front", True),
         far_field=opts.get("far_field_correction", False),
-        floor_depth_m=opts.get("floor_depth_m", 5.0),
+        floor_depth_m=opts.get("floor_depth_m", FLOOR_DEPTH_M),
         earth=opts.get("earth", "wgs84"),
         max_time_s=None if opts.get("max_time_h") is None else opts["max_time_h"] * 3600.0,
         snap_radius_m=None if opts.get("snap_radius_km") is None else opts["snap_radius_km"] * 1000.0,
@@ -283,17 +278,17 @@ def job_from_options(bathymetry: str, opts: dict[str, Any]) -> Any:
         overwrite=opts.get("overwrite", False),
         command_line=shlex.join(["ttmap", *sys.argv[1:]]),
         coast=opts.get("coast", True),
-        coast_interval_min=opts.get("coast_interval_min", DEFAULT_CLASS_INTERVAL_MIN),
+        coast_interval_min=opts.get("coast_interval_min", COAST_CLASS_INTERVAL_MIN),
         sites=sites_file,
         sites_layer=opts.get("sites_layer"),
         sites_name_field=opts.get("name_field"),
         sites_crs=opts.get("sites_crs"),
-        site_search_radius_m=1000.0 * opts.get("site_search_radius_km", DEFAULT_SEARCH_RADIUS_M / 1000.0),
-        speed_uncertainty=opts.get("speed_uncertainty_pct", 100.0 * DEFAULT_SPEED_UNCERTAINTY) / 100.0,
+        site_search_radius_m=1000.0 * opts.get("site_search_radius_km", SITE_SEARCH_RADIUS_M / 1000.0),
+        speed_uncertainty=opts.get("speed_uncertainty_pct", 100.0 * SPEED_UNCERTAINTY) / 100.0,
         origin_time_utc=opts.get("origin_time"),
-        notification_delay_min=opts.get("notification_delay_min", DEFAULT_NOTIFICATION_DELAY_MIN),
-        preparation_min=opts.get("preparation_min", DEFAULT_PREPARATION_MIN),
-        walking_speed_m_s=opts.get("walking_speed_m_s", DEFAULT_WALKING_SPEED_M_S),
+        notification_delay_min=opts.get("notification_delay_min", NOTIFICATION_DELAY_MIN),
+        preparation_min=opts.get("preparation_min", PREPARATION_MIN),
+        walking_speed_m_s=opts.get("walking_speed_m_s", WALKING_SPEED_M_S),
         little_margin_min=opts.get("little_margin_min", LITTLE_MARGIN_MIN),
     )
 

@@ -17,8 +17,8 @@ from ttmap.cli.options import (
     speed_model_options,
     verbosity_options,
 )
-from ttmap.products.budget import DEFAULT_NOTIFICATION_DELAY_MIN
-from ttmap.sitemap import DEFAULT_SITE_SNAP_RADIUS_M, MAX_NOTIFICATION_DELAY_MIN
+from ttmap.defaults import FLOOR_DEPTH_M, NOTIFICATION_DELAY_MIN
+from ttmap.defaults import SITE_SEARCH_RADIUS_M, MAX_NOTIFICATION_DELAY_MIN
 
 __all__ = ["parse_site_spec", "site_map_command"]
 
@@ -77,11 +77,11 @@ def _site_specs_callback(ctx: click.Context, param: click.Parameter, value: Any)
               help="A site, WGS84 degrees (negative values welcome); repeat for several.")
 @site_file_options
 @click.option("--notification-delay-min", type=click.FloatRange(0.0, MAX_NOTIFICATION_DELAY_MIN),
-              default=DEFAULT_NOTIFICATION_DELAY_MIN, show_default=True, callback=finite_callback,
+              default=NOTIFICATION_DELAY_MIN, show_default=True, callback=finite_callback,
               help="Minutes from the earthquake until an official message reaches people (a site "
                    "file's notification_delay_min column overrides it per site).")
 @click.option("--site-snap-radius-km", type=click.FloatRange(min=0.0),
-              default=DEFAULT_SITE_SNAP_RADIUS_M / 1000.0, show_default=True, callback=finite_callback,
+              default=SITE_SEARCH_RADIUS_M / 1000.0, show_default=True, callback=finite_callback,
               help="Move a site on land to the nearest open water within this distance.")
 @click.option("--period-s", type=float, callback=positive_callback,
               help="Solve with the speed of waves of this period (default: long-wave speed, the front).")
@@ -158,7 +158,7 @@ def _job_from_options(bathymetry: str, opts: dict[str, Any]) -> Any:
         period_s=opts.get("period_s"),
         period_mode=opts.get("period_speed", "group"),
         far_field=opts.get("far_field_correction", False),
-        floor_depth_m=opts.get("floor_depth_m", 5.0),
+        floor_depth_m=opts.get("floor_depth_m", FLOOR_DEPTH_M),
         earth=opts.get("earth", "wgs84"),
         notification_delay_min=opts["notification_delay_min"],
         snap_radius_m=1000.0 * opts["site_snap_radius_km"],

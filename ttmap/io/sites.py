@@ -47,6 +47,7 @@ import numpy as np
 from pyproj import CRS, Transformer
 from pyproj.exceptions import CRSError
 
+from ttmap.defaults import SITE_CSV_SUFFIXES
 from ttmap._typing import FloatArray
 from ttmap.errors import InputDataError
 from ttmap.io.atomic import atomic_output
@@ -56,7 +57,6 @@ __all__ = [
     "Site",
     "SiteList",
     "SITE_FIELDS",
-    "CSV_SUFFIXES",
     "read_sites",
     "write_site_table_csv",
 ]
@@ -68,9 +68,6 @@ SITE_FIELDS: tuple[str, ...] = (
     "preparation_min",
     "notification_delay_min",
 )
-
-#: File suffixes read as CSV text; anything else is opened as a vector file.
-CSV_SUFFIXES: tuple[str, ...] = (".csv", ".txt")
 
 _WGS84 = CRS.from_epsg(4326)
 _LON_NAMES = ("lon", "longitude")
@@ -554,7 +551,7 @@ def read_sites(
     name = os.fspath(path)
     if not os.path.exists(name) and not name.startswith("/vsi"):
         raise InputDataError(f"site file {name!r} does not exist; check the path")
-    if Path(name).suffix.lower() in CSV_SUFFIXES:
+    if Path(name).suffix.lower() in SITE_CSV_SUFFIXES:
         if layer is not None:
             raise InputDataError(
                 f"site file {name!r} is CSV text and has no layers; drop the layer option"

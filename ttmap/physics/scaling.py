@@ -28,11 +28,11 @@ from types import MappingProxyType
 import numpy as np
 from numpy.typing import ArrayLike
 
+from ttmap.defaults import SCALING_RELATION
 from ttmap._typing import FloatArray
 from ttmap.errors import InputDataError
 
 __all__ = [
-    "DEFAULT_RELATION",
     "MW_MAX",
     "MW_MIN",
     "SCALING_RELATIONS",
@@ -40,9 +40,6 @@ __all__ = [
     "rupture_size_km",
     "seismic_moment_n_m",
 ]
-
-#: Key of the relation used when none is given.
-DEFAULT_RELATION: str = "strasser2010-interface"
 
 #: Smallest moment magnitude accepted by :func:`rupture_size_km`.
 MW_MIN: float = 6.0
@@ -210,7 +207,7 @@ SCALING_RELATIONS: Mapping[str, ScalingRelation] = MappingProxyType(
 
 def rupture_size_km(
     mw: float,
-    relation: str = DEFAULT_RELATION,
+    relation: str = SCALING_RELATION,
     *,
     max_width_km: float | None = 200.0,
 ) -> tuple[float, float]:

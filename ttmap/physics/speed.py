@@ -44,13 +44,13 @@ from typing import Any
 
 import numpy as np
 
+from ttmap.defaults import FLOOR_DEPTH_M
 from ttmap._typing import BoolArray, FloatArray
 from ttmap.errors import InputDataError
 from ttmap.physics.constants import G_M_S2, SEAWATER_SOUND_SPEED_M_S
 from ttmap.physics.dispersion import group_speed_m_s, phase_speed_m_s
 
 __all__ = [
-    "DEFAULT_FLOOR_DEPTH_M",
     "SPEED_MODES",
     "floor_depth",
     "far_field_effective_depth_m",
@@ -59,14 +59,11 @@ __all__ = [
     "check_speed_options",
 ]
 
-#: Default floor depth in metres (see module notes; common practice).
-DEFAULT_FLOOR_DEPTH_M: float = 5.0
-
 #: Accepted speed modes.
 SPEED_MODES: tuple[str, ...] = ("long-wave", "group", "phase")
 
 
-def floor_depth(depth_m: Any, floor_depth_m: float = DEFAULT_FLOOR_DEPTH_M) -> FloatArray:
+def floor_depth(depth_m: Any, floor_depth_m: float = FLOOR_DEPTH_M) -> FloatArray:
     """Raise water shallower than ``floor_depth_m`` to that depth.
 
     Land (depth <= 0) and NaN are returned unchanged.
@@ -104,7 +101,7 @@ def wave_speed_m_s(
     *,
     mode: str = "long-wave",
     period_s: float | None = None,
-    floor_depth_m: float = DEFAULT_FLOOR_DEPTH_M,
+    floor_depth_m: float = FLOOR_DEPTH_M,
     far_field: bool = False,
 ) -> FloatArray:
     """Wave speed of every cell, NaN on land.

@@ -17,19 +17,19 @@ rise of the sea) without waiting for any message.
 
 Defaults and their sources
 --------------------------
-:data:`DEFAULT_WALKING_SPEED_M_S` = 0.74 m/s
+:data:`WALKING_SPEED_M_S` = 0.74 m/s
     Mean evacuation speed observed in the 2011 Tohoku tsunami (2.65 km/h), in
     a survey by Japan's land ministry (MLIT) as reported by a secondary
     source; the 2002 Japanese guideline assumed 1.0 m/s (3.6 km/h). Groups
     with children, elderly people or people who walk with difficulty were
     slower still (0.52-0.54 m/s in the same survey). The lower observed mean
     is used as the default because it is the more cautious of the two.
-:data:`DEFAULT_PREPARATION_MIN` = 3 min
+:data:`PREPARATION_MIN` = 3 min
     The departure delay of the worked example of the Japanese guideline
     budget formula (distance = speed x (arrival - departure delay - climb
     time); 1.0 m/s x (10 - 3 - 3) min = 240 m). It is the example's value,
     not a measured one; real preparation times vary widely.
-:data:`DEFAULT_NOTIFICATION_DELAY_MIN` = 10 min
+:data:`NOTIFICATION_DELAY_MIN` = 10 min
     International tsunami warning centres "can often" issue a first message
     within about 10 minutes of an earthquake (IOC/ITIC glossary). The time
     until a message reaches people on a given coast through local channels
@@ -48,14 +48,11 @@ from typing import Any
 import numpy as np
 from numpy.typing import ArrayLike
 
+from ttmap.defaults import LITTLE_MARGIN_MIN
 from ttmap._typing import FloatArray
 from ttmap.errors import InputDataError
 
 __all__ = [
-    "DEFAULT_WALKING_SPEED_M_S",
-    "DEFAULT_PREPARATION_MIN",
-    "DEFAULT_NOTIFICATION_DELAY_MIN",
-    "LITTLE_MARGIN_MIN",
     "STATUS_BEFORE_MESSAGE",
     "STATUS_TOO_LITTLE",
     "STATUS_LITTLE_MARGIN",
@@ -69,22 +66,6 @@ __all__ = [
     "warning_budget",
     "little_margin_status",
 ]
-
-#: Default walking speed, m/s: mean observed in the 2011 Tohoku tsunami (MLIT
-#: survey, reported secondarily); the 2002 Japanese guideline assumed 1.0 m/s.
-DEFAULT_WALKING_SPEED_M_S: float = 0.74
-
-#: Default preparation (departure) delay, minutes: the value used in the
-#: worked example of the Japanese guideline budget formula.
-DEFAULT_PREPARATION_MIN: float = 3.0
-
-#: Default delay until an official message reaches people, minutes:
-#: international warning centres "can often" message within 10 minutes
-#: (IOC/ITIC glossary); local delays can be longer.
-DEFAULT_NOTIFICATION_DELAY_MIN: float = 10.0
-
-#: Margins below this many minutes are flagged as little (common practice, no source).
-LITTLE_MARGIN_MIN: float = 5.0
 
 #: The wave arrives no later than the official message can reach people.
 STATUS_BEFORE_MESSAGE: str = (

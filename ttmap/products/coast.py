@@ -46,6 +46,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
+from ttmap.defaults import COAST_CLASS_INTERVAL_MIN
 from ttmap.errors import InputDataError
 
 if TYPE_CHECKING:
@@ -56,7 +57,6 @@ if TYPE_CHECKING:
 
 __all__ = [
     "COAST_LAYER_NAME",
-    "DEFAULT_CLASS_INTERVAL_MIN",
     "UNREACHED_LABEL",
     "CoastSegment",
     "CoastTable",
@@ -66,9 +66,6 @@ __all__ = [
     "coastal_arrival_lines",
     "coastal_arrival_table",
 ]
-
-#: Width of an arrival class along the coast, minutes.
-DEFAULT_CLASS_INTERVAL_MIN: float = 5.0
 
 #: Name of the vector layer written by :func:`coast_layer`.
 COAST_LAYER_NAME: str = "coastal_arrival"
@@ -481,7 +478,7 @@ def coastal_arrival_lines(
     water_mask: ArrayLike,
     transform: Affine,
     *,
-    class_interval_min: float = DEFAULT_CLASS_INTERVAL_MIN,
+    class_interval_min: float = COAST_CLASS_INTERVAL_MIN,
     levels_min: ArrayLike | None = None,
 ) -> list[CoastSegment]:
     """The grid's coastline as stretches of coast, each with its first-arrival minutes.
@@ -554,7 +551,7 @@ def coastal_arrival_table(
     water_mask: ArrayLike,
     transform: Affine,
     *,
-    class_interval_min: float = DEFAULT_CLASS_INTERVAL_MIN,
+    class_interval_min: float = COAST_CLASS_INTERVAL_MIN,
     levels_min: ArrayLike | None = None,
 ) -> CoastTable:
     """:func:`coastal_arrival_lines` as columns: the same stretches, one row each.

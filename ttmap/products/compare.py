@@ -52,6 +52,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
+from ttmap.defaults import LITTLE_MARGIN_MIN, NOTIFICATION_DELAY_MIN, PREPARATION_MIN, WALKING_SPEED_M_S
 from ttmap.errors import InputDataError
 
 if TYPE_CHECKING:
@@ -520,13 +521,13 @@ def sites_by_scenarios(
         Energy arrivals, minutes; periods missing for a scenario give blanks.
     search_radius_m : float, optional
         Snapping radius (default
-        :data:`ttmap.products.sites.DEFAULT_SEARCH_RADIUS_M`).
+        :data:`ttmap.defaults.SITE_SEARCH_RADIUS_M`).
     notification_delay_min, preparation_min, walking_speed_m_s : float, optional
         Budget defaults where a site gives none (defaults of
         :mod:`ttmap.products.budget`).
     little_margin_min : float, optional
         Little-margin threshold (default
-        :data:`ttmap.products.budget.LITTLE_MARGIN_MIN`).
+        :data:`ttmap.defaults.LITTLE_MARGIN_MIN`).
 
     Returns
     -------
@@ -551,7 +552,8 @@ def sites_by_scenarios(
     """
     from ttmap.io.sites import SiteList
     from ttmap.products import budget as _budget
-    from ttmap.products.sites import DEFAULT_SEARCH_RADIUS_M, period_label, snap_sites
+    from ttmap.products.sites import period_label, snap_sites
+    from ttmap.defaults import SITE_SEARCH_RADIUS_M
 
     if not isinstance(sites, SiteList):
         raise InputDataError(
@@ -579,14 +581,14 @@ def sites_by_scenarios(
     energy_by = {(str(sc), float(t)): v for (sc, t), v in energy.items()}
 
     defaults = {
-        "notification_delay_min": _budget.DEFAULT_NOTIFICATION_DELAY_MIN
+        "notification_delay_min": NOTIFICATION_DELAY_MIN
         if notification_delay_min is None else float(notification_delay_min),
-        "preparation_min": _budget.DEFAULT_PREPARATION_MIN
+        "preparation_min": PREPARATION_MIN
         if preparation_min is None else float(preparation_min),
-        "walking_speed_m_s": _budget.DEFAULT_WALKING_SPEED_M_S
+        "walking_speed_m_s": WALKING_SPEED_M_S
         if walking_speed_m_s is None else float(walking_speed_m_s),
     }
-    little = _budget.LITTLE_MARGIN_MIN if little_margin_min is None else float(little_margin_min)
+    little = LITTLE_MARGIN_MIN if little_margin_min is None else float(little_margin_min)
     # Checks the defaults and the threshold once, with a clear message.
     _budget.warning_budget(
         None, defaults["notification_delay_min"], defaults["preparation_min"], None,
@@ -605,7 +607,7 @@ def sites_by_scenarios(
     g = ref["grid"]
     if g is None:
         raise InputDataError("no grid: pass grid=... when the fronts are arrays")
-    radius = DEFAULT_SEARCH_RADIUS_M if search_radius_m is None else float(search_radius_m)
+    radius = SITE_SEARCH_RADIUS_M if search_radius_m is None else float(search_radius_m)
     snapped = snap_sites(sites, g, np.isfinite(earliest), search_radius_m=radius)
     del earliest
 
@@ -871,9 +873,9 @@ def write_sites_by_scenarios(
     table = sites_by_scenarios(sites, grid, front_paths, energy_paths, **options)
     first = earliest_by_site(table)
     base = {
-        "notification_delay_min": _budget.DEFAULT_NOTIFICATION_DELAY_MIN,
-        "preparation_min": _budget.DEFAULT_PREPARATION_MIN,
-        "walking_speed_m_s": _budget.DEFAULT_WALKING_SPEED_M_S,
+        "notification_delay_min": NOTIFICATION_DELAY_MIN,
+        "preparation_min": PREPARATION_MIN,
+        "walking_speed_m_s": WALKING_SPEED_M_S,
     }
     d = {k: float(v if options.get(k) is None else options[k]) for k, v in base.items()}
     note = (

@@ -12,7 +12,7 @@ on the IUGG mean radius for lon/lat grids, straight-line metres for projected
 grids, as for point sources in :mod:`ttmap.sources`). Each site gets one of
 :data:`SNAP_STATUSES`; no site is ever dropped.
 
-:data:`DEFAULT_SEARCH_RADIUS_M` = 2 km. Common practice, no source: a
+:data:`SITE_SEARCH_RADIUS_M` = 2 km. Common practice, no source: a
 1 arc-minute cell is about 1.85 km north-south, and a coastal town given to
 the nearest 0.01 degree lies within about one such cell of the first gridded
 water cell; a wider radius starts reading times from water that may be
@@ -60,25 +60,19 @@ import numpy as np
 import shapely
 from pyproj import CRS, Transformer
 
+from ttmap.defaults import SITE_SEARCH_RADIUS_M, SPEED_UNCERTAINTY
 from ttmap._typing import BoolArray, FloatArray
 from ttmap.errors import InputDataError
 from ttmap.grid import Grid
 from ttmap.io.sites import SiteList
 from ttmap.io.vector import VectorLayer
-from ttmap.products.budget import (
-    DEFAULT_NOTIFICATION_DELAY_MIN,
-    DEFAULT_PREPARATION_MIN,
-    DEFAULT_WALKING_SPEED_M_S,
-    LITTLE_MARGIN_MIN,
-    warning_budget,
-)
+from ttmap.products.budget import warning_budget
+from ttmap.defaults import NOTIFICATION_DELAY_MIN, PREPARATION_MIN, WALKING_SPEED_M_S, LITTLE_MARGIN_MIN
 from ttmap.products.cautions import CAUTION_SHORT
 from ttmap.sources import _nearest_open_water
 from ttmap.traveltime import TravelTimeResult
 
 __all__ = [
-    "DEFAULT_SEARCH_RADIUS_M",
-    "DEFAULT_SPEED_UNCERTAINTY",
     "SNAP_OK",
     "SNAP_MOVED",
     "SNAP_NO_WATER",
@@ -91,14 +85,6 @@ __all__ = [
     "site_table_layer",
     "period_label",
 ]
-
-#: Search radius for the nearest reached water cell, metres (common practice,
-#: no source; see the module notes).
-DEFAULT_SEARCH_RADIUS_M: float = 2000.0
-
-#: Stated +/- fraction of wave speed behind ``earliest_min``/``latest_min``
-#: (common practice, no source; see the module notes).
-DEFAULT_SPEED_UNCERTAINTY: float = 0.05
 
 #: The site's own cell is reached water.
 SNAP_OK: str = "ok"
@@ -219,7 +205,7 @@ def snap_sites(
     grid: Grid,
     reached: Any,
     *,
-    search_radius_m: float = DEFAULT_SEARCH_RADIUS_M,
+    search_radius_m: float = SITE_SEARCH_RADIUS_M,
     depth_m: Any = None,
 ) -> list[SnappedSite]:
     """Find the cell each site's arrival time is read from.
@@ -234,7 +220,7 @@ def snap_sites(
         bool mask of reached water cells.
     search_radius_m : float
         Largest ground distance from a site to the centre of the cell read,
-        metres (default :data:`DEFAULT_SEARCH_RADIUS_M`).
+        metres (default :data:`SITE_SEARCH_RADIUS_M`).
     depth_m : ndarray of shape grid.shape, float, metres, positive down, optional
         Depth to report at each cell read (for example ``Medium.depth_m``,
         which carries the floor depth). Without it depths are NaN.
@@ -339,11 +325,11 @@ def site_table(
     front: TravelTimeResult,
     periods: Mapping[float, TravelTimeResult] | None = None,
     *,
-    speed_uncertainty: float = DEFAULT_SPEED_UNCERTAINTY,
+    speed_uncertainty: float = SPEED_UNCERTAINTY,
     origin_time_utc: datetime | None = None,
-    notification_delay_min: float = DEFAULT_NOTIFICATION_DELAY_MIN,
-    preparation_min: float = DEFAULT_PREPARATION_MIN,
-    walking_speed_m_s: float = DEFAULT_WALKING_SPEED_M_S,
+    notification_delay_min: float = NOTIFICATION_DELAY_MIN,
+    preparation_min: float = PREPARATION_MIN,
+    walking_speed_m_s: float = WALKING_SPEED_M_S,
     little_margin_min: float = LITTLE_MARGIN_MIN,
 ) -> SiteTable:
     """Arrival times and time budget of every site, as ordered columns.

@@ -14,7 +14,7 @@ One row per site, on a common axis of minutes after the earthquake:
 - the margin (or why there is none) written at the right: brick red when
   negative or when the wave comes before the message, dark ochre when little
   (the table's ``budget_status``, else under
-  :data:`ttmap.products.budget.LITTLE_MARGIN_MIN`).
+  :data:`ttmap.defaults.LITTLE_MARGIN_MIN`).
 
 Rows are sorted by margin, smallest first; sites without a margin go to the
 bottom (ordered by time left). matplotlib is imported inside the function and
@@ -31,7 +31,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 
 from ttmap.errors import InputDataError
-from ttmap.products.budget import LITTLE_MARGIN_MIN
+from ttmap.defaults import LITTLE_MARGIN_MIN
 from ttmap.products._footer import caution_footer, draw_caution_footer
 from ttmap.products.cautions import CAUTION_SHORT
 

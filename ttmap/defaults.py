@@ -1,0 +1,130 @@
+"""Every default of ttmap, defined once, with its unit in its name.
+
+The command line, the job options, the scenario-file schema, the engine and
+the products all take their defaults from here. The module imports nothing, so
+it is cheap to load (``ttmap --help`` reads it) and sits below every layer.
+
+Where a value comes from (a published source, common practice) is said beside
+it; the physics behind each is in ``docs/method.md`` and the sources in
+``docs/references.md``.
+"""
+
+from __future__ import annotations
+
+__all__ = [
+    "FLOOR_DEPTH_M",
+    "SCALING_RELATION",
+    "MIN_BASIN_SHARE",
+    "MAX_PROJECTED_SCALE_ERROR",
+    "MEMORY_SHARE",
+    "SITE_SEARCH_RADIUS_M",
+    "SPEED_UNCERTAINTY",
+    "WALKING_SPEED_M_S",
+    "PREPARATION_MIN",
+    "NOTIFICATION_DELAY_MIN",
+    "MAX_NOTIFICATION_DELAY_MIN",
+    "LITTLE_MARGIN_MIN",
+    "COAST_CLASS_INTERVAL_MIN",
+    "VECTOR_FORMATS",
+    "VECTOR_FORMAT",
+    "MAP_FORMATS",
+    "MAP_FORMAT",
+    "SITE_CSV_SUFFIXES",
+    "EXECUTORS",
+    "CONNECT_TIMEOUT_S",
+    "MEDIA_PER_WORKER",
+    "EARTH_MODELS",
+    "EARTH_MODEL",
+    "PERIOD_SPEEDS",
+    "PERIOD_SPEED",
+    "MAX_TRENCH_RUPTURES",
+]
+
+# --- engine -------------------------------------------------------------------
+
+#: Water shallower than this is raised to it so the front can reach the coast,
+#: metres (common practice, no source; see docs/method.md, "Floor depth").
+FLOOR_DEPTH_M: float = 5.0
+
+#: Key of the magnitude-to-rupture-size relation used when none is given
+#: (Strasser et al. 2010, subduction interface; docs/references.md).
+SCALING_RELATION: str = "strasser2010-interface"
+
+#: A water body holding less than this share of the grid's water, and not the
+#: largest one, is a closed basin: sources may not start there.
+MIN_BASIN_SHARE: float = 0.01
+
+#: A projected grid whose CRS scales ground distances by more than this
+#: fraction (either way) is corrected or refused (see ttmap.grid).
+MAX_PROJECTED_SCALE_ERROR: float = 0.01
+
+#: Earth models for geographic grids; the first is the default.
+EARTH_MODELS: tuple[str, ...] = ("wgs84", "sphere")
+EARTH_MODEL: str = EARTH_MODELS[0]
+
+#: Speeds a wave period can be mapped with; the first is the default.
+PERIOD_SPEEDS: tuple[str, ...] = ("group", "phase")
+PERIOD_SPEED: str = PERIOD_SPEEDS[0]
+
+#: Share of the machine's memory one run may plan to use.
+MEMORY_SHARE: float = 0.6
+
+# --- sites and the warning-time budget ------------------------------------------
+
+#: Search radius for moving a site to the nearest reached water cell, metres
+#: (common practice, no source): sites sit on the coast, the grid's water may
+#: start a cell or two offshore.
+SITE_SEARCH_RADIUS_M: float = 2000.0
+
+#: Stated +/- fraction of wave speed behind the earliest/latest arrival window
+#: (common practice, no source). Margins count from the earliest arrival.
+SPEED_UNCERTAINTY: float = 0.05
+
+#: Walking speed, m/s: mean observed evacuation speed in 2011 (MLIT survey,
+#: reported secondarily; docs/references.md). The 2002 guideline assumed 1.0 m/s.
+WALKING_SPEED_M_S: float = 0.74
+
+#: Preparation (departure) delay, minutes: the worked example of the Japanese
+#: guideline budget formula (docs/references.md).
+PREPARATION_MIN: float = 3.0
+
+#: Delay until an official message reaches people, minutes: international
+#: warning centres "can often" message within 10 minutes (IOC/ITIC glossary);
+#: local delays can be longer.
+NOTIFICATION_DELAY_MIN: float = 10.0
+
+#: Largest notification delay accepted, minutes (one day).
+MAX_NOTIFICATION_DELAY_MIN: float = 1440.0
+
+#: Margins below this many minutes are flagged as little (common practice, no source).
+LITTLE_MARGIN_MIN: float = 5.0
+
+#: Width of an arrival class along the coast, minutes.
+COAST_CLASS_INTERVAL_MIN: float = 5.0
+
+# --- outputs -------------------------------------------------------------------
+
+#: Vector formats and their file suffixes; the first is the default.
+VECTOR_FORMATS: dict[str, str] = {"gpkg": ".gpkg", "shp": ".shp", "geojson": ".geojson"}
+VECTOR_FORMAT: str = "gpkg"
+
+#: Map (figure) formats; the first is the default.
+MAP_FORMATS: tuple[str, ...] = ("png", "pdf")
+MAP_FORMAT: str = MAP_FORMATS[0]
+
+#: Suffixes read as delimited-text site files.
+SITE_CSV_SUFFIXES: tuple[str, ...] = (".csv", ".txt")
+
+# --- many solves ----------------------------------------------------------------
+
+#: Executor names besides a scheduler address; the first is the default.
+EXECUTORS: tuple[str, ...] = ("serial", "local")
+
+#: Seconds to wait for a scheduler given by address.
+CONNECT_TIMEOUT_S: float = 20.0
+
+#: Prepared media a worker keeps at once (each is several grid-sized arrays).
+MEDIA_PER_WORKER: int = 1
+
+#: Most ruptures one trench line of a scenario file may generate.
+MAX_TRENCH_RUPTURES: int = 99
