@@ -24,10 +24,10 @@ import pytest
 from affine import Affine
 from pyproj import Geod
 
+from ttmap.batch import check_executor
 from ttmap.errors import InputDataError
 from ttmap.scenario import (
     ScenarioFileError,
-    check_executor,
     format_key_path,
     load_scenario_file,
     locate_keys,
@@ -482,8 +482,37 @@ def test_missing_files(folder: Path):
 def test_site_csv_without_coordinates(folder: Path):
     (folder / "bad_sites.csv").write_text("town,x\nA,1\n")
     text = BASE + '[sites]\npath = "bad_sites.csv"\n'
-    issue = _one_issue(_write(folder, text))
-    assert "sites.path: site file 'bad_sites.csv' lacks the column(s) name, lon, lat" in issue
+    path = _write(folder, text)
+    issue = _one_issue(path)
+    # The message of the site reader the run uses (ttmap.io.sites.read_sites), with its line.
+    assert issue == (
+        f"{path}:{_line_of(text, 'bad_sites.csv')}: sites.path: site file "
+        f"'{folder / 'bad_sites.csv'}', line 1: no 'name' column (columns: town, x); add a "
+        "'name' column or choose one with the name-field option"
+    )
+
+
+@pytest.mark.parametrize(
+    "csv_text",
+    [
+        "name,longitude,latitude\nA,-142.9,-34.0\n",  # the documented long names
+        "# invented towns\n\nname,lon,lat\nA,-142.9,-34.0\nB,-142.9,-35.0\n",  # a comment first
+        "Name;LON;Lat\nA;-142.9;-34.0\n",  # another separator, any case
+    ],
+)
+def test_site_files_the_run_reads_are_accepted(folder: Path, csv_text: str):
+    (folder / "towns.csv").write_text(csv_text)
+    sf = load_scenario_file(_write(folder, BASE + '[sites]\npath = "towns.csv"\n'))
+    assert sf.sites_count == csv_text.count("\nA") + csv_text.count("\nB")
+
+
+def test_site_row_the_run_refuses_is_refused_with_its_line(folder: Path):
+    (folder / "towns.csv").write_text("name,lon,lat\nA,-142.9,-34.0\nB,abc,-35.0\n")
+    text = BASE + '[sites]\npath = "towns.csv"\n'
+    path = _write(folder, text)
+    issue = _one_issue(path)
+    assert issue.startswith(f"{path}:{_line_of(text, 'towns.csv')}: sites.path: site file ")
+    assert "towns.csv', line 3, column 'lon': 'abc' is not a number" in issue
 
 
 def test_site_file_counted(folder: Path):

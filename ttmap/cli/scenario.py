@@ -18,11 +18,13 @@ def executor_callback(ctx: click.Context, param: click.Parameter, value: Any) ->
     """``--executor``: 'serial', 'local' or a scheduler address."""
     if value is None:
         return None
-    from ttmap.scenario import check_executor
+    from ttmap.batch import check_executor
+    from ttmap.defaults import EXECUTORS
+    from ttmap.scenario import did_you_mean
 
     problem = check_executor(value)
     if problem:
-        raise click.BadParameter(problem, ctx=ctx, param=param)
+        raise click.BadParameter(problem + did_you_mean(value, EXECUTORS), ctx=ctx, param=param)
     return value
 
 
@@ -153,7 +155,7 @@ def run_command(
     management decide.
     """
     from ttmap.products.cautions import CAUTION_SHORT
-    from ttmap.scenario import run_scenario_file
+    from ttmap.jobs.scenario import run_scenario_file
 
     t0 = time.perf_counter()
     sf = _load_or_exit(ctx, file)
