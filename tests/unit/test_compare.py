@@ -1,4 +1,5 @@
-"""Unit tests of ttmap.products.compare: envelope, difference and their GeoTIFF writers."""
+"""Unit tests of comparisons: envelope and difference (ttmap.products.compare), their files
+(ttmap.io.compare) and the writers that join them (ttmap.jobs.scenario)."""
 
 from __future__ import annotations
 
@@ -16,14 +17,9 @@ from ttmap.grid import Grid
 from ttmap.io.raster import write_arrival_geotiff, write_raster
 from ttmap.products import compare as compare_module
 from ttmap.products.cautions import CAUTION_SHORT
-from ttmap.products.compare import (
-    NO_SCENARIO,
-    difference,
-    envelope,
-    read_minutes,
-    write_difference,
-    write_envelope,
-)
+from ttmap.io.compare import SITES_X_SCENARIOS_FILES, read_minutes
+from ttmap.jobs.scenario import write_difference, write_envelope, write_sites_by_scenarios
+from ttmap.products.compare import NO_SCENARIO, difference, envelope
 
 GRID = Grid((40, 50), Affine(0.1, 0.0, 150.0, 0.0, -0.1, -30.0), "EPSG:4326")
 
@@ -346,8 +342,6 @@ def test_sites_by_scenarios_refuses_bad_input():
 def test_write_sites_by_scenarios_from_rasters(tmp_path):
     import matplotlib.image as mpimg
 
-    from ttmap.products.compare import SITES_X_SCENARIOS_FILES, write_sites_by_scenarios
-
     fronts = _site_fields()
     paths = {}
     for name, t in fronts.items():
@@ -392,8 +386,6 @@ def test_write_sites_by_scenarios_from_rasters(tmp_path):
 
 
 def test_write_sites_by_scenarios_refuses_a_raster_on_another_grid(tmp_path):
-    from ttmap.products.compare import write_sites_by_scenarios
-
     fronts = _site_fields()
     other = Grid(GRID.shape, Affine(0.1, 0.0, 151.0, 0.0, -0.1, -30.0), "EPSG:4326")
     pa, pb = tmp_path / "a.tif", tmp_path / "b.tif"

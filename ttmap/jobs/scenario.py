@@ -10,16 +10,24 @@ difference rasters, sites by scenarios) and writes the run record last.
 from __future__ import annotations
 
 import os
-from collections.abc import Mapping, Sequence
+from collections.abc import Iterator, Mapping, Sequence
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from ttmap.batch import MediumSpec, TaskSummary, check_executor
 from ttmap.errors import InputDataError
 from ttmap.physics.scaling import SCALING_RELATIONS
 from ttmap.scenario import ScenarioFile, scenario_tasks
 
-__all__ = ["run_scenario_file"]
+if TYPE_CHECKING:
+    from ttmap.grid import Grid
+
+__all__ = [
+    "run_scenario_file",
+    "write_difference",
+    "write_envelope",
+    "write_sites_by_scenarios",
+]
 
 
 def _json_default(value: Any) -> Any:
@@ -125,8 +133,6 @@ def run_scenario_file(
     t1 = time.perf_counter()
     products: dict[str, Any] = {"envelope": None, "differences": [], "skipped": []}
     if sf.outputs.envelope or sf.outputs.compare:
-        from ttmap.products.compare import write_difference, write_envelope
-
         if sf.outputs.envelope:
             if len(fronts) >= 2:
                 names = list(fronts)
@@ -273,7 +279,6 @@ def _write_sites_x_scenarios(
 ) -> dict[str, Any]:
     """Sites by scenarios (CSV tables and chart) from the finished fronts; a summary for run.json."""
     from ttmap.io.sites import read_sites
-    from ttmap.products.compare import write_sites_by_scenarios
 
     if sf.sites_path is None or not fronts:
         return {"path": sf.sites_path, "skipped": "no finished front to read the sites from"}
@@ -347,3 +352,271 @@ def _product_paths(value: Any) -> Any:
     if isinstance(value, (list, tuple)):
         return [_product_paths(v) for v in value]
     return str(value)
+
+
+# ---------------------------------------------------------------------------
+# Comparisons from arrival rasters: read (io), compute (products), write (io)
+# ---------------------------------------------------------------------------
+
+
+def write_envelope(
+    out_dir: str | os.PathLike[str],
+    paths: Sequence[str | os.PathLike[str]],
+    names: Sequence[str],
+    grid: Grid | None = None,
+    overwrite: bool = False,
+) -> dict[str, str]:
+    """Write the earliest-arrival envelope of several arrival rasters.
+
+    Writes ``envelope_min.tif`` (float32 minutes), ``envelope_first_scenario.tif``
+    (int16 index, nodata -1, tags ``SCENARIO_<i>=<name>``) and
+    ``envelope_first_scenario.csv`` (index, name, raster, cells where it is
+    first, its earliest minute).
+
+    Parameters
+    ----------
+    out_dir : path-like
+        Existing output folder.
+    paths : sequence of path-like
+        Arrival rasters (minutes), all on one grid; read one at a time.
+    names : sequence of str
+        Scenario name of each raster (file-safe, unique).
+    grid : Grid, optional
+        The grid the rasters must share; default that of the first raster.
+    overwrite : bool
+        Replace existing envelope files.
+
+    Returns
+    -------
+    dict
+        ``{"envelope_min": path, "first_scenario": path, "lookup_csv": path}``.
+
+    Raises
+    ------
+    InputDataError
+        Counts differ, no rasters, bad names, or a raster on another grid
+        (the message names it).
+    OutputExistsError
+        An output exists and ``overwrite`` is False (checked before reading).
+    """
+    import numpy as np
+
+    from ttmap.io.atomic import check_writable
+    from ttmap.io.compare import ENVELOPE_FILES, read_minutes, write_envelope_files
+    from ttmap.products.cautions import CAUTION_SHORT
+    from ttmap.products.compare import (
+        MAX_SCENARIOS,
+        check_scenario_names,
+        comparison_tags,
+        envelope,
+    )
+
+    rasters = [os.fspath(p) for p in paths]
+    names = check_scenario_names(names, "scenario")
+    if len(rasters) != len(names):
+        raise InputDataError(
+            f"{len(rasters)} rasters but {len(names)} names; give one name per raster"
+        )
+    if not rasters:
+        raise InputDataError("no arrival rasters were given; pass at least one")
+    if len(rasters) > MAX_SCENARIOS:
+        raise InputDataError(
+            f"an envelope indexes at most {MAX_SCENARIOS} scenarios, got {len(rasters)}"
+        )
+    targets = [Path(out_dir) / name for name in ENVELOPE_FILES]
+    check_writable(targets, overwrite)
+
+    ref: dict[str, Grid] = {} if grid is None else {"grid": grid}
+
+    def fields() -> Iterator[Any]:
+        for path in rasters:
+            values, g, _ = read_minutes(path, ref.get("grid"))
+            ref.setdefault("grid", g)
+            yield values
+
+    earliest, first = envelope(fields())
+    counts = np.bincount(first[first >= 0].astype(np.int64), minlength=len(rasters))
+    earliest_by = [
+        f"{float(earliest[first == i].min()):.3f}" if counts[i] else "" for i in range(len(rasters))
+    ]
+    n = len(names)
+    scenario_tags = {"SCENARIOS": str(n), **{f"SCENARIO_{i}": x for i, x in enumerate(names)}}
+    write_envelope_files(
+        targets,
+        earliest,
+        first,
+        ref["grid"],
+        minutes_tags={
+            **comparison_tags(f"earliest arrival over {n} scenarios, minutes after origin"),
+            **scenario_tags,
+        },
+        index_tags={
+            **comparison_tags(
+                "index of the scenario that arrives first (ties: lowest index); names in the "
+                "SCENARIO_<i> tags and envelope_first_scenario.csv"
+            ),
+            **scenario_tags,
+        },
+        lookup={
+            "index": list(range(n)),
+            "name": names,
+            "raster": [os.path.basename(p) for p in rasters],
+            "cells_first": [int(c) for c in counts],
+            "earliest_min": earliest_by,
+        },
+        comments=(
+            CAUTION_SHORT,
+            "index: value in envelope_first_scenario.tif; cells_first: cells where this "
+            "scenario arrives first; earliest_min: its earliest arrival there, minutes",
+        ),
+        overwrite=overwrite,
+    )
+    return {
+        "envelope_min": str(targets[0]),
+        "first_scenario": str(targets[1]),
+        "lookup_csv": str(targets[2]),
+    }
+
+
+def write_difference(
+    out_dir: str | os.PathLike[str],
+    path_a: str | os.PathLike[str],
+    path_b: str | os.PathLike[str],
+    name_a: str,
+    name_b: str,
+    overwrite: bool = False,
+) -> dict[str, str]:
+    """Write ``difference_<a>_minus_<b>.tif``: arrival of a minus arrival of b, minutes.
+
+    Positive where b arrives earlier (a later) by that many minutes, negative
+    where a arrives earlier; nodata where either has no arrival. Tags
+    ``SCENARIO_A``, ``SCENARIO_B`` and ``SIGN`` say so in the file.
+
+    Returns
+    -------
+    dict
+        ``{"difference": path}``.
+
+    Raises
+    ------
+    InputDataError
+        Bad names, unreadable rasters, or rasters on different grids.
+    OutputExistsError
+        The output exists and ``overwrite`` is False.
+    """
+    from ttmap.io.atomic import check_writable
+    from ttmap.io.compare import difference_file_name, read_minutes, write_difference_raster
+    from ttmap.products.compare import check_scenario_names, comparison_tags, difference
+
+    a_name, b_name = check_scenario_names([name_a, name_b], "scenario")
+    target = Path(out_dir) / difference_file_name(a_name, b_name)
+    check_writable([target], overwrite)
+    a, grid_a, _ = read_minutes(path_a)
+    b, _, _ = read_minutes(path_b, grid_a)
+    diff = difference(a, b)
+    del a, b
+    write_difference_raster(
+        target,
+        diff,
+        grid_a,
+        tags={
+            **comparison_tags(f"arrival time of {a_name} minus arrival time of {b_name}, minutes"),
+            "UNITS": "minutes",
+            "SCENARIO_A": a_name,
+            "SCENARIO_B": b_name,
+            "SIGN": (
+                f"positive: {b_name} arrives earlier ({a_name} later) by this many minutes; "
+                f"negative: {a_name} arrives earlier"
+            ),
+            "RASTER_A": os.path.basename(os.fspath(path_a)),
+            "RASTER_B": os.path.basename(os.fspath(path_b)),
+        },
+        band_description=f"arrival of {a_name} minus arrival of {b_name}, minutes",
+        overwrite=overwrite,
+    )
+    return {"difference": str(target)}
+
+
+def write_sites_by_scenarios(
+    out_dir: str | os.PathLike[str],
+    sites: Any,
+    front_paths: Mapping[str, str | os.PathLike[str]],
+    energy_paths: Mapping[tuple[str, float], str | os.PathLike[str]] | None = None,
+    *,
+    grid: Grid | None = None,
+    overwrite: bool = False,
+    **options: Any,
+) -> dict[str, Any]:
+    """Write ``sites_x_scenarios.csv``, ``earliest_by_site.csv`` and ``sites_x_scenarios.png``.
+
+    Parameters
+    ----------
+    out_dir : path-like
+        Existing output folder.
+    sites : SiteList
+        From :func:`ttmap.io.sites.read_sites`.
+    front_paths : mapping of scenario name to path
+        Front arrival rasters (minutes), all on one grid; read one at a time.
+    energy_paths : mapping of (scenario, period_s) to path, optional
+        Energy arrival rasters (minutes).
+    grid : Grid, optional
+        The grid the rasters must share; default that of the first front.
+    overwrite : bool
+        Replace existing files (checked before anything is read).
+    **options
+        Budget and snapping options of
+        :func:`ttmap.products.compare.sites_by_scenarios`.
+
+    Returns
+    -------
+    dict
+        ``{"table_csv", "earliest_csv", "chart_png"}`` paths and ``"table"``
+        (the columns).
+
+    Notes
+    -----
+    Both CSVs start with ``# `` + the short caution; the files are committed
+    together (:func:`ttmap.io.atomic.atomic_output_set`).
+    """
+    from ttmap.io.atomic import check_writable
+    from ttmap.io.compare import SITES_X_SCENARIOS_FILES, read_minutes, write_sites_tables
+    from ttmap.products.compare import (
+        earliest_by_site,
+        render_sites_by_scenarios,
+        sites_by_scenarios,
+        sites_by_scenarios_notes,
+    )
+    from ttmap.products.maps import save_figure
+
+    targets = [Path(out_dir) / name for name in SITES_X_SCENARIOS_FILES]
+    check_writable(targets, overwrite)
+    if not front_paths:
+        raise InputDataError("no front arrival fields were given; pass at least one scenario")
+    first_name, first_path = next(iter(front_paths.items()))
+    ref = grid if grid is not None else read_minutes(first_path, what=f"front of {first_name}")[1]
+
+    def field(path: str | os.PathLike[str], what: str) -> Any:
+        return lambda: read_minutes(path, ref, what=what)[0]
+
+    fronts = {n: field(p, f"front of {n}") for n, p in front_paths.items()}
+    energy = {k: field(p, f"energy of {k[0]}, T = {float(k[1]):g} s")
+              for k, p in (energy_paths or {}).items()}
+    table = sites_by_scenarios(sites, ref, fronts, energy, **options)
+    first = earliest_by_site(table)
+    table_notes, first_notes = sites_by_scenarios_notes(**options)
+    decimals = {k: 2 for k in table if k.endswith("_min") or k.startswith("minutes_")}
+    decimals["moved_m"] = 0
+    fig = render_sites_by_scenarios(table)
+    write_sites_tables(
+        targets,
+        [(table, table_notes, decimals), (first, first_notes, {"front_min": 2})],
+        lambda path: save_figure(fig, path, format="png"),
+        overwrite=overwrite,
+    )
+    del fig
+    return {
+        "table_csv": str(targets[0]),
+        "earliest_csv": str(targets[1]),
+        "chart_png": str(targets[2]),
+        "table": table,
+    }

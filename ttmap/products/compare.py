@@ -1,25 +1,15 @@
-"""Comparing scenarios: the earliest-arrival envelope and the difference of two.
+"""Comparing scenarios: the earliest-arrival envelope, the difference of two, sites by scenarios.
 
-Two pure functions work on arrays of arrival minutes (NaN where the wave
-never arrives, or on land):
+Pure functions on arrays of arrival minutes (NaN where the wave never
+arrives, or on land); reading and writing the files is
+:mod:`ttmap.io.compare`, and running it all is :mod:`ttmap.jobs.scenario`.
 
 - :func:`envelope` - cell by cell, the earliest arrival over many scenarios
   and the index of the scenario that gives it. It consumes its input one
   array at a time, so a generator reading rasters from disk keeps memory at
   about two grids however many scenarios there are.
-- :func:`difference` - ``a - b`` in minutes.
-
-Two writers read arrival rasters (written by ttmap or any float GeoTIFF in
-minutes), check that they share one grid, and write GeoTIFFs with tags that
-say what the values mean:
-
-- :func:`write_envelope` - ``envelope_min.tif`` (float32 minutes),
-  ``envelope_first_scenario.tif`` (int16 index, nodata -1, tags
-  ``SCENARIO_<i>=<name>``) and ``envelope_first_scenario.csv`` (index, name,
-  raster, cells where it is first, its earliest minute);
-- :func:`write_difference` - ``difference_<a>_minus_<b>.tif``: arrival of
-  *a* minus arrival of *b*; **positive where b arrives earlier** (a later)
-  by that many minutes, negative where a arrives earlier.
+- :func:`difference` - ``a - b`` in minutes: **positive where b arrives
+  earlier** (a later) by that many minutes, negative where a arrives earlier.
 
 A difference is NaN (nodata) wherever either scenario has no arrival. The
 envelope is NaN only where no scenario arrives.
@@ -31,22 +21,19 @@ Sites across scenarios:
   and read there in every scenario: front and energy arrivals, and the time
   budget of :mod:`ttmap.products.budget` counted from that scenario's front
   (no speed-uncertainty band). One row per site and scenario.
-- :func:`write_sites_by_scenarios` - ``sites_x_scenarios.csv`` (that table),
-  ``earliest_by_site.csv`` (the scenario giving each site's earliest front)
-  and the chart ``sites_x_scenarios.png`` (a dot per scenario at its front
-  arrival, one row per site).
+- :func:`earliest_by_site` - the scenario giving each site's earliest front.
+- :func:`render_sites_by_scenarios` - the chart (a dot per scenario at its
+  front arrival, one row per site), as a figure.
+- :func:`sites_by_scenarios_notes` - the notes written above the table.
 
 Margins are planning figures, not promises.
 """
 
 from __future__ import annotations
 
-import csv
 import math
-import os
 import re
-from collections.abc import Iterable, Iterator, Mapping, Sequence
-from pathlib import Path
+from collections.abc import Iterable, Mapping, Sequence
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
@@ -61,14 +48,13 @@ if TYPE_CHECKING:
 __all__ = [
     "envelope",
     "difference",
-    "write_envelope",
-    "write_difference",
-    "read_minutes",
+    "check_scenario_names",
+    "comparison_tags",
     "sites_by_scenarios",
+    "sites_by_scenarios_notes",
     "earliest_by_site",
     "render_sites_by_scenarios",
-    "write_sites_by_scenarios",
-    "SITES_X_SCENARIOS_FILES",
+    "FieldLike",
     "MAX_SCENARIOS",
     "NO_SCENARIO",
 ]
@@ -77,13 +63,6 @@ __all__ = [
 MAX_SCENARIOS: int = int(np.iinfo(np.int16).max)
 #: First-scenario index where no scenario arrives.
 NO_SCENARIO: int = -1
-
-#: File names written by :func:`write_sites_by_scenarios`.
-SITES_X_SCENARIOS_FILES: tuple[str, str, str] = (
-    "sites_x_scenarios.csv",
-    "earliest_by_site.csv",
-    "sites_x_scenarios.png",
-)
 
 _NAME_RE = re.compile(r"^[A-Za-z0-9_.-]+$")
 
@@ -200,72 +179,16 @@ def difference(a_min: ArrayLike, b_min: ArrayLike) -> NDArray[np.float64]:
 
 
 # ---------------------------------------------------------------------------
-# Reading and writing
+# Names and tags of the comparison files
 # ---------------------------------------------------------------------------
 
 
-def read_minutes(path: str | os.PathLike[str]) -> tuple[NDArray[np.float64], Grid, dict[str, str]]:
-    """Read a single-band arrival raster in minutes.
+def check_scenario_names(names: Sequence[str], what: str = "scenario") -> list[str]:
+    """The names as text, refused when not file-safe or repeated (they name output files).
 
-    Returns
-    -------
-    time_min : ndarray of shape (rows, cols), float64, minutes
-        NaN where the raster has nodata (or a mask) or a non-finite value.
-    grid : Grid
-    tags : dict
-        The dataset tags.
-
-    Raises
-    ------
-    InputDataError
-        Missing or unreadable file, more than one band, or a ``UNITS`` tag
-        other than minutes.
+    >>> check_scenario_names(["north", "south-2"])
+    ['north', 'south-2']
     """
-    import rasterio
-    from rasterio.errors import RasterioError
-
-    from ttmap.grid import Grid
-
-    name = os.fspath(path)
-    if not os.path.exists(name):
-        raise InputDataError(f"arrival raster {name!r} does not exist; check the path")
-    try:
-        with rasterio.open(name) as src:
-            if src.count != 1:
-                raise InputDataError(
-                    f"arrival raster {name!r} has {src.count} bands; give a one-band raster of minutes"
-                )
-            tags = dict(src.tags())
-            data = src.read(1, masked=True)
-            if src.crs is None:
-                raise InputDataError(f"arrival raster {name!r} has no CRS; it cannot be compared")
-            grid = Grid((src.height, src.width), src.transform, src.crs.to_wkt())
-    except RasterioError as err:
-        raise InputDataError(f"{name!r} is not a raster GDAL can read ({err})") from err
-    units = tags.get("UNITS")
-    if units is not None and units.strip().lower() not in ("minutes", "min", "minute"):
-        raise InputDataError(
-            f"arrival raster {name!r} holds {units!r}, not minutes; give arrival-time rasters in minutes"
-        )
-    values = np.ma.filled(data.astype(np.float64), np.nan)
-    values[~np.isfinite(values)] = np.nan
-    return values, grid, tags
-
-
-def _same_grid(a: Grid, b: Grid) -> bool:
-    return (
-        tuple(a.shape) == tuple(b.shape)
-        and a.transform.almost_equals(b.transform, precision=1e-9 * max(1.0, abs(a.transform.a)))
-        and a.crs.equals(b.crs, ignore_axis_order=True)
-    )
-
-
-def _grid_text(g: Grid) -> str:
-    t = g.transform
-    return f"{g.shape[1]} x {g.shape[0]} cells, origin ({t.c:g}, {t.f:g}), cell ({t.a:g}, {t.e:g})"
-
-
-def _check_names(names: Sequence[str], what: str) -> list[str]:
     out = [str(n) for n in names]
     for n in out:
         if not _NAME_RE.match(n):
@@ -278,225 +201,39 @@ def _check_names(names: Sequence[str], what: str) -> list[str]:
     return out
 
 
-def _common_tags(quantity: str) -> dict[str, str]:
+def comparison_tags(quantity: str) -> dict[str, str]:
+    """Dataset tags of a comparison raster: what it holds, the software and the caution."""
     import ttmap
     from ttmap.products.cautions import CAUTION_SHORT
 
     return {"QUANTITY": quantity, "SOFTWARE": f"ttmap {ttmap.__version__}", "CAUTION": CAUTION_SHORT}
 
 
-def write_envelope(
-    out_dir: str | os.PathLike[str],
-    paths: Sequence[str | os.PathLike[str]],
-    names: Sequence[str],
-    grid: Grid | None = None,
-    overwrite: bool = False,
-) -> dict[str, str]:
-    """Write the earliest-arrival envelope of several arrival rasters.
-
-    Parameters
-    ----------
-    out_dir : path-like
-        Existing output folder.
-    paths : sequence of path-like
-        Arrival rasters (minutes), all on one grid; read one at a time.
-    names : sequence of str
-        Scenario name of each raster (file-safe, unique).
-    grid : Grid, optional
-        The grid the rasters must share; default that of the first raster.
-    overwrite : bool
-        Replace existing envelope files.
-
-    Returns
-    -------
-    dict
-        ``{"envelope_min": path, "first_scenario": path, "lookup_csv": path}``.
-
-    Raises
-    ------
-    InputDataError
-        Counts differ, no rasters, bad names, or a raster on another grid
-        (the message names it).
-    OutputExistsError
-        An output exists and ``overwrite`` is False (checked before reading).
-    """
-    from ttmap.io.atomic import atomic_output_set, check_writable
-    from ttmap.io.raster import write_arrival_geotiff, write_raster
-    from ttmap.products.cautions import CAUTION_SHORT
-
-    paths = [os.fspath(p) for p in paths]
-    names = _check_names(names, "scenario")
-    if len(paths) != len(names):
-        raise InputDataError(f"{len(paths)} rasters but {len(names)} names; give one name per raster")
-    if not paths:
-        raise InputDataError("no arrival rasters were given; pass at least one")
-    if len(paths) > MAX_SCENARIOS:
-        raise InputDataError(f"an envelope indexes at most {MAX_SCENARIOS} scenarios, got {len(paths)}")
-    out = Path(out_dir)
-    targets = [
-        out / "envelope_min.tif",
-        out / "envelope_first_scenario.tif",
-        out / "envelope_first_scenario.csv",
-    ]
-    check_writable(targets, overwrite)
-
-    ref: dict[str, Grid] = {}
-    if grid is not None:
-        ref["grid"] = grid
-
-    def _fields() -> Iterator[NDArray[np.float64]]:
-        for path in paths:
-            values, g, _ = read_minutes(path)
-            if "grid" not in ref:
-                ref["grid"] = g
-            elif not _same_grid(g, ref["grid"]):
-                raise InputDataError(
-                    f"arrival raster {path!r} ({_grid_text(g)}) is not on the grid of the others "
-                    f"({_grid_text(ref['grid'])}); compare rasters of one bathymetry and crop"
-                )
-            yield values
-
-    earliest, first = envelope(_fields())
-    g = ref["grid"]
-    counts = np.bincount(first[first >= 0].astype(np.int64), minlength=len(paths))
-    earliest_by: list[float | None] = []
-    for i in range(len(paths)):
-        sel = first == i
-        earliest_by.append(float(earliest[sel].min()) if counts[i] else None)
-    scenario_tags = {f"SCENARIO_{i}": n for i, n in enumerate(names)}
-    n = len(names)
-    with atomic_output_set(targets, overwrite=overwrite) as (t_min, t_first, t_csv):
-        write_arrival_geotiff(
-            t_min, earliest, g,
-            tags={**_common_tags(f"earliest arrival over {n} scenarios, minutes after origin"),
-                  "SCENARIOS": str(n), **scenario_tags},
-            band_description=f"earliest arrival over {n} scenarios, minutes after origin",
-        )
-        index = np.where(first >= 0, first, np.nan).astype(np.float32)
-        write_raster(
-            t_first, index, g, dtype="int16", nodata=float(NO_SCENARIO),
-            tags={**_common_tags(
-                "index of the scenario that arrives first (ties: lowest index); names in the "
-                "SCENARIO_<i> tags and envelope_first_scenario.csv"
-            ), "SCENARIOS": str(n), **scenario_tags},
-            band_description="index of the first-arriving scenario",
-            units="", resampling="nearest",
-        )
-        del index
-        with open(t_csv, "w", newline="", encoding="utf-8") as fh:
-            fh.write("# " + CAUTION_SHORT + "\n")
-            fh.write(
-                "# index: value in envelope_first_scenario.tif; cells_first: cells where this "
-                "scenario arrives first; earliest_min: its earliest arrival there, minutes\n"
-            )
-            w = csv.writer(fh)
-            w.writerow(["index", "name", "raster", "cells_first", "earliest_min"])
-            for i, (name, path) in enumerate(zip(names, paths)):
-                e = earliest_by[i]
-                w.writerow([i, name, os.path.basename(path), int(counts[i]),
-                            "" if e is None else f"{e:.3f}"])
-    return {
-        "envelope_min": str(targets[0]),
-        "first_scenario": str(targets[1]),
-        "lookup_csv": str(targets[2]),
-    }
-
-
-def write_difference(
-    out_dir: str | os.PathLike[str],
-    path_a: str | os.PathLike[str],
-    path_b: str | os.PathLike[str],
-    name_a: str,
-    name_b: str,
-    overwrite: bool = False,
-) -> dict[str, str]:
-    """Write ``difference_<a>_minus_<b>.tif``: arrival of a minus arrival of b, minutes.
-
-    Positive where b arrives earlier (a later) by that many minutes, negative
-    where a arrives earlier; nodata where either has no arrival. Tags
-    ``SCENARIO_A``, ``SCENARIO_B`` and ``SIGN`` say so in the file.
-
-    Returns
-    -------
-    dict
-        ``{"difference": path}``.
-
-    Raises
-    ------
-    InputDataError
-        Bad names, unreadable rasters, or rasters on different grids.
-    OutputExistsError
-        The output exists and ``overwrite`` is False.
-    """
-    from ttmap.io.atomic import check_writable
-    from ttmap.io.raster import write_raster
-
-    a_name, b_name = _check_names([name_a, name_b], "scenario")
-    target = Path(out_dir) / f"difference_{a_name}_minus_{b_name}.tif"
-    check_writable([target], overwrite)
-    a, grid_a, _ = read_minutes(path_a)
-    b, grid_b, _ = read_minutes(path_b)
-    if not _same_grid(grid_a, grid_b):
-        raise InputDataError(
-            f"{os.fspath(path_a)!r} ({_grid_text(grid_a)}) and {os.fspath(path_b)!r} "
-            f"({_grid_text(grid_b)}) are on different grids; compare rasters of one bathymetry"
-        )
-    diff = difference(a, b)
-    del a, b
-    write_raster(
-        target, diff, grid_a, dtype="float32", nodata=-9999.0,
-        tags={
-            **_common_tags(f"arrival time of {a_name} minus arrival time of {b_name}, minutes"),
-            "UNITS": "minutes",
-            "SCENARIO_A": a_name,
-            "SCENARIO_B": b_name,
-            "SIGN": (
-                f"positive: {b_name} arrives earlier ({a_name} later) by this many minutes; "
-                f"negative: {a_name} arrives earlier"
-            ),
-            "RASTER_A": os.path.basename(os.fspath(path_a)),
-            "RASTER_B": os.path.basename(os.fspath(path_b)),
-        },
-        band_description=f"arrival of {a_name} minus arrival of {b_name}, minutes",
-        units="min",
-        overwrite=overwrite,
-    )
-    return {"difference": str(target)}
-
-
 # ---------------------------------------------------------------------------
 # Sites across scenarios
 # ---------------------------------------------------------------------------
 
-FieldLike = Any  # a path to an arrival raster in minutes, or a 2-D array of minutes
+#: A field of arrival minutes: a 2-D array (NaN where no arrival), or a callable
+#: without arguments returning one (so that a caller can read fields one at a time).
+FieldLike = Any
 
 
-def _load_field(value: FieldLike, grid: Grid | None, what: str) -> tuple[NDArray[np.float64], Grid | None]:
-    """Minutes of one field (path or array), checked against ``grid``."""
-    if isinstance(value, (str, os.PathLike)):
-        values, g, _ = read_minutes(value)
-        if grid is None:
-            return values, g
-        if not _same_grid(g, grid):
-            raise InputDataError(
-                f"{what} raster {os.fspath(value)!r} ({_grid_text(g)}) is not on the grid of the "
-                f"others ({_grid_text(grid)}); use rasters of one bathymetry and crop"
-            )
-        return values, grid
-    values = _as_minutes(value, what).astype(np.float64)
+def _load_field(value: FieldLike, grid: Grid, what: str) -> NDArray[np.float64]:
+    """Minutes of one field (array, or a callable returning one), checked against ``grid``."""
+    values = _as_minutes(value() if callable(value) else value, what).astype(np.float64)
     values[~np.isfinite(values)] = np.nan
-    if grid is not None and tuple(values.shape) != tuple(grid.shape):
+    if tuple(values.shape) != tuple(grid.shape):
         raise InputDataError(
             f"{what} has shape {values.shape} but the grid is {tuple(grid.shape)}; give fields of one grid"
         )
-    return values, grid
+    return values
 
 
 def sites_by_scenarios(
     sites: Any,
-    grid: Grid | None,
-    front_paths: Mapping[str, FieldLike],
-    energy_paths: Mapping[tuple[str, float], FieldLike] | None = None,
+    grid: Grid,
+    front_fields: Mapping[str, FieldLike],
+    energy_fields: Mapping[tuple[str, float], FieldLike] | None = None,
     *,
     search_radius_m: float | None = None,
     notification_delay_min: float | None = None,
@@ -510,14 +247,13 @@ def sites_by_scenarios(
     ----------
     sites : SiteList
         From :func:`ttmap.io.sites.read_sites`.
-    grid : Grid or None
-        The grid of the fields; None takes that of the first front raster
-        (then the fronts must be paths).
-    front_paths : mapping of scenario name to path or ndarray
-        Front arrival of each scenario, minutes (raster path, or a 2-D array
-        of minutes with NaN where it has no arrival), all on one grid. Read
-        twice, one at a time: once for the envelope, once for the values.
-    energy_paths : mapping of (scenario, period_s) to path or ndarray, optional
+    grid : Grid
+        The grid of the fields.
+    front_fields : mapping of scenario name to FieldLike
+        Front arrival of each scenario, minutes (a 2-D array with NaN where
+        it has no arrival, or a callable returning one), all on ``grid``.
+        Used twice, one at a time: once for the envelope, once for the values.
+    energy_fields : mapping of (scenario, period_s) to FieldLike, optional
         Energy arrivals, minutes; periods missing for a scenario give blanks.
     search_radius_m : float, optional
         Snapping radius (default
@@ -559,16 +295,16 @@ def sites_by_scenarios(
         raise InputDataError(
             f"sites must be a SiteList (see read_sites), got {type(sites).__name__}"
         )
-    names = _check_names(list(front_paths), "scenario")
+    names = check_scenario_names(list(front_fields), "scenario")
     if not names:
         raise InputDataError("no front arrival fields were given; pass at least one scenario")
-    energy = dict(energy_paths or {})
+    energy = dict(energy_fields or {})
     periods: list[float] = []
     for key in energy:
         if not (isinstance(key, tuple) and len(key) == 2):
             raise InputDataError(f"energy key {key!r} must be (scenario, period_s)")
         sc, t = key
-        if sc not in front_paths:
+        if sc not in front_fields:
             raise InputDataError(
                 f"energy field for scenario {sc!r} has no front; give the front of every scenario"
             )
@@ -595,28 +331,19 @@ def sites_by_scenarios(
         defaults["walking_speed_m_s"], little_margin_min=little,
     )
 
-    # 1. Envelope, one field at a time; it fixes the grid.
-    ref: dict[str, Grid | None] = {"grid": grid}
-
-    def _fronts() -> Iterator[NDArray[np.float64]]:
-        for n in names:
-            values, ref["grid"] = _load_field(front_paths[n], ref["grid"], f"front of {n}")
-            yield values
-
-    earliest, _ = envelope(_fronts())
-    g = ref["grid"]
-    if g is None:
-        raise InputDataError("no grid: pass grid=... when the fronts are arrays")
+    # 1. Envelope, one field at a time.
+    g = grid
+    earliest, _ = envelope(_load_field(front_fields[n], g, f"front of {n}") for n in names)
     radius = SITE_SEARCH_RADIUS_M if search_radius_m is None else float(search_radius_m)
     snapped = snap_sites(sites, g, np.isfinite(earliest), search_radius_m=radius)
     del earliest
 
     # 2. Values at the snapped cells, one field at a time.
     def _values(field: FieldLike, what: str) -> list[float]:
-        arr, _ = _load_field(field, g, what)
+        arr = _load_field(field, g, what)
         return [float(arr[s.row, s.col]) if s.row >= 0 else math.nan for s in snapped]
 
-    front_at = {n: _values(front_paths[n], f"front of {n}") for n in names}
+    front_at = {n: _values(front_fields[n], f"front of {n}") for n in names}
     energy_at: dict[tuple[str, float], list[float]] = {}
     for (sc, t), field in energy_by.items():
         energy_at[(sc, t)] = _values(field, f"energy of {sc}, T = {t:g} s")
@@ -699,6 +426,52 @@ def earliest_by_site(table: Mapping[str, Sequence[Any]]) -> dict[str, list[Any]]
             out["earliest_scenario"][k] = f"{prev};{sc}" if prev else str(sc)
             out["front_min"][k] = float(front)
     return out
+
+
+def sites_by_scenarios_notes(
+    *,
+    notification_delay_min: float | None = None,
+    preparation_min: float | None = None,
+    walking_speed_m_s: float | None = None,
+    **_ignored: Any,
+) -> tuple[tuple[str, str], tuple[str, str]]:
+    """The comment lines above the two site tables: the caution, then what the columns mean.
+
+    Parameters
+    ----------
+    notification_delay_min, preparation_min, walking_speed_m_s : float, optional
+        The budget defaults given to :func:`sites_by_scenarios` (None: the
+        defaults of :mod:`ttmap.defaults`); other options are ignored.
+
+    Returns
+    -------
+    table_notes, earliest_notes : (str, str)
+        For the sites-by-scenarios table and the earliest-by-site table.
+    """
+    from ttmap.products.cautions import CAUTION_SHORT
+
+    d = {
+        "notification_delay_min": NOTIFICATION_DELAY_MIN
+        if notification_delay_min is None else float(notification_delay_min),
+        "preparation_min": PREPARATION_MIN if preparation_min is None else float(preparation_min),
+        "walking_speed_m_s": WALKING_SPEED_M_S
+        if walking_speed_m_s is None else float(walking_speed_m_s),
+    }
+    note = (
+        "One row per site and scenario; times in minutes after origin, distances in metres. "
+        "Each site is read at one cell for every scenario: the nearest water cell reached in the "
+        "earliest-arrival envelope. minutes_left = front_min - notification delay; "
+        "minutes_needed = preparation + distance / walking speed; margin_min = minutes_left - "
+        "minutes_needed (no speed-uncertainty band). Defaults where a site gives none: "
+        f"notification delay {d['notification_delay_min']:g} min, "
+        f"preparation {d['preparation_min']:g} min, walking speed {d['walking_speed_m_s']:g} m/s. "
+        "Margins are planning figures, not promises."
+    )
+    first = (
+        "earliest_scenario: the scenario whose front reaches the site first "
+        "(';' between ties); front_min: minutes after origin"
+    )
+    return (CAUTION_SHORT, note), (CAUTION_SHORT, first)
 
 
 def render_sites_by_scenarios(
@@ -823,99 +596,3 @@ def render_sites_by_scenarios(
              "not promises.", ha="center", va="top", fontsize=8.5, color="#333333")
     draw_caution_footer(fig, footer, fig_h)
     return fig
-
-
-def write_sites_by_scenarios(
-    out_dir: str | os.PathLike[str],
-    sites: Any,
-    front_paths: Mapping[str, FieldLike],
-    energy_paths: Mapping[tuple[str, float], FieldLike] | None = None,
-    *,
-    grid: Grid | None = None,
-    overwrite: bool = False,
-    **options: Any,
-) -> dict[str, Any]:
-    """Write ``sites_x_scenarios.csv``, ``earliest_by_site.csv`` and ``sites_x_scenarios.png``.
-
-    Parameters
-    ----------
-    out_dir : path-like
-        Existing output folder.
-    sites, front_paths, energy_paths, grid
-        As for :func:`sites_by_scenarios`.
-    overwrite : bool
-        Replace existing files (checked before anything is read).
-    **options
-        Budget and snapping options of :func:`sites_by_scenarios`.
-
-    Returns
-    -------
-    dict
-        ``{"table_csv", "earliest_csv", "chart_png"}`` paths and ``"table"``
-        (the columns).
-
-    Notes
-    -----
-    Both CSVs start with ``# `` + the short caution; the files are committed
-    together (:func:`ttmap.io.atomic.atomic_output_set`).
-    """
-    from types import SimpleNamespace
-
-    from ttmap.io.atomic import atomic_output_set, check_writable
-    from ttmap.io.sites import write_site_table_csv
-    from ttmap.products import budget as _budget
-    from ttmap.products.cautions import CAUTION_SHORT
-    from ttmap.products.maps import save_figure
-
-    out = Path(out_dir)
-    targets = [out / name for name in SITES_X_SCENARIOS_FILES]
-    check_writable(targets, overwrite)
-    table = sites_by_scenarios(sites, grid, front_paths, energy_paths, **options)
-    first = earliest_by_site(table)
-    base = {
-        "notification_delay_min": NOTIFICATION_DELAY_MIN,
-        "preparation_min": PREPARATION_MIN,
-        "walking_speed_m_s": WALKING_SPEED_M_S,
-    }
-    d = {k: float(v if options.get(k) is None else options[k]) for k, v in base.items()}
-    note = (
-        "One row per site and scenario; times in minutes after origin, distances in metres. "
-        "Each site is read at one cell for every scenario: the nearest water cell reached in the "
-        "earliest-arrival envelope. minutes_left = front_min - notification delay; "
-        "minutes_needed = preparation + distance / walking speed; margin_min = minutes_left - "
-        "minutes_needed (no speed-uncertainty band). Defaults where a site gives none: "
-        f"notification delay {d['notification_delay_min']:g} min, "
-        f"preparation {d['preparation_min']:g} min, walking speed {d['walking_speed_m_s']:g} m/s. "
-        "Margins are planning figures, not promises."
-    )
-    decimals = {k: 2 for k in table if k.endswith("_min") or k.startswith("minutes_")}
-    decimals["moved_m"] = 0
-    fig = render_sites_by_scenarios(table)
-    with atomic_output_set(targets, overwrite=overwrite) as (t_table, t_first, t_png):
-        write_site_table_csv(
-            t_table, SimpleNamespace(columns=table, comments=(CAUTION_SHORT, note), decimals=decimals),
-            overwrite=True,
-        )
-        write_site_table_csv(
-            t_first,
-            SimpleNamespace(
-                columns=first,
-                comments=(
-                    CAUTION_SHORT,
-                    (
-                        "earliest_scenario: the scenario whose front reaches the site first "
-                        "(';' between ties); front_min: minutes after origin"
-                    ),
-                ),
-                decimals={"front_min": 2},
-            ),
-            overwrite=True,
-        )
-        save_figure(fig, t_png, format="png")
-    del fig
-    return {
-        "table_csv": str(targets[0]),
-        "earliest_csv": str(targets[1]),
-        "chart_png": str(targets[2]),
-        "table": table,
-    }
