@@ -229,6 +229,20 @@ def _load_field(value: FieldLike, grid: Grid, what: str) -> NDArray[np.float64]:
     return values
 
 
+def _budget_defaults(
+    notification_delay_min: float | None,
+    preparation_min: float | None,
+    walking_speed_m_s: float | None,
+) -> dict[str, float]:
+    """The budget values for sites that give none: those passed, else the project defaults."""
+    given = {
+        "notification_delay_min": (notification_delay_min, NOTIFICATION_DELAY_MIN),
+        "preparation_min": (preparation_min, PREPARATION_MIN),
+        "walking_speed_m_s": (walking_speed_m_s, WALKING_SPEED_M_S),
+    }
+    return {k: float(default if v is None else v) for k, (v, default) in given.items()}
+
+
 def sites_by_scenarios(
     sites: Any,
     grid: Grid,
@@ -316,14 +330,7 @@ def sites_by_scenarios(
     periods.sort()
     energy_by = {(str(sc), float(t)): v for (sc, t), v in energy.items()}
 
-    defaults = {
-        "notification_delay_min": NOTIFICATION_DELAY_MIN
-        if notification_delay_min is None else float(notification_delay_min),
-        "preparation_min": PREPARATION_MIN
-        if preparation_min is None else float(preparation_min),
-        "walking_speed_m_s": WALKING_SPEED_M_S
-        if walking_speed_m_s is None else float(walking_speed_m_s),
-    }
+    defaults = _budget_defaults(notification_delay_min, preparation_min, walking_speed_m_s)
     little = LITTLE_MARGIN_MIN if little_margin_min is None else float(little_margin_min)
     # Checks the defaults and the threshold once, with a clear message.
     _budget.warning_budget(
@@ -450,13 +457,7 @@ def sites_by_scenarios_notes(
     """
     from ttmap.products.cautions import CAUTION_SHORT
 
-    d = {
-        "notification_delay_min": NOTIFICATION_DELAY_MIN
-        if notification_delay_min is None else float(notification_delay_min),
-        "preparation_min": PREPARATION_MIN if preparation_min is None else float(preparation_min),
-        "walking_speed_m_s": WALKING_SPEED_M_S
-        if walking_speed_m_s is None else float(walking_speed_m_s),
-    }
+    d = _budget_defaults(notification_delay_min, preparation_min, walking_speed_m_s)
     note = (
         "One row per site and scenario; times in minutes after origin, distances in metres. "
         "Each site is read at one cell for every scenario: the nearest water cell reached in the "
