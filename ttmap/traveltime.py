@@ -377,10 +377,13 @@ def prepare_medium(
     Examples
     --------
     >>> from affine import Affine
-    >>> g = Grid((50, 50), Affine(1000, 0, 0, 0, -1000, 50000), "EPSG:32601")
+    >>> g = Grid((50, 50), Affine(1000, 0, 475_000, 0, -1000, 50000), "EPSG:32601")
     >>> m = prepare_medium(np.full((50, 50), 4000.0), g)
-    >>> r = m.travel_time(Source.point_xy(25500, 24500))
-    >>> round(float(r.arrival_time_s[25, 45] / (20000 / np.sqrt(9.80665 * 4000))), 3)
+    >>> m.settings["projection_scale"]["method"]
+    'conformal scale factor'
+    >>> r = m.travel_time(Source.point_xy(500_500, 24500))
+    >>> ground_m = 20000 / 0.9996  # UTM: scale 0.9996 at its central meridian
+    >>> round(float(r.arrival_time_s[25, 45] / (ground_m / np.sqrt(9.80665 * 4000))), 4)
     1.0
     """
     return _prepare_medium(
