@@ -569,6 +569,8 @@ CONFORMAL_TOLERANCE: float = 1e-5
 SCALE_INTERPOLATION_TOLERANCE: float = 1e-5
 # Lattice nodes per axis to start with; halved in step until the check passes.
 _LATTICE_START_NODES = 65
+# Positions per call of principal_scales (about 100 bytes of temporaries each).
+_SCALE_CHUNK = 1 << 15
 # Round-trip tolerance of the CRS's inverse then forward transform, in cells.
 _ROUND_TRIP_CELLS = 1e-3
 
@@ -812,7 +814,7 @@ def projection_scale(
     while True:
         lr, lc = _lattice(rows, step), _lattice(cols, step)
         rr, cc = np.meshgrid(lr.astype(np.float64), lc.astype(np.float64), indexing="ij")
-        a, b = principal_scales(grid, rr, cc)
+        a, b = _scales_in_chunks(grid, rr, cc)
         _check_domain(grid, a, b, rr, cc, crs_text)
         node = np.sqrt(a * b)
         if step == 1:
@@ -833,7 +835,7 @@ def projection_scale(
         ]
         pr = np.concatenate([p[0].ravel() for p in pts])
         pc = np.concatenate([p[1].ravel() for p in pts])
-        ca, cb = principal_scales(grid, pr, pc)
+        ca, cb = _scales_in_chunks(grid, pr, pc)
         _check_domain(grid, ca, cb, pr, pc, crs_text)
         exact = np.sqrt(ca * cb)
         interp_err = float(np.max(np.abs(np.concatenate([g.ravel() for g in guess]) / exact - 1.0)))
@@ -862,6 +864,16 @@ def projection_scale(
         angular_distortion_deg=max(omega, 0.0),
         interpolation_error=interp_err,
     )
+
+
+def _scales_in_chunks(grid: Grid, row: FloatArray, col: FloatArray) -> tuple[FloatArray, FloatArray]:
+    """:func:`principal_scales` in chunks of positions, so that its temporaries stay small."""
+    r, c = row.ravel(), col.ravel()
+    a, b = np.empty(r.size), np.empty(r.size)
+    for i in range(0, r.size, _SCALE_CHUNK):
+        sl = slice(i, i + _SCALE_CHUNK)
+        a[sl], b[sl] = principal_scales(grid, r[sl], c[sl])
+    return a.reshape(row.shape), b.reshape(row.shape)
 
 
 def _check_domain(
