@@ -15,7 +15,7 @@ __all__ = [
     "FLOOR_DEPTH_M",
     "SCALING_RELATION",
     "MIN_BASIN_SHARE",
-    "MAX_PROJECTED_SCALE_ERROR",
+    "MAX_PROJECTION_ANISOTROPY_ERROR",
     "MEMORY_SHARE",
     "SITE_SEARCH_RADIUS_M",
     "SPEED_UNCERTAINTY",
@@ -54,9 +54,14 @@ SCALING_RELATION: str = "strasser2010-interface"
 #: largest one, is a closed basin: sources may not start there.
 MIN_BASIN_SHARE: float = 0.01
 
-#: A projected grid whose CRS scales ground distances by more than this
-#: fraction (either way) is corrected or refused (see ttmap.grid).
-MAX_PROJECTED_SCALE_ERROR: float = 0.01
+#: A projected grid is solved in map units with the local scale of its CRS
+#: (ttmap.grid.projection_scale). Where the CRS is not conformal, an isotropic
+#: solve with the local mean scale is off by at most sqrt(a/b) - 1 (a, b the
+#: principal scales): accepted up to this fraction, refused beyond it. 0.5 %
+#: admits Web Mercator everywhere (spherical formulas on the WGS84 ellipsoid,
+#: at most 0.34 % at the equator) and refuses any visible shape distortion
+#: (angular distortion above about 0.6 degrees); see docs/projections.md.
+MAX_PROJECTION_ANISOTROPY_ERROR: float = 0.005
 
 #: Earth models for geographic grids; the first is the default.
 EARTH_MODELS: tuple[str, ...] = ("wgs84", "sphere")

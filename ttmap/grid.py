@@ -36,7 +36,7 @@ import numpy as np
 from affine import Affine
 from pyproj import CRS
 
-from ttmap.defaults import EARTH_MODELS
+from ttmap.defaults import EARTH_MODELS, MAX_PROJECTION_ANISOTROPY_ERROR
 from ttmap._typing import EarthModel, FloatArray, IntArray
 from ttmap.errors import GridError
 from ttmap.physics.constants import MEAN_EARTH_RADIUS_M, WGS84_A_M, WGS84_E, WGS84_E2
@@ -49,6 +49,11 @@ __all__ = [
     "latitude_from_isometric",
     "mercator_scale_factor",
     "MAX_ABS_LATITUDE_DEG",
+    "ProjectionScale",
+    "projection_scale",
+    "principal_scales",
+    "CONFORMAL_TOLERANCE",
+    "SCALE_INTERPOLATION_TOLERANCE",
 ]
 
 #: Grids reaching closer to a pole than this are refused: the Mercator scale
@@ -550,4 +555,338 @@ def solve_plane(grid: Grid, *, earth: EarthModel = "wgs84") -> SolvePlane:
         back_weight=w,
         periodic_x=grid.wraps_x,
         drop_seam=drop_seam,
+    )
+
+
+# ---------------------------------------------------------------- projected grids
+
+#: Largest travel-time error bound (sqrt(a/b) - 1) still called conformal: the
+#: principal scales of a conformal projection agree to rounding (measured below
+#: 1e-8 for UTM, polar stereographic and Lambert conformal conic here).
+CONFORMAL_TOLERANCE: float = 1e-5
+#: Largest relative error of the bilinear interpolation of the scale field
+#: between lattice nodes, checked at every lattice edge midpoint and cell centre.
+SCALE_INTERPOLATION_TOLERANCE: float = 1e-5
+# Lattice nodes per axis to start with; halved in step until the check passes.
+_LATTICE_START_NODES = 65
+# Positions per call of principal_scales (about 100 bytes of temporaries each).
+_SCALE_CHUNK = 1 << 15
+# Round-trip tolerance of the CRS's inverse then forward transform, in cells.
+_ROUND_TRIP_CELLS = 1e-3
+
+_REPROJECT_FIX = (
+    "reproject the bathymetry to a conformal projection or to lon/lat, "
+    "e.g. gdalwarp -t_srs EPSG:4326 in.tif out.tif"
+)
+
+
+def _crs_text(crs: CRS) -> str:
+    name = crs.name or crs.to_string()
+    code = crs.to_epsg()
+    return f"{name} (EPSG:{code})" if code else name
+
+
+@dataclass(frozen=True)
+class ProjectionScale:
+    """Local scale of a projected grid's CRS against its ellipsoid.
+
+    Map metres per ground metre (ground: the CRS's own ellipsoid), held on a
+    coarse lattice of native cell centres and interpolated bilinearly between
+    them (:meth:`rows`). Build with :func:`projection_scale`.
+
+    Attributes
+    ----------
+    crs_text : str
+        The CRS's name and EPSG code.
+    method : {"conformal scale factor", "mean scale factor"}
+        Conformal CRS (the scale is the same in every direction, the solve is
+        exact), or a near-conformal one solved with the local geometric mean
+        ``sqrt(a b)`` of its principal scales (times off by at most
+        :attr:`anisotropy_error`).
+    lattice_rows, lattice_cols : ndarray of int
+        Native rows and columns of the lattice nodes (first and last included).
+    scale : ndarray of shape (lattice rows, lattice cols), float64
+        Mean scale ``sqrt(a b)`` at the nodes, map metres per ground metre.
+    min, max : float
+        Smallest and largest scale over nodes and check points.
+    anisotropy_error : float
+        Largest ``sqrt(a / b) - 1`` found: the bound on the relative
+        travel-time error of an isotropic solve with the mean scale.
+    angular_distortion_deg : float
+        Largest angular distortion ``2 asin((a - b) / (a + b))``, degrees.
+    interpolation_error : float
+        Largest relative error of the bilinear interpolation measured at the
+        lattice's edge midpoints and cell centres (0 when the lattice is the grid).
+    """
+
+    crs_text: str
+    method: str
+    lattice_rows: IntArray = field(repr=False)
+    lattice_cols: IntArray = field(repr=False)
+    scale: FloatArray = field(repr=False)
+    min: float
+    max: float
+    anisotropy_error: float
+    angular_distortion_deg: float
+    interpolation_error: float
+
+    def rows(self, start: int, stop: int) -> FloatArray:
+        """Scale at the native cells of rows ``start:stop``, shape ``(stop - start, cols)``.
+
+        Bilinear between the lattice nodes; the temporaries are a few arrays
+        of the block's size.
+        """
+        i, w = _bracket(self.lattice_rows, np.arange(start, stop, dtype=np.float64))
+        j, v = _bracket(self.lattice_cols, np.arange(int(self.lattice_cols[-1]) + 1, dtype=np.float64))
+        s = self.scale
+        top = s[i][:, j] * (1.0 - v) + s[i][:, j + 1] * v
+        bottom = s[i + 1][:, j] * (1.0 - v) + s[i + 1][:, j + 1] * v
+        top *= (1.0 - w)[:, None]
+        bottom *= w[:, None]
+        top += bottom
+        return np.asarray(top, dtype=np.float64)
+
+    def as_dict(self) -> dict[str, Any]:
+        """JSON-ready description for the run record."""
+        return {
+            "method": self.method,
+            "min": float(self.min),
+            "max": float(self.max),
+            "crs": self.crs_text,
+            "anisotropy_error": float(self.anisotropy_error),
+            "angular_distortion_deg": float(self.angular_distortion_deg),
+            "interpolation_error": float(self.interpolation_error),
+            "lattice_shape": [int(self.lattice_rows.size), int(self.lattice_cols.size)],
+        }
+
+
+def _bracket(nodes: IntArray, pos: FloatArray) -> tuple[IntArray, FloatArray]:
+    """Left node index and weight of each position between sorted ``nodes``."""
+    i = np.clip(np.searchsorted(nodes, pos, side="right") - 1, 0, nodes.size - 2).astype(np.intp)
+    w = (pos - nodes[i]) / (nodes[i + 1] - nodes[i])
+    return i, np.asarray(w, dtype=np.float64)
+
+
+def _lattice(n: int, step: int) -> IntArray:
+    return np.unique(np.r_[np.arange(0, n, step), n - 1]).astype(np.intp)
+
+
+def principal_scales(grid: Grid, row: Any, col: Any) -> tuple[FloatArray, FloatArray]:
+    """Largest and smallest map-per-ground scale ``(a, b)`` at native positions.
+
+    Parameters
+    ----------
+    grid : Grid
+        A projected grid whose CRS has an ellipsoid.
+    row, col : array_like of float
+        Native (fractional) row and column indices of cell centres.
+
+    Returns
+    -------
+    a, b : ndarrays of float64
+        Principal scales, map metres per ground metre on the CRS's ellipsoid
+        (Tissot's indicatrix; ``a == b`` for a conformal projection). NaN where
+        the CRS cannot place the position on the ellipsoid.
+
+    Notes
+    -----
+    Ground lengths of three short map segments through each position (along
+    x, along y and along the diagonal, half a cell each way) are measured as
+    geodesics on the ellipsoid (Karney 2013, through ``pyproj.Geod``). They
+    give the metric tensor ``G`` (squared ground metres per squared map
+    metre); its eigenvalues ``g1 >= g2`` give ``a = g2**-0.5``,
+    ``b = g1**-0.5``. Unlike PROJ's own factors this measures Web Mercator
+    (spherical formulas on WGS84 coordinates) against the WGS84 ellipsoid.
+
+    Examples
+    --------
+    >>> from affine import Affine
+    >>> g = Grid((10, 10), Affine(1000, 0, 495_000, 0, -1000, 5_000), "EPSG:32633")
+    >>> a, b = principal_scales(g, 5.0, 5.0)
+    >>> round(float(a), 6), round(float(b), 6)
+    (0.9996, 0.9996)
+    """
+    from pyproj import Transformer
+
+    geodetic = grid.crs.geodetic_crs
+    geod = grid.crs.get_geod()
+    if geodetic is None or geod is None:
+        raise GridError(
+            f"the grid's CRS {_crs_text(grid.crs)} has no ellipsoid (an engineering or local "
+            "CRS), so its scale against the ground is unknown; assign the raster its real CRS "
+            "(gdal_edit.py -a_srs EPSG:...) or " + _REPROJECT_FIX
+        )
+    r0, c0 = np.broadcast_arrays(np.asarray(row, dtype=np.float64), np.asarray(col, dtype=np.float64))
+    shape = r0.shape
+    r, c = r0.ravel(), c0.ravel()
+    t = grid.transform
+    u = grid.linear_unit_m
+    h = 0.5  # cells each way
+    x, y = grid.xy(r, c)
+    dx, dy = h * t.a, h * t.e
+    to_ll = Transformer.from_crs(grid.crs, geodetic, always_xy=True)
+    xs = np.concatenate([x - dx, x + dx, x, x, x - dx, x + dx])
+    ys = np.concatenate([y, y, y - dy, y + dy, y - dy, y + dy])
+    with np.errstate(invalid="ignore"):
+        lon, lat = (np.asarray(v, dtype=np.float64) for v in to_ll.transform(xs, ys, errcheck=False))
+        # A position outside the projection's domain may still come back finite: go round.
+        xb, yb = (np.asarray(v, dtype=np.float64) for v in to_ll.transform(
+            lon, lat, direction="INVERSE", errcheck=False))
+        bad = ~(np.abs(xb - xs) <= _ROUND_TRIP_CELLS * abs(t.a))
+        bad |= ~(np.abs(yb - ys) <= _ROUND_TRIP_CELLS * abs(t.e))
+        lon[bad] = np.nan
+        n = r.size
+        lo, la = lon.reshape(6, n), lat.reshape(6, n)
+        s = []
+        for k in range(3):
+            _, _, d = geod.inv(lo[2 * k], la[2 * k], lo[2 * k + 1], la[2 * k + 1])
+            s.append(np.asarray(d, dtype=np.float64))
+        sx, sy, sd = s
+        sx[~np.isfinite(lo[0] + lo[1])] = np.nan
+        sy[~np.isfinite(lo[2] + lo[3])] = np.nan
+        sd[~np.isfinite(lo[4] + lo[5])] = np.nan
+        lx, ly = 2.0 * abs(dx) * u, 2.0 * abs(dy) * u
+        g11 = (sx / lx) ** 2
+        g22 = (sy / ly) ** 2
+        # Diagonal step (2dx, 2dy) in map metres: |d|^2 = g11 lx^2 + 2 g12 lx ly s + g22 ly^2,
+        # s the sign of dx * dy.
+        sign = math.copysign(1.0, dx * dy)
+        g12 = (sd**2 - g11 * lx**2 - g22 * ly**2) / (2.0 * lx * ly * sign)
+        half = 0.5 * (g11 + g22)
+        disc = np.sqrt((0.5 * (g11 - g22)) ** 2 + g12**2)
+        g1, g2 = half + disc, half - disc
+        a = 1.0 / np.sqrt(g2)
+        b = 1.0 / np.sqrt(g1)
+    return np.asarray(a, dtype=np.float64).reshape(shape), np.asarray(b, dtype=np.float64).reshape(shape)
+
+
+def projection_scale(
+    grid: Grid,
+    *,
+    max_anisotropy_error: float = MAX_PROJECTION_ANISOTROPY_ERROR,
+    interpolation_tolerance: float = SCALE_INTERPOLATION_TOLERANCE,
+) -> ProjectionScale:
+    """Scale field of a projected grid, checked for conformality.
+
+    Parameters
+    ----------
+    grid : Grid
+        A projected grid.
+    max_anisotropy_error : float
+        Largest accepted travel-time error bound ``sqrt(a / b) - 1`` of a
+        non-conformal CRS solved with its local mean scale (default
+        :data:`ttmap.defaults.MAX_PROJECTION_ANISOTROPY_ERROR`, 0.5 %).
+    interpolation_tolerance : float
+        Largest relative error of the bilinear interpolation between lattice
+        nodes; the lattice is refined (down to every cell) until it holds.
+
+    Returns
+    -------
+    ProjectionScale
+
+    Raises
+    ------
+    GridError
+        A geographic grid; a CRS without an ellipsoid; a cell the CRS cannot
+        place on the ellipsoid; a CRS whose anisotropy exceeds the limit.
+
+    Notes
+    -----
+    In a conformal projection (Snyder 1987, USGS Prof. Paper 1395: Mercator,
+    transverse Mercator, stereographic, Lambert conformal conic) the point
+    scale ``k`` is the same in every direction, so a ground path of length
+    ``L`` has map length ``integral k dl`` and travel time in map units obeys
+    ``|grad t| = 1 / (c k)``: the isotropic eikonal with speed ``c k``.
+
+    Examples
+    --------
+    >>> from affine import Affine
+    >>> g = Grid((20, 20), Affine(10_000, 0, 0, 0, -10_000, 8_600_000), "EPSG:3857")
+    >>> p = projection_scale(g)
+    >>> p.method, round(p.min, 2), round(p.max, 2)
+    ('mean scale factor', 2.0, 2.05)
+    """
+    if grid.is_geographic:
+        raise GridError("a geographic grid has no projection scale; it is solved on the Mercator plane")
+    rows, cols = grid.shape
+    step = max(1, math.ceil((max(rows, cols) - 1) / (_LATTICE_START_NODES - 1)))
+    crs_text = _crs_text(grid.crs)
+    while True:
+        lr, lc = _lattice(rows, step), _lattice(cols, step)
+        rr, cc = np.meshgrid(lr.astype(np.float64), lc.astype(np.float64), indexing="ij")
+        a, b = _scales_in_chunks(grid, rr, cc)
+        _check_domain(grid, a, b, rr, cc, crs_text)
+        node = np.sqrt(a * b)
+        if step == 1:
+            ca, cb = a, b
+            interp_err = 0.0
+            break
+        # Check points: lattice edge midpoints (both ways) and cell centres.
+        mr, mc = 0.5 * (lr[:-1] + lr[1:]), 0.5 * (lc[:-1] + lc[1:])
+        pts = [
+            np.meshgrid(mr, lc.astype(np.float64), indexing="ij"),
+            np.meshgrid(lr.astype(np.float64), mc, indexing="ij"),
+            np.meshgrid(mr, mc, indexing="ij"),
+        ]
+        guess = [
+            0.5 * (node[:-1, :] + node[1:, :]),
+            0.5 * (node[:, :-1] + node[:, 1:]),
+            0.25 * (node[:-1, :-1] + node[1:, :-1] + node[:-1, 1:] + node[1:, 1:]),
+        ]
+        pr = np.concatenate([p[0].ravel() for p in pts])
+        pc = np.concatenate([p[1].ravel() for p in pts])
+        ca, cb = _scales_in_chunks(grid, pr, pc)
+        _check_domain(grid, ca, cb, pr, pc, crs_text)
+        exact = np.sqrt(ca * cb)
+        interp_err = float(np.max(np.abs(np.concatenate([g.ravel() for g in guess]) / exact - 1.0)))
+        if interp_err <= interpolation_tolerance:
+            break
+        step = max(1, step // 2)
+    a_all, b_all = np.concatenate([a.ravel(), ca.ravel()]), np.concatenate([b.ravel(), cb.ravel()])
+    aniso = float(np.max(np.sqrt(a_all / b_all))) - 1.0
+    omega = float(np.degrees(np.max(2.0 * np.arcsin((a_all - b_all) / (a_all + b_all)))))
+    mean_all = np.sqrt(a_all * b_all)
+    if aniso > max_anisotropy_error:
+        raise GridError(
+            f"the grid's CRS {crs_text} is not conformal: angular distortion up to "
+            f"{omega:.3g} degrees on the grid, travel times off by up to {100.0 * aniso:.3g} % "
+            f"(limit {100.0 * max_anisotropy_error:g} %); {_REPROJECT_FIX}"
+        )
+    return ProjectionScale(
+        crs_text=crs_text,
+        method="conformal scale factor" if aniso <= CONFORMAL_TOLERANCE else "mean scale factor",
+        lattice_rows=lr,
+        lattice_cols=lc,
+        scale=node,
+        min=float(mean_all.min()),
+        max=float(mean_all.max()),
+        anisotropy_error=max(aniso, 0.0),
+        angular_distortion_deg=max(omega, 0.0),
+        interpolation_error=interp_err,
+    )
+
+
+def _scales_in_chunks(grid: Grid, row: FloatArray, col: FloatArray) -> tuple[FloatArray, FloatArray]:
+    """:func:`principal_scales` in chunks of positions, so that its temporaries stay small."""
+    r, c = row.ravel(), col.ravel()
+    a, b = np.empty(r.size), np.empty(r.size)
+    for i in range(0, r.size, _SCALE_CHUNK):
+        sl = slice(i, i + _SCALE_CHUNK)
+        a[sl], b[sl] = principal_scales(grid, r[sl], c[sl])
+    return a.reshape(row.shape), b.reshape(row.shape)
+
+
+def _check_domain(
+    grid: Grid, a: FloatArray, b: FloatArray, row: FloatArray, col: FloatArray, crs_text: str
+) -> None:
+    ok = np.isfinite(a) & np.isfinite(b) & (b > 0.0)
+    if ok.all():
+        return
+    i = int(np.argmin(ok.ravel()))
+    r, c = float(np.ravel(row)[i]), float(np.ravel(col)[i])
+    x, y = grid.xy(r, c)
+    raise GridError(
+        f"the grid's CRS {crs_text} cannot place the cell at row {r:g}, col {c:g} "
+        f"(x {float(x):.1f}, y {float(y):.1f}) on its ellipsoid: the grid reaches beyond the "
+        "projection's domain; crop it to the projection's area of use or " + _REPROJECT_FIX
     )

@@ -17,17 +17,16 @@ from __future__ import annotations
 
 import threading
 import time
-import warnings
 from dataclasses import asdict, dataclass, field
 from typing import Any
 
 import numpy as np
 
-from ttmap.defaults import MAX_PROJECTED_SCALE_ERROR, MIN_BASIN_SHARE
+from ttmap.defaults import MIN_BASIN_SHARE
 from ttmap._typing import BoolArray, EarthModel, FloatArray, IntArray
 from ttmap.connectivity import connect_water
-from ttmap.errors import InputDataError, TtmapWarning
-from ttmap.grid import Grid, SolvePlane, solve_plane
+from ttmap.errors import InputDataError
+from ttmap.grid import Grid, ProjectionScale, SolvePlane, projection_scale, solve_plane
 from ttmap.physics.speed import check_speed_options, water_speed_m_s
 from ttmap.defaults import FLOOR_DEPTH_M
 from ttmap.solver import fast_march_s
@@ -121,7 +120,8 @@ class TravelTimeResult:
     summary : TravelTimeSummary
     source : Source
     settings : dict
-        Speed mode, period, floor depth, far-field flag, earth model, maximum time.
+        Speed mode, period, floor depth, far-field flag, earth model, maximum time,
+        and ``projection_scale``: the scale correction applied (method, min, max, CRS).
     """
 
     arrival_time_s: FloatArray = field(repr=False)
@@ -363,22 +363,27 @@ def prepare_medium(
     InputDataError
         Shape mismatch, no water, bad mode/period/floor depth.
     GridError
-        A lon/lat grid beyond the latitude limit, or an unknown earth model.
+        A lon/lat grid beyond the latitude limit, or an unknown earth model; a
+        projected grid whose CRS has no ellipsoid, reaches beyond its domain,
+        or is not conformal enough (:func:`ttmap.grid.projection_scale`).
 
-    Warns
+    Notes
     -----
-    TtmapWarning
-        A projected grid whose CRS scales ground distances at the grid's
-        centre by more than :data:`MAX_PROJECTED_SCALE_ERROR` (1 %), e.g. Web
-        Mercator away from the equator: the times would be off by as much.
+    A projected grid is solved in map units with the speed multiplied by the
+    local scale of its CRS (map metres per ground metre, see
+    :func:`ttmap.grid.projection_scale`): exact for conformal projections.
+    ``settings["projection_scale"]`` records what was applied.
 
     Examples
     --------
     >>> from affine import Affine
-    >>> g = Grid((50, 50), Affine(1000, 0, 0, 0, -1000, 50000), "EPSG:32601")
+    >>> g = Grid((50, 50), Affine(1000, 0, 475_000, 0, -1000, 50000), "EPSG:32601")
     >>> m = prepare_medium(np.full((50, 50), 4000.0), g)
-    >>> r = m.travel_time(Source.point_xy(25500, 24500))
-    >>> round(float(r.arrival_time_s[25, 45] / (20000 / np.sqrt(9.80665 * 4000))), 3)
+    >>> m.settings["projection_scale"]["method"]
+    'conformal scale factor'
+    >>> r = m.travel_time(Source.point_xy(500_500, 24500))
+    >>> ground_m = 20000 / 0.9996  # UTM: scale 0.9996 at its central meridian
+    >>> round(float(r.arrival_time_s[25, 45] / (ground_m / np.sqrt(9.80665 * 4000))), 4)
     1.0
     """
     return _prepare_medium(
@@ -408,8 +413,8 @@ def _prepare_medium(
     if not (0.0 <= min_basin_share < 1.0):
         raise InputDataError(f"minimum basin share {min_basin_share!r} must lie in [0, 1)")
     plane = solve_plane(grid, earth=earth)
-    if not grid.is_geographic:
-        _warn_if_not_true_to_scale(grid)
+    # Projected grids: the CRS's local scale (refused here if it is not conformal enough).
+    scale = None if grid.is_geographic else projection_scale(grid)
     # Nodata and infinities are land (NaN); shallow water gets the floor depth. In place,
     # in slices of rows, so that the temporaries stay small.
     water = np.empty(depth.shape, dtype=bool)
@@ -461,6 +466,10 @@ def _prepare_medium(
     if plane.is_identity:
         barrier_plane = ~water
         speed_plane = water_speed_m_s(core, mode=mode, period_s=period_s, far_field=far_field)
+        if scale is not None:
+            # Map metres per ground metre: speed in map metres per second. In slices of rows.
+            for i in range(0, speed_plane.shape[0], step):
+                speed_plane[i : i + step] *= scale.rows(i, min(i + step, speed_plane.shape[0]))
     else:
         barrier_plane = (water[:, :-1] if plane.drop_seam else water)[plane.native_row, :]
         np.logical_not(barrier_plane, out=barrier_plane)
@@ -478,6 +487,7 @@ def _prepare_medium(
         "earth": earth if grid.is_geographic else None,
         "open_diagonal": open_diagonal,
         "min_basin_share": min_basin_share,
+        "projection_scale": _projection_record(plane, scale),
     }
     return Medium(
         grid=grid,
@@ -494,25 +504,18 @@ def _prepare_medium(
     )
 
 
-def _warn_if_not_true_to_scale(grid: Grid) -> None:
-    """Warn when a projected grid's CRS distorts ground distances at its centre."""
-    factors = grid.point_scale_factors()
-    if factors is None:
-        return
-    k = max(factors, key=lambda f: abs(f - 1.0))
-    if abs(k - 1.0) <= MAX_PROJECTED_SCALE_ERROR:
-        return
-    name = grid.crs.name or grid.crs.to_string()
-    code = grid.crs.to_epsg()
-    crs_text = f"{name} (EPSG:{code})" if code else name
-    warnings.warn(
-        f"the grid's CRS {crs_text} scales ground distances by {k:.3f} at the grid's centre, "
-        f"so travel times are off by about {abs(k - 1.0) * 100:.0f} %; reproject the bathymetry "
-        "to a local equal-distance CRS (UTM zone, azimuthal equidistant) or use the "
-        "longitude/latitude raster",
-        TtmapWarning,
-        stacklevel=4,
-    )
+def _projection_record(plane: SolvePlane, scale: ProjectionScale | None) -> dict[str, Any]:
+    """What was done about the map's scale, for the run record."""
+    if scale is not None:
+        return scale.as_dict()
+    k = plane.scale_factor
+    return {
+        "method": "Mercator solve plane",
+        "min": float(k.min()),
+        "max": float(k.max()),
+        "crs": plane.grid.crs.name or plane.grid.crs.to_string(),
+        "earth": plane.earth,
+    }
 
 
 def compute_travel_time(

@@ -15,6 +15,7 @@ from affine import Affine
 from pyproj import CRS, Geod
 
 from ttmap import Grid, Source, prepare_medium
+from ttmap.grid import projection_scale
 from ttmap.errors import SourceError, TtmapWarning
 
 GEOD = Geod(ellps="WGS84")
@@ -310,7 +311,14 @@ def test_point_start_region_holds_straight_ray_times(coast):
     x, y = grid.xy(rows, cols)
     r = np.hypot(x - 25_300.0, y - 20_800.0)
     near = r < 5000.0  # well within the 10-cell start disc, all water
-    np.testing.assert_allclose(t[near], r[near] / np.sqrt(9.80665 * 1000.0), rtol=1e-12)
+    # Straight-ray time in map metres at the speed times the CRS's scale (this UTM grid lies
+    # 500 km off its central meridian: k about 1.0027, varying 1e-5 per cell), taken at the
+    # ray's middle: second-order in the change of k along the ray.
+    k = projection_scale(grid).rows(0, grid.rows)
+    k_mid = 0.5 * (k + k[grid.rowcol(25_300.0, 20_800.0)])
+    np.testing.assert_allclose(
+        t[near], r[near] / (np.sqrt(9.80665 * 1000.0) * k_mid[near]), rtol=2e-5
+    )
 
 
 def test_point_next_to_land_still_starts(coast):
@@ -327,8 +335,14 @@ def test_line_source_starts_along_its_length(coast):
     x, _ = grid.xy(rows, cols)
     # A plane front from the line: distance / sqrt(g h) (analytic) away from the island.
     sel = (rows < 28) & (x > 10_000.0)
+    # Map distance over the speed times the CRS's scale (UTM 500 km off its central
+    # meridian, k about 1.0027), the scale taken half-way to the line.
+    k = projection_scale(grid).rows(0, grid.rows)
+    k_mid = 0.5 * (k + k[:, [25]])
     np.testing.assert_allclose(
-        result.arrival_time_s[sel], np.abs(x[sel] - 25_000.0) / np.sqrt(9.80665 * 1000.0), rtol=1e-9
+        result.arrival_time_s[sel],
+        np.abs(x[sel] - 25_000.0) / (np.sqrt(9.80665 * 1000.0) * k_mid[sel]),
+        rtol=5e-5,  # the march over a speed varying 1e-5 per cell: 1.8e-5 measured
     )
     assert result.summary.source_start_cells > 40
 

@@ -8,7 +8,7 @@ import json
 import numpy as np
 import pytest
 from affine import Affine
-from numpy.testing import assert_array_equal
+from numpy.testing import assert_allclose, assert_array_equal
 
 from ttmap import (
     Grid,
@@ -20,7 +20,8 @@ from ttmap import (
     prepare_medium,
 )
 from ttmap import traveltime as traveltime_module
-from ttmap.errors import TtmapWarning
+from ttmap.errors import GridError, TtmapWarning
+from ttmap.grid import projection_scale
 
 G_M_S2 = 9.80665  # standard gravity, exact (3rd CGPM 1901; REFERENCE.md section 9 [S])
 
@@ -84,8 +85,16 @@ def test_medium_fields():
     assert np.isnan(medium.speed_m_s[~medium.water]).all()
     assert medium.speed_m_s[5, 4] == pytest.approx(np.sqrt(G_M_S2 * 5.0), rel=1e-14)
     assert_array_equal(medium.barrier_plane, ~medium.water)  # projected: the grid itself
-    # Native speed: computed on request, the solve speed itself on projected grids.
-    assert_array_equal(medium.speed_m_s[medium.water], medium.speed_plane_m_s[medium.water])
+    # Native speed: computed on request; the solve speed on projected grids is the speed
+    # times the CRS's scale (map metres per ground metre; about 1.0027 on this UTM grid,
+    # 500 km off its central meridian).
+    k = projection_scale(medium.grid).rows(0, medium.grid.rows)
+    assert_allclose(
+        medium.speed_m_s[medium.water] * k[medium.water],
+        medium.speed_plane_m_s[medium.water],
+        rtol=1e-14,
+    )
+    assert 1.002 < k.min() < k.max() < 1.003
     assert (medium.speed_plane_m_s[medium.barrier_plane] == 1.0).all()
     assert medium.basin_labels.dtype == np.uint16
     assert medium.settings == {
@@ -96,7 +105,9 @@ def test_medium_fields():
         "earth": None,
         "open_diagonal": True,
         "min_basin_share": 0.01,
+        "projection_scale": projection_scale(medium.grid).as_dict(),
     }
+    assert medium.settings["projection_scale"]["method"] == "conformal scale factor"
 
 
 @pytest.mark.parametrize(
@@ -111,7 +122,8 @@ def test_opened_join_gets_the_shallower_depth_of_its_water_pair(pond_m, strait_m
     assert medium.joins_opened == ((10, 2),)
     # The shallower of the two (after the floor depth), not the floor depth itself.
     assert medium.depth_m[10, 2] == expected_m
-    assert medium.speed_plane_m_s[10, 2] == np.sqrt(G_M_S2 * expected_m)
+    k = projection_scale(medium.grid).rows(10, 11)[0, 2]  # the CRS's scale there
+    assert medium.speed_plane_m_s[10, 2] == pytest.approx(np.sqrt(G_M_S2 * expected_m) * k, rel=1e-14)
 
 
 def test_front_through_an_opened_join_is_not_delayed():
@@ -203,8 +215,9 @@ def test_min_basin_share_zero_opens_every_basin():
     assert s.unreached_basins == 1 and s.cells_unreached == s.water_cells - 4
     t = result.arrival_time_s[22:24, 22:24]
     x, y = _grid().xy(*np.mgrid[22:24, 22:24])
+    k = projection_scale(grid).rows(22, 24)[:, 22:24]  # the CRS's scale (about 1.0027)
     np.testing.assert_allclose(
-        t, np.hypot(x - 22_500.0, y - 6_500.0) / np.sqrt(G_M_S2 * 30.0), rtol=1e-12
+        t, np.hypot(x - 22_500.0, y - 6_500.0) / (np.sqrt(G_M_S2 * 30.0) * k), rtol=1e-5  # k changes 1.2e-5 per cell
     )
 
 
@@ -300,35 +313,42 @@ def test_bad_snap_radius(bad):
         medium.travel_time(Source.point_xy(15_500.0, 15_500.0), snap_radius_m=bad)
 
 
-# ------------------------------------------------------------------ projected scale warning
+# ------------------------------------------------------------------ projected scale
 
 
 def _mercator_grid(y0_m: float) -> Grid:
     return Grid((30, 30), Affine(1000.0, 0, 0, 0, -1000.0, y0_m), "EPSG:3857")
 
 
-def test_web_mercator_away_from_the_equator_warns_at_the_users_call():
-    grid = _mercator_grid(5_000_000.0)  # about 41 N: Web Mercator scale 1.32
+def test_web_mercator_away_from_the_equator_is_solved_with_its_scale(recwarn):
+    grid = _mercator_grid(5_000_000.0)  # about 41 N: Web Mercator scale about 1.32
     depth = np.full(grid.shape, 1000.0)
-    pattern = (
-        r"the grid's CRS WGS 84 / Pseudo-Mercator \(EPSG:3857\) scales ground distances by "
-        r"1\.3\d\d at the grid's centre, so travel times are off by about 3\d %; reproject "
-        r"the bathymetry to a local equal-distance CRS \(UTM zone, azimuthal equidistant\) "
-        r"or use the longitude/latitude raster"
-    )
-    with pytest.warns(TtmapWarning, match=pattern) as rec:
-        prepare_medium(depth, grid)
-    assert len(rec) == 1 and rec[0].filename == __file__
-    with pytest.warns(TtmapWarning, match=pattern) as rec:
-        compute_travel_time(depth, grid, Source.point_xy(15_500.0, 4_985_500.0))
-    assert len(rec) == 1 and rec[0].filename == __file__
-
-
-def test_true_to_scale_projected_grids_are_silent(recwarn):
-    depth = np.full((30, 30), 1000.0)
-    prepare_medium(depth, _grid())  # UTM zone 1, 500 km from its central meridian
-    prepare_medium(depth, _mercator_grid(30_000.0))  # Web Mercator at the equator: 1.00000
+    result = compute_travel_time(depth, grid, Source.point_xy(15_500.0, 4_985_500.0))
+    record = result.settings["projection_scale"]
+    assert record["method"] == "mean scale factor"  # spherical formulas on the ellipsoid
+    assert record["crs"] == "WGS 84 / Pseudo-Mercator (EPSG:3857)"
+    # sec(latitude) of the grid's rows, 40.8 to 41.0 N, against the WGS84 ellipsoid: the
+    # sphere's sec(phi) times (1 - e^2 sin^2 phi)^(1/2..3/4) (Snyder 1987, from memory).
+    assert 1.31 < record["min"] < record["max"] < 1.33
+    assert record["anisotropy_error"] < 3e-3
     assert not [w for w in recwarn if issubclass(w.category, TtmapWarning)]
+    # The speed on the plane is the speed times the scale.
+    medium = prepare_medium(depth, grid)
+    k = projection_scale(grid).rows(0, grid.rows)
+    assert_allclose(medium.speed_plane_m_s, np.sqrt(G_M_S2 * 1000.0) * k, rtol=1e-14)
+
+
+def test_non_conformal_grid_is_refused_before_any_work():
+    grid = Grid((30, 30), Affine(100_000.0, 0, 0, 0, -100_000.0, 6_000_000.0), "EPSG:6933")
+    with pytest.raises(GridError, match=r"EPSG:6933\) is not conformal.*gdalwarp -t_srs EPSG:4326"):
+        prepare_medium(np.full(grid.shape, 1000.0), grid)
+
+
+def test_geographic_grids_record_the_mercator_plane():
+    grid = Grid((20, 20), Affine(0.5, 0, 140.0, 0, -0.5, 40.0), "EPSG:4326")
+    record = prepare_medium(np.full(grid.shape, 1000.0), grid).settings["projection_scale"]
+    assert record["method"] == "Mercator solve plane" and record["earth"] == "wgs84"
+    assert 1.0 < record["min"] < record["max"] < 1.0 / np.cos(np.radians(40.0))
 
 
 def test_scale_factors_of_a_grid_centre():
