@@ -510,7 +510,8 @@ def propagate_labels(
     unreached = ~np.isfinite(tf)
     parent[unreached] = me[unreached]
     lab0 = np.where(is_seed, seeds.ravel(), NO_LABEL).astype(np.int32)
-    both = ok_r & ok_c & ~is_seed & (np.abs(vr - vc) <= float(tie_tolerance_s))
+    both = ok_r & ok_c & ~is_seed
+    both[both] = np.abs(vr[both] - vc[both]) <= float(tie_tolerance_s)
     cand = np.nonzero(both)[0]
     ir_c, ic_c = ir[cand], ic[cand]
     del ir, ic, vr, vc, ok_r, ok_c, use_r
