@@ -500,6 +500,17 @@ def propagate_labels(
     take_left = left_f <= right_f
     vc = np.where(take_left, left_f, right_f)
     ic = np.where(take_left, left_i, right_i).astype(idx_t)
+    tol = float(tie_tolerance_s)
+    # Same-axis near-ties (both neighbours along one axis upwind and close): tie candidates.
+    pairs_cell, pairs_a, pairs_b = [], [], []
+    for va, vb, ia, ib in ((up, down, me - cols, me + cols), (left_f, right_f, left_i, right_i)):
+        va, vb = np.asarray(va).ravel(), np.asarray(vb).ravel()
+        m = (va < tf) & (vb < tf)
+        m[m] = np.abs(va[m] - vb[m]) <= tol
+        cells = np.nonzero(m)[0]
+        pairs_cell.append(cells)
+        pairs_a.append(np.asarray(ia)[cells])
+        pairs_b.append(np.asarray(ib)[cells])
     del up, down, left, right, take_up, take_left, left_i, right_i, col_of
     ok_r = vr < tf
     ok_c = vc < tf
@@ -511,9 +522,13 @@ def propagate_labels(
     parent[unreached] = me[unreached]
     lab0 = np.where(is_seed, seeds.ravel(), NO_LABEL).astype(np.int32)
     both = ok_r & ok_c & ~is_seed
-    both[both] = np.abs(vr[both] - vc[both]) <= float(tie_tolerance_s)
-    cand = np.nonzero(both)[0]
-    ir_c, ic_c = ir[cand], ic[cand]
+    both[both] = np.abs(vr[both] - vc[both]) <= tol
+    cross = np.nonzero(both)[0]
+    cand = np.concatenate([cross, *pairs_cell]).astype(np.int64)
+    ir_c = np.concatenate([ir[cross], *pairs_a]).astype(idx_t)
+    ic_c = np.concatenate([ic[cross], *pairs_b]).astype(idx_t)
+    keep = ~is_seed[cand]
+    cand, ir_c, ic_c = cand[keep], ir_c[keep], ic_c[keep]
     del ir, ic, vr, vc, ok_r, ok_c, use_r
 
     def resolve(p: NDArray[Any]) -> NDArray[np.int32]:
@@ -533,12 +548,16 @@ def propagate_labels(
         if not differ.any():
             break
         cells = cand[differ]
+        lo = np.minimum(la[differ], lb[differ])
         pick = np.where(la[differ] <= lb[differ], ir_c[differ], ic_c[differ])
+        order = np.lexsort((-lo, cells))  # per cell, the lowest label is assigned last
+        cells, pick = cells[order], pick[order]
         tie[:] = False
         tie[cells] = True
-        if np.array_equal(parent[cells], pick):
-            break
+        before = parent[cells].copy()
         parent[cells] = pick
+        if np.array_equal(parent[cells], before):
+            break
         labels = resolve(parent)
     unlabelled = int(np.count_nonzero((labels < 0) & ~unreached))
     return labels.reshape(rows, cols), tie.reshape(rows, cols), unlabelled
