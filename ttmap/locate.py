@@ -159,16 +159,15 @@ class MisfitSums:
     shape: tuple[int, int]
     a_ref_s: float
     s_w: float = 0.0
-    s_r: FloatArray = field(default=None, repr=False)  # type: ignore[assignment]
-    s_rr: FloatArray = field(default=None, repr=False)  # type: ignore[assignment]
-    count: Any = field(default=None, repr=False)
+    s_r: FloatArray = field(init=False, repr=False)
+    s_rr: FloatArray = field(init=False, repr=False)
+    count: Any = field(init=False, repr=False)
     n_gauges: int = 0
 
     def __post_init__(self) -> None:
-        if self.s_r is None:
-            self.s_r = np.zeros(self.shape)
-            self.s_rr = np.zeros(self.shape)
-            self.count = np.zeros(self.shape, dtype=np.int32)
+        self.s_r = np.zeros(self.shape)
+        self.s_rr = np.zeros(self.shape)
+        self.count = np.zeros(self.shape, dtype=np.int32)
 
     def add(self, field_s: Any, arrival_s: float, sigma_s: float) -> None:
         """Add one gauge: its site-centred times and its pick."""
