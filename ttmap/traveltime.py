@@ -30,7 +30,7 @@ from ttmap.grid import Grid, ProjectionScale, SolvePlane, projection_scale, solv
 from ttmap.physics.speed import check_speed_options, water_speed_m_s
 from ttmap.defaults import FLOOR_DEPTH_M
 from ttmap.solver import fast_march_s
-from ttmap.sources import Source, place_source
+from ttmap.sources import Source, SourceStart, place_source
 
 __all__ = [
     "Medium",
@@ -190,6 +190,36 @@ class Medium:
             period_s=self.settings["period_s"],
             far_field=self.settings["far_field"],
         )
+
+    def source_start(self, source: Source, *, snap_radius_m: float | None = None) -> SourceStart:
+        """The start a solve from ``source`` would use, without solving.
+
+        The start region, its band and their exact start times on the solve
+        plane (see :class:`ttmap.sources.SourceStart`): the same cells and
+        times :meth:`travel_time` imposes. Used by the reciprocal and
+        one-solve-envelope analytics (:mod:`ttmap.reciprocal`).
+
+        Raises
+        ------
+        SourceError
+            See :func:`ttmap.sources.place_source`.
+        """
+        if snap_radius_m is not None and not (np.isfinite(snap_radius_m) and snap_radius_m >= 0):
+            raise InputDataError(f"snap radius {snap_radius_m!r} m must be a non-negative number")
+        with _SOLVE_LOCK:  # the speed array holds altered cells during a solve
+            return place_source(
+                source,
+                grid=self.grid,
+                plane=self.plane,
+                depth_m=self.depth_m,
+                water=self.water,
+                open_water=self.open_water,
+                basin_labels=self.basin_labels,
+                basin_sizes=self.basin_sizes,
+                speed_plane_m_s=self.speed_plane_m_s,
+                barrier_plane=self.barrier_plane,
+                snap_radius_m=snap_radius_m,
+            )
 
     def travel_time(
         self,

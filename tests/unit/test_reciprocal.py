@@ -1,0 +1,50 @@
+"""Unit tests of ttmap.reciprocal: the reduction and label propagation."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from ttmap.errors import InputDataError
+from ttmap.reciprocal import ScenarioStarts, envelope_one_solve, propagate_labels, reduce_over_starts
+
+
+def test_reduction_is_min_of_start_time_plus_field_and_skips_empty_and_nan():
+    starts = ScenarioStarts(
+        (2, 3),
+        np.array([0, 1, 4, 5, 2], dtype=np.int64),
+        np.array([0.0, 0.0, 10.0, 1.0, 0.0]),
+        np.array([0, 2, 2, 4, 5], dtype=np.int64),
+    )
+    field = np.array([[5.0, 3.0, np.nan], [9.0, 1.0, 2.0]])
+    got = reduce_over_starts(np.stack([field, field + 1]), starts)
+    np.testing.assert_array_equal(got[0], [3.0, np.nan, 3.0, np.nan])
+    np.testing.assert_array_equal(got[1], [4.0, np.nan, 4.0, np.nan])
+
+
+def test_reduction_shape_mismatch():
+    starts = ScenarioStarts((2, 2), np.array([0]), np.array([0.0]), np.array([0, 1]))
+    with pytest.raises(InputDataError, match="do not match"):
+        reduce_over_starts(np.zeros((3, 3)), starts)
+
+
+def test_labels_follow_upwind_neighbours_and_ties_take_lower_index():
+    # Two fronts from the left and right edges meet in the middle column.
+    t = np.tile(np.array([0.0, 1.0, 2.0, 3.0, 2.0, 1.0, 0.0]), (3, 1))
+    seeds = np.full(t.shape, -1)
+    seeds[:, 0] = 4
+    seeds[:, -1] = 1
+    lab, tie, unl = propagate_labels(t, seeds, tie_tolerance_s=0.01)
+    assert unl == 0
+    np.testing.assert_array_equal(lab[0], [4, 4, 4, 1, 1, 1, 1])  # tie at column 3 -> 1
+    assert tie[:, 3].all() and tie.sum() == 3  # column 3: equal left and right: lower label
+    # A diagonal tie: up and left neighbours equal with different labels -> lower label, tie mask.
+    t2 = np.array([[0.0, 1.0], [1.0, 2.0]])
+    s2 = np.array([[-1, 3], [0, -1]])
+    lab2, tie2, _ = propagate_labels(np.where(s2 >= 0, t2, t2), np.where(t2 == 0, -1, s2), tie_tolerance_s=0.01)
+    assert lab2[1, 1] == 0 and tie2[1, 1]
+
+
+def test_offsets_refused():
+    with pytest.raises(InputDataError, match="offsets are not supported"):
+        envelope_one_solve(object(), [object()], time_offsets_s=[60.0])  # type: ignore[arg-type]

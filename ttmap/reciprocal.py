@@ -1,0 +1,842 @@
+"""Reciprocal analytics: sites x scenarios from one solve per site, and a one-solve envelope.
+
+Two exact facts of first-arrival times (Fermat's principle, docs/reciprocal.md):
+
+1. **Reciprocity.** With a speed that depends on position only (every speed
+   ttmap computes), the time from A to B equals the time from B to A. One
+   solve started at site j gives ``T_j(y)``, the time from any cell y to the
+   site.
+2. **Area sources take the minimum.** A source whose start cells y begin at
+   the times ``t0(y)`` first reaches x at ``min over y of t0(y) + T(y, x)``.
+
+So the arrival of scenario s at site j is ``min over y in S_s of
+(t0_s(y) + T_j(y))``, where ``S_s`` and ``t0_s`` are the start cells and the
+exact start times a direct solve of s imposes (:meth:`Medium.source_start`):
+the start region and the outer ring of its start band, carried to the native
+grid. After the site solves, each scenario costs one reduction over its
+cells (:func:`reduce_over_starts`, ``np.fmin.reduceat`` over CSR-like index
+arrays).
+
+The earliest arrival over all scenarios (the envelope) is one solve started
+from the union of their starts (:func:`envelope_one_solve`), and the
+scenario arriving first at each cell comes from label propagation along the
+solve's upwind directions (:func:`propagate_labels`).
+
+Pure numpy on arrays and a :class:`~ttmap.traveltime.Medium`; no files.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+from numpy.typing import NDArray
+
+from ttmap._typing import BoolArray, FloatArray, IntArray
+from ttmap.errors import InputDataError
+from ttmap.solver import fast_march_s
+from ttmap.sources import Source, SourceStart
+from ttmap.traveltime import Medium
+
+__all__ = [
+    "ScenarioStarts",
+    "OneSolveEnvelope",
+    "scenario_starts",
+    "site_field_s",
+    "reduce_over_starts",
+    "sites_by_scenarios_reciprocal",
+    "envelope_one_solve",
+    "propagate_labels",
+    "NO_LABEL",
+]
+
+#: Label of cells no scenario reaches.
+NO_LABEL: int = -1
+#: Default tie tolerance of the label propagation, as a share of the shortest
+#: cell-crossing time at the fastest speed of the grid (common practice, no source).
+TIE_TOLERANCE_CELLS: float = 0.25
+#: Most relaxation sweeps over the union start (see :func:`envelope_one_solve`).
+_MAX_RELAX_SWEEPS = 64
+
+
+@dataclass(frozen=True)
+class ScenarioStarts:
+    """Start cells and exact start times of many scenarios on the native grid.
+
+    CSR-like: the cells of scenario ``i`` are
+    ``flat_index[offsets[i]:offsets[i + 1]]`` (row-major indices into the
+    native grid) with start times ``start_time_s[offsets[i]:offsets[i + 1]]``.
+
+    Attributes
+    ----------
+    shape : (rows, cols)
+        Native grid shape.
+    flat_index : ndarray of shape (n,), int64
+    start_time_s : ndarray of shape (n,), float64, seconds after the origin
+    offsets : ndarray of shape (n_scenarios + 1,), int64
+    """
+
+    shape: tuple[int, int]
+    flat_index: NDArray[np.int64] = field(repr=False)
+    start_time_s: FloatArray = field(repr=False)
+    offsets: NDArray[np.int64] = field(repr=False)
+
+    @property
+    def n_scenarios(self) -> int:
+        """Number of scenarios."""
+        return int(self.offsets.size - 1)
+
+    def cells(self, i: int) -> tuple[NDArray[np.int64], FloatArray]:
+        """Flat indices and start times of scenario ``i``."""
+        a, b = int(self.offsets[i]), int(self.offsets[i + 1])
+        return self.flat_index[a:b], self.start_time_s[a:b]
+
+
+@dataclass(frozen=True)
+class _PlaneSeeds:
+    """One start on the solve plane: region and outer band (absolute times), inner band."""
+
+    region: NDArray[np.int64]
+    region_t: FloatArray
+    outer: NDArray[np.int64]
+    outer_t: FloatArray
+    inner: NDArray[np.int64]
+    inner_tau: FloatArray
+    native_zero: tuple[IntArray, IntArray] | None
+
+
+def _plane_seeds(start: SourceStart, ncols: int) -> _PlaneSeeds:
+    ir, ic = start.inside_cells
+    br, bc = start.band_cells
+    bt = np.asarray(start.band_time_s, dtype=np.float64)
+    out = bt > 0.0
+    return _PlaneSeeds(
+        region=np.asarray(ir, np.int64) * ncols + np.asarray(ic, np.int64),
+        region_t=np.asarray(start.inside_time_s, dtype=np.float64),
+        outer=np.asarray(br[out], np.int64) * ncols + np.asarray(bc[out], np.int64),
+        outer_t=start.contour_time_s + bt[out],
+        inner=np.asarray(br[~out], np.int64) * ncols + np.asarray(bc[~out], np.int64),
+        inner_tau=bt[~out],
+        native_zero=start.native_zero_cells,
+    )
+
+
+def _min_per_key(keys: NDArray[np.int64], values: FloatArray) -> tuple[NDArray[np.int64], FloatArray]:
+    """Unique keys (sorted) and the smallest value of each."""
+    if keys.size == 0:
+        return keys, values
+    order = np.lexsort((values, keys))
+    k, v = keys[order], values[order]
+    first = np.ones(k.size, dtype=bool)
+    first[1:] = k[1:] != k[:-1]
+    return k[first], v[first]
+
+
+def _seeds_to_native(medium: Medium, seeds: _PlaneSeeds) -> tuple[NDArray[np.int64], FloatArray]:
+    """Native cells and start times a direct solve would give them (see module notes).
+
+    Projected grids: the plane cells themselves. Lon/lat grids: a native cell
+    takes the interpolation :meth:`SolvePlane.to_native` makes of the solve rows
+    bracketing it, where every row it uses is a start cell; area sources add their
+    native cells inside the area at time zero (as the direct solve sets them).
+    """
+    plane = medium.plane
+    rows_n, cols_n = medium.grid.shape
+    ncp = plane.shape[1]
+    keys, times = _min_per_key(
+        np.concatenate([seeds.region, seeds.outer]), np.concatenate([seeds.region_t, seeds.outer_t])
+    )
+    pr, pc = keys // ncp, keys % ncp
+    if plane.is_identity:
+        nr, nc, nt = pr, pc, times
+    else:
+        cand_r = (plane.native_row[pr][:, None] + np.arange(-1, 2)[None, :]).ravel()
+        cand_c = np.repeat(pc, 3)
+        ok = (cand_r >= 0) & (cand_r < rows_n)
+        cand = np.unique(cand_r[ok] * ncp + cand_c[ok])
+        cr, cc = cand // ncp, cand % ncp
+        r0, r1, w = plane.back_row0[cr], plane.back_row1[cr], plane.back_weight[cr]
+        t0 = _lookup(keys, times, r0.astype(np.int64) * ncp + cc)
+        t1 = _lookup(keys, times, r1.astype(np.int64) * ncp + cc)
+        with np.errstate(invalid="ignore"):
+            val = np.where(w > 0.0, (1.0 - w) * t0 + w * t1, t0)
+            val = np.where(w >= 1.0, t1, val)
+        good = np.isfinite(val)
+        nr, nc, nt = cr[good], cc[good], val[good]
+    nr = np.asarray(nr, np.int64)
+    nc = np.asarray(nc, np.int64)
+    parts_k = [nr * cols_n + nc]
+    parts_t = [np.asarray(nt, np.float64)]
+    if plane.drop_seam:
+        first = nc == 0
+        parts_k.append(nr[first] * cols_n + (cols_n - 1))
+        parts_t.append(parts_t[0][first])
+    if seeds.native_zero is not None:
+        zr, zc = seeds.native_zero
+        parts_k.append(np.asarray(zr, np.int64) * cols_n + np.asarray(zc, np.int64))
+        parts_t.append(np.zeros(np.asarray(zr).size))
+    k, t = _min_per_key(np.concatenate(parts_k), np.concatenate(parts_t))
+    wet = medium.water.ravel()[k]
+    return k[wet], t[wet]
+
+
+def _lookup(keys: NDArray[np.int64], values: FloatArray, query: NDArray[np.int64]) -> FloatArray:
+    """``values`` at ``query`` keys (``keys`` sorted, unique); NaN where absent."""
+    pos = np.searchsorted(keys, query)
+    pos_c = np.minimum(pos, max(keys.size - 1, 0))
+    hit = (pos < keys.size) & (keys[pos_c] == query) if keys.size else np.zeros(query.shape, bool)
+    out = np.full(query.shape, np.nan)
+    out[hit] = values[pos_c[hit]]
+    return out
+
+
+def scenario_starts(
+    medium: Medium, sources: Sequence[Source], *, snap_radius_m: float | None = None
+) -> ScenarioStarts:
+    """Start cells and exact start times of each scenario, on the native grid.
+
+    Parameters
+    ----------
+    medium : Medium
+        The speed field the scenarios are solved in (start times of point and
+        line sources depend on the speed, so one set of starts per medium).
+    sources : sequence of Source
+        One per scenario.
+    snap_radius_m : float, optional
+        As for :meth:`Medium.travel_time` (points on land move to open water).
+
+    Returns
+    -------
+    ScenarioStarts
+        The start region (times zero for areas, straight-ray times for
+        points) and the outer ring of its start band (exact time from the
+        start front), the cells a direct solve freezes at those times.
+
+    Raises
+    ------
+    InputDataError
+        No sources.
+    SourceError
+        A source that cannot be placed (see :func:`ttmap.sources.place_source`).
+    """
+    if len(sources) == 0:
+        raise InputDataError("no scenarios given; pass at least one source")
+    ncp = medium.plane.shape[1]
+    keys: list[NDArray[np.int64]] = []
+    times: list[FloatArray] = []
+    for src in sources:
+        seeds = _plane_seeds(medium.source_start(src, snap_radius_m=snap_radius_m), ncp)
+        k, t = _seeds_to_native(medium, seeds)
+        keys.append(k)
+        times.append(t)
+    offsets = np.zeros(len(sources) + 1, dtype=np.int64)
+    offsets[1:] = np.cumsum([k.size for k in keys])
+    return ScenarioStarts(
+        shape=medium.grid.shape,
+        flat_index=np.concatenate(keys).astype(np.int64),
+        start_time_s=np.concatenate(times),
+        offsets=offsets,
+    )
+
+
+def _check_cell(medium: Medium, cell: Any, what: str) -> tuple[int, int]:
+    try:
+        row, col = (int(v) for v in cell)
+    except (TypeError, ValueError) as err:
+        raise InputDataError(f"{what} {cell!r} is not a (row, col) pair of integers") from err
+    rows, cols = medium.grid.shape
+    if not (0 <= row < rows and 0 <= col < cols):
+        raise InputDataError(
+            f"{what} cell (row {row}, col {col}) lies outside the grid of {rows} x {cols} cells; "
+            "snap the position to the grid first"
+        )
+    if not medium.open_water[row, col]:
+        raise InputDataError(
+            f"{what} cell (row {row}, col {col}) is not open water; snap it to a reached water "
+            "cell first (ttmap.products.sites.snap_sites)"
+        )
+    return row, col
+
+
+def site_field_s(
+    medium: Medium, cell: tuple[int, int], *, max_time_s: float | None = None, name: str | None = None
+) -> FloatArray:
+    """Time from every cell to a site (or gauge) at a native water cell: one solve.
+
+    The solve starts from a point at the centre of ``cell`` (the cell the
+    direct path reads the site at), through
+    :func:`ttmap.sitemap.site_centred_times`; by reciprocity its arrival
+    time at y is the time from y to the site.
+
+    Parameters
+    ----------
+    medium : Medium
+    cell : (row, col)
+        Native open-water cell of the site, as snapped by the caller.
+    max_time_s : float, optional
+        Stop the solve here; later cells are NaN.
+    name : str, optional
+        For messages.
+
+    Returns
+    -------
+    ndarray of shape grid.shape, float64, seconds; NaN where unreached.
+    """
+    from ttmap.sitemap import site_centred_times
+
+    row, col = _check_cell(medium, cell, f"site {name!r}" if name else "site")
+    x, y = medium.grid.xy(row, col)
+    result = site_centred_times(
+        medium, Source.point_xy(float(x), float(y)), name=name, snap_radius_m=None,
+        max_time_s=max_time_s,
+    )
+    return result.arrival_time_s
+
+
+def reduce_over_starts(site_fields: Any, starts: ScenarioStarts) -> FloatArray:
+    """Arrival of every scenario at one or more sites: ``min over y of t0(y) + T(y)``.
+
+    Parameters
+    ----------
+    site_fields : ndarray of shape (rows, cols) or (n_sites, rows, cols), float, seconds
+        Site-centred times (:func:`site_field_s`); NaN where unreached.
+    starts : ScenarioStarts
+
+    Returns
+    -------
+    ndarray of shape (n_scenarios,) or (n_sites, n_scenarios), float64, seconds
+        NaN where no start cell of the scenario reaches the site.
+
+    Examples
+    --------
+    >>> starts = ScenarioStarts((1, 4), np.array([0, 1, 3]), np.array([0.0, 0.0, 5.0]),
+    ...                         np.array([0, 2, 3]))
+    >>> reduce_over_starts(np.array([[10.0, 7.0, np.nan, 1.0]]), starts).tolist()
+    [7.0, 6.0]
+    """
+    f = np.asarray(site_fields, dtype=np.float64)
+    single = f.ndim == 2
+    if single:
+        f = f[None]
+    if f.ndim != 3 or f.shape[1:] != tuple(starts.shape):
+        raise InputDataError(
+            f"site fields of shape {f.shape} do not match the scenario starts' grid {starts.shape}"
+        )
+    n_sites = f.shape[0]
+    out = np.full((n_sites, starts.n_scenarios), np.nan)
+    counts = np.diff(starts.offsets)
+    nonempty = counts > 0
+    if starts.flat_index.size:
+        idx = starts.offsets[:-1][nonempty]
+        flat = f.reshape(n_sites, -1)
+        for j in range(n_sites):  # one site at a time: memory O(start cells)
+            vals = flat[j][starts.flat_index] + starts.start_time_s
+            out[j, nonempty] = np.fmin.reduceat(vals, idx)
+    return out[0] if single else out
+
+
+def sites_by_scenarios_reciprocal(
+    medium: Medium,
+    site_cells: Sequence[tuple[int, int]],
+    sources: Sequence[Source],
+    *,
+    snap_radius_m: float | None = None,
+    max_time_s: float | None = None,
+    starts: ScenarioStarts | None = None,
+) -> FloatArray:
+    """Sites x scenarios arrival table from one solve per site.
+
+    Parameters
+    ----------
+    medium : Medium
+        The speed model (long-wave front, or the group speed of one period
+        for energy arrivals).
+    site_cells : sequence of (row, col)
+        Native open-water cells the sites are read at (the shared site
+        snapping, e.g. :func:`ttmap.products.sites.snap_sites`).
+    sources : sequence of Source
+        One per scenario, sharing the origin time.
+    snap_radius_m : float, optional
+        As for :meth:`Medium.travel_time`.
+    max_time_s : float, optional
+        Later arrivals are NaN.
+    starts : ScenarioStarts, optional
+        Precomputed :func:`scenario_starts` of ``sources`` on this medium.
+
+    Returns
+    -------
+    ndarray of shape (n_sites, n_scenarios), float64, seconds after origin
+        NaN where the scenario does not reach the site.
+    """
+    if len(site_cells) == 0:
+        raise InputDataError("no sites given; pass at least one (row, col) cell")
+    cells = [_check_cell(medium, c, f"site {i}") for i, c in enumerate(site_cells)]
+    if starts is None:
+        starts = scenario_starts(medium, sources, snap_radius_m=snap_radius_m)
+    elif starts.n_scenarios != len(sources) or tuple(starts.shape) != medium.grid.shape:
+        raise InputDataError("the precomputed starts do not belong to these sources and grid")
+    table = np.empty((len(cells), starts.n_scenarios))
+    for j, cell in enumerate(cells):
+        table[j] = reduce_over_starts(site_field_s(medium, cell, max_time_s=max_time_s), starts)
+    if max_time_s is not None:
+        table[table > max_time_s] = np.nan
+    return table
+
+
+# ---------------------------------------------------------------------------
+# One-solve envelope
+# ---------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class OneSolveEnvelope:
+    """Earliest arrival over scenarios from one solve, and which scenario gives it.
+
+    Attributes
+    ----------
+    arrival_time_s : ndarray of shape grid.shape, float64, seconds
+        NaN on land and where no scenario arrives.
+    first_scenario : ndarray of shape grid.shape, int32
+        Index of the scenario arriving first; :data:`NO_LABEL` (-1) where none.
+    tie : ndarray of shape grid.shape, bool
+        Cells where the two upwind neighbours of the stencil carried different
+        scenarios within ``tie_tolerance_s`` (the lower index was taken).
+    tie_tolerance_s : float
+    relaxed_start_cells : int
+        Start cells whose time another scenario's start lowered (overlapping
+        starts; see :func:`envelope_one_solve`).
+    unlabelled_cells : int
+        Reached cells with no upwind neighbour (should be 0).
+    """
+
+    arrival_time_s: FloatArray = field(repr=False)
+    first_scenario: NDArray[np.int32] = field(repr=False)
+    tie: BoolArray = field(repr=False)
+    tie_tolerance_s: float
+    relaxed_start_cells: int
+    unlabelled_cells: int
+
+
+def propagate_labels(
+    time_s: Any,
+    seed_label: Any,
+    *,
+    tie_tolerance_s: float,
+    periodic_x: bool = False,
+    max_passes: int = 3,
+) -> tuple[NDArray[np.int32], BoolArray, int]:
+    """Carry start labels downwind through a first-arrival field.
+
+    Every reached cell that is not a seed takes the label of the upwind
+    neighbour it was computed from: along each axis the upwind stencil uses
+    the neighbour with the smaller time (if smaller than the cell's own);
+    of the (up to) two, the one with the smaller time is the cell's parent.
+    **Tie rule:** when both axis neighbours are upwind, carry different
+    labels and their times differ by at most ``tie_tolerance_s``, the lower
+    label wins and the cell is marked in the tie mask. Labels are resolved
+    by pointer jumping (each pass doubles the resolved path length), so the
+    cost is O(N log L) for paths of L cells, fully vectorised.
+
+    Parameters
+    ----------
+    time_s : ndarray of shape (rows, cols), float, seconds
+        NaN where unreached.
+    seed_label : ndarray of shape (rows, cols), int
+        Label >= 0 at the start cells, -1 elsewhere.
+    tie_tolerance_s : float
+    periodic_x : bool
+        Columns wrap.
+    max_passes : int
+        Passes of the tie rule (each re-resolves the labels).
+
+    Returns
+    -------
+    labels : ndarray of shape (rows, cols), int32 (-1 where unreached)
+    tie : ndarray of shape (rows, cols), bool
+    unlabelled : int
+        Reached non-seed cells with no upwind neighbour (kept at -1).
+
+    Examples
+    --------
+    >>> t = np.array([[0.0, 1.0, 2.0, 1.0, 0.0]])
+    >>> seeds = np.array([[0, -1, -1, -1, 1]])
+    >>> lab, tie, _ = propagate_labels(t, seeds, tie_tolerance_s=0.1)
+    >>> lab.tolist(), tie.tolist()
+    ([[0, 0, 0, 1, 1]], [[False, False, True, False, False]])
+    """
+    t = np.asarray(time_s, dtype=np.float64)
+    seeds = np.asarray(seed_label)
+    if t.ndim != 2 or seeds.shape != t.shape:
+        raise InputDataError(f"time {t.shape} and seed labels {seeds.shape} must be 2-D of one shape")
+    rows, cols = t.shape
+    n = t.size
+    tf = np.where(np.isfinite(t), t, np.inf).ravel()
+    idx_t = np.int64 if n >= 2**31 else np.int32
+    me = np.arange(n, dtype=idx_t)
+    # Along rows (up/down) and along columns (left/right): the smaller neighbour.
+    up = np.full(n, np.inf)
+    down = np.full(n, np.inf)
+    up[cols:] = tf[:-cols]
+    down[:-cols] = tf[cols:]
+    take_up = up <= down
+    vr = np.where(take_up, up, down)
+    ir = np.where(take_up, me - cols, me + cols).astype(idx_t)
+    t2 = tf.reshape(rows, cols)
+    left = np.full((rows, cols), np.inf)
+    right = np.full((rows, cols), np.inf)
+    left[:, 1:] = t2[:, :-1]
+    right[:, :-1] = t2[:, 1:]
+    col_of = np.tile(np.arange(cols, dtype=idx_t), rows)
+    left_i = me - 1
+    right_i = me + 1
+    if periodic_x and cols > 1:
+        left[:, 0] = t2[:, -1]
+        right[:, -1] = t2[:, 0]
+        left_i = np.where(col_of == 0, me + cols - 1, left_i)
+        right_i = np.where(col_of == cols - 1, me - cols + 1, right_i)
+    left_f, right_f = left.ravel(), right.ravel()
+    take_left = left_f <= right_f
+    vc = np.where(take_left, left_f, right_f)
+    ic = np.where(take_left, left_i, right_i).astype(idx_t)
+    tol = float(tie_tolerance_s)
+    # Same-axis near-ties (both neighbours along one axis upwind and close): tie candidates.
+    pairs_cell, pairs_a, pairs_b = [], [], []
+    for va, vb, ia, ib in ((up, down, me - cols, me + cols), (left_f, right_f, left_i, right_i)):
+        va, vb = np.asarray(va).ravel(), np.asarray(vb).ravel()
+        m = (va < tf) & (vb < tf)
+        m[m] = np.abs(va[m] - vb[m]) <= tol
+        cells = np.nonzero(m)[0]
+        pairs_cell.append(cells)
+        pairs_a.append(np.asarray(ia)[cells])
+        pairs_b.append(np.asarray(ib)[cells])
+    del up, down, left, right, take_up, take_left, left_i, right_i, col_of
+    ok_r = vr < tf
+    ok_c = vc < tf
+    is_seed = (seeds.ravel() >= 0) & np.isfinite(tf)
+    use_r = ok_r & (~ok_c | (vr <= vc))
+    parent = np.where(use_r, ir, np.where(ok_c, ic, me)).astype(idx_t)
+    parent[is_seed] = me[is_seed]
+    unreached = ~np.isfinite(tf)
+    parent[unreached] = me[unreached]
+    lab0 = np.where(is_seed, seeds.ravel(), NO_LABEL).astype(np.int32)
+    both = ok_r & ok_c & ~is_seed
+    both[both] = np.abs(vr[both] - vc[both]) <= tol
+    cross = np.nonzero(both)[0]
+    cand = np.concatenate([cross, *pairs_cell]).astype(np.int64)
+    ir_c = np.concatenate([ir[cross], *pairs_a]).astype(idx_t)
+    ic_c = np.concatenate([ic[cross], *pairs_b]).astype(idx_t)
+    keep = ~is_seed[cand]
+    cand, ir_c, ic_c = cand[keep], ir_c[keep], ic_c[keep]
+    del ir, ic, vr, vc, ok_r, ok_c, use_r
+
+    def resolve(p: NDArray[Any]) -> NDArray[np.int32]:
+        p = p.copy()
+        while True:
+            pp = p[p]
+            if np.array_equal(pp, p):
+                break
+            p = pp
+        return lab0[p]
+
+    labels = resolve(parent)
+    tie = np.zeros(n, dtype=bool)
+    for _ in range(max_passes):
+        la, lb = labels[ir_c], labels[ic_c]
+        differ = (la != lb) & (la >= 0) & (lb >= 0)
+        if not differ.any():
+            break
+        cells = cand[differ]
+        lo = np.minimum(la[differ], lb[differ])
+        pick = np.where(la[differ] <= lb[differ], ir_c[differ], ic_c[differ])
+        order = np.lexsort((-lo, cells))  # per cell, the lowest label is assigned last
+        cells, pick = cells[order], pick[order]
+        tie[:] = False
+        tie[cells] = True
+        before = parent[cells].copy()
+        parent[cells] = pick
+        if np.array_equal(parent[cells], before):
+            break
+        labels = resolve(parent)
+    unlabelled = int(np.count_nonzero((labels < 0) & ~unreached))
+    return labels.reshape(rows, cols), tie.reshape(rows, cols), unlabelled
+
+
+def _relax(
+    keys: NDArray[np.int64],
+    t: FloatArray,
+    lab: NDArray[np.int32],
+    speed_flat: FloatArray,
+    shape: tuple[int, int],
+    spacing_m: tuple[float, float],
+    periodic_x: bool,
+) -> int:
+    """Lower start times that a neighbouring start cell reaches sooner (in place).
+
+    ``t(y) = min(t(y), t(z) + step(z, y))`` over 4-neighbour start cells z, with
+    ``step`` the straight crossing time between the two cell centres (half a
+    cell at each speed), repeated until nothing changes. Returns the number of
+    cells lowered.
+    """
+    rows, cols = shape
+    r, c = keys // cols, keys % cols
+    changed = np.zeros(keys.size, dtype=bool)
+    nbrs = []
+    for dr, dc, h in ((-1, 0, spacing_m[0]), (1, 0, spacing_m[0]), (0, -1, spacing_m[1]), (0, 1, spacing_m[1])):
+        rr, cc = r + dr, c + dc
+        if periodic_x:
+            cc = np.mod(cc, cols)
+        ok = (rr >= 0) & (rr < rows) & (cc >= 0) & (cc < cols)
+        q = np.where(ok, rr * cols + cc, -1)
+        pos = np.searchsorted(keys, q)
+        pos_c = np.minimum(pos, keys.size - 1)
+        hit = ok & (keys[pos_c] == q)
+        src = np.nonzero(hit)[0]
+        nb = pos_c[hit]
+        step = h * (0.5 / speed_flat[keys[src]] + 0.5 / speed_flat[keys[nb]])
+        nbrs.append((src, nb, step))
+    for _ in range(_MAX_RELAX_SWEEPS):
+        any_change = False
+        for src, nb, step in nbrs:
+            cand = t[nb] + step
+            better = cand < t[src] * (1.0 - 1e-12)
+            if better.any():  # one neighbour per direction: no duplicates in src
+                s = src[better]
+                t[s] = cand[better]
+                lab[s] = lab[nb[better]]
+                changed[s] = True
+                any_change = True
+        if not any_change:
+            break
+    return int(changed.sum())
+
+
+def envelope_one_solve(
+    medium: Medium,
+    sources: Sequence[Source],
+    *,
+    snap_radius_m: float | None = None,
+    max_time_s: float | None = None,
+    time_offsets_s: Sequence[float] | None = None,
+    tie_tolerance_s: float | None = None,
+) -> OneSolveEnvelope:
+    """Earliest arrival over many scenarios, and which one arrives first, from one solve.
+
+    The solve starts from the union of all scenarios' starts: each start cell
+    takes the smallest start time over the scenarios that start there and the
+    label of that scenario (the lower index on equal times). Where the starts
+    of different scenarios touch, a start time another scenario's start reaches
+    sooner is lowered by relaxation over neighbouring start cells. The front
+    is then marched once, and labels are carried downwind by
+    :func:`propagate_labels`.
+
+    Parameters
+    ----------
+    medium : Medium
+    sources : sequence of Source
+        The scenarios; they share one origin time.
+    snap_radius_m, max_time_s : float, optional
+        As for :meth:`Medium.travel_time`.
+    time_offsets_s : sequence of float, optional
+        Per-scenario start-time offsets are **refused** unless all zero: a
+        later start could be overrun by an earlier scenario's front, which a
+        single solve from fixed starts cannot represent.
+    tie_tolerance_s : float, optional
+        Default: a quarter of the shortest cell-crossing time at the fastest
+        speed of the grid.
+
+    Returns
+    -------
+    OneSolveEnvelope
+
+    Raises
+    ------
+    InputDataError
+        No sources, or non-zero time offsets.
+    """
+    if len(sources) == 0:
+        raise InputDataError("no scenarios given; pass at least one source")
+    if len(sources) > np.iinfo(np.int32).max:
+        raise InputDataError(f"{len(sources)} scenarios exceed the int32 label range")
+    if time_offsets_s is not None:
+        off = np.asarray(time_offsets_s, dtype=np.float64)
+        if off.shape != (len(sources),) or np.any(off != 0.0):
+            raise InputDataError(
+                "per-scenario time offsets are not supported by the one-solve envelope (an earlier "
+                "scenario's front may overrun a later start); remove the offsets or solve each "
+                "scenario directly"
+            )
+    # Areas and ruptures start at time zero on their cells: one union solve. Points and
+    # lines start from fronts at their own times (a radius over the local speed), which a
+    # single start front cannot share: each costs one solve, merged below.
+    union_idx = [i for i, s in enumerate(sources) if s.kind in ("area", "rupture")]
+    single_idx = [i for i, s in enumerate(sources) if s.kind not in ("area", "rupture")]
+    arrival: FloatArray | None = None
+    first_native: NDArray[np.int32] | None = None
+    tie_native: BoolArray | None = None
+    relaxed = unlabelled = 0
+    tol = tie_tolerance_s
+    if tol is None:
+        tol = TIE_TOLERANCE_CELLS * min(medium.plane.spacing_m) / float(
+            np.max(medium.speed_plane_m_s[~medium.barrier_plane])
+        )
+    if union_idx:
+        arrival, first_native, tie_native, relaxed, unlabelled = _union_solve(
+            medium, [sources[i] for i in union_idx], np.asarray(union_idx, np.int32),
+            snap_radius_m=snap_radius_m, max_time_s=max_time_s, tie_tolerance_s=tol,
+        )
+    for i in single_idx:
+        t = medium.travel_time(sources[i], max_time_s=max_time_s, snap_radius_m=snap_radius_m)
+        a = t.arrival_time_s
+        if arrival is None or first_native is None or tie_native is None:
+            arrival = a
+            first_native = np.where(np.isfinite(a), i, NO_LABEL).astype(np.int32)
+            tie_native = np.zeros(a.shape, dtype=bool)
+            continue
+        with np.errstate(invalid="ignore"):
+            close = np.isfinite(a) & (np.abs(a - arrival) <= tol)
+            better = np.isfinite(a) & ~(arrival <= a)
+        tie_native |= close & (first_native != i)
+        # On equal times the lower index wins (indices of single solves only grow here).
+        lower = close & (first_native > i)
+        first_native[better | lower] = i
+        arrival[better] = a[better]
+    assert arrival is not None and first_native is not None and tie_native is not None
+    return OneSolveEnvelope(
+        arrival_time_s=arrival,
+        first_scenario=first_native,
+        tie=tie_native,
+        tie_tolerance_s=float(tol),
+        relaxed_start_cells=relaxed,
+        unlabelled_cells=unlabelled,
+    )
+
+
+def _union_solve(
+    medium: Medium,
+    sources: Sequence[Source],
+    index: NDArray[np.int32],
+    *,
+    snap_radius_m: float | None,
+    max_time_s: float | None,
+    tie_tolerance_s: float,
+) -> tuple[FloatArray, NDArray[np.int32], BoolArray, int, int]:
+    """One solve from the union of area starts (all start fronts at time zero)."""
+    plane = medium.plane
+    ncp = plane.shape[1]
+    r_keys, r_t, r_lab, o_keys, o_t, o_lab, i_keys, i_tau = [], [], [], [], [], [], [], []
+    zero_cells: list[tuple[NDArray[np.int64], int]] = []
+    for i, src in enumerate(sources):
+        s = _plane_seeds(medium.source_start(src, snap_radius_m=snap_radius_m), ncp)
+        r_keys.append(s.region)
+        r_t.append(s.region_t)
+        r_lab.append(np.full(s.region.size, index[i], np.int32))
+        o_keys.append(s.outer)
+        o_t.append(s.outer_t)
+        o_lab.append(np.full(s.outer.size, index[i], np.int32))
+        i_keys.append(s.inner)
+        i_tau.append(s.inner_tau)
+        if s.native_zero is not None:
+            zr, zc = s.native_zero
+            zero_cells.append(
+                (np.asarray(zr, np.int64) * medium.grid.cols + np.asarray(zc, np.int64), int(index[i]))
+            )
+    keys = np.concatenate(r_keys + o_keys)
+    times = np.concatenate(r_t + o_t)
+    labs = np.concatenate(r_lab + o_lab)
+    is_reg = np.zeros(keys.size, dtype=bool)
+    is_reg[: sum(k.size for k in r_keys)] = True
+    # Per cell: smallest time, then lowest label; region if any scenario's region holds it.
+    order = np.lexsort((labs, times, keys))
+    keys, times, labs, is_reg = keys[order], times[order], labs[order], is_reg[order]
+    first = np.ones(keys.size, dtype=bool)
+    first[1:] = keys[1:] != keys[:-1]
+    grp = np.cumsum(first) - 1
+    region_any = np.zeros(int(first.sum()), dtype=bool)
+    np.logical_or.at(region_any, grp, is_reg)
+    keys, times, labs = keys[first], times[first].copy(), labs[first].copy()
+    speed_flat = medium.speed_plane_m_s.ravel()
+    relaxed = _relax(keys, times, labs, speed_flat, plane.shape, plane.spacing_m, plane.periodic_x)
+
+    inside = np.zeros(plane.shape, dtype=bool)
+    inside.ravel()[keys[region_any]] = True
+    tiny = 1e-9 * min(plane.spacing_m) / float(np.max(speed_flat))
+    # Inner band: the most negative own-frame time of the scenarios whose edge it is.
+    ik, itau = _min_per_key(np.concatenate(i_keys), np.concatenate(i_tau))
+    ik_in = inside.ravel()[ik]
+    ik, itau = ik[ik_in], np.minimum(itau[ik_in], -tiny)
+    outer = ~region_any
+    band_keys = np.concatenate([ik, keys[outer]])
+    band_time = np.concatenate([itau, np.maximum(times[outer], tiny)])
+    # Region cells on the union's edge that no scenario listed (none expected): tiny.
+    edge = inside & _touches_outside(inside, plane.periodic_x)
+    missing = np.setdiff1d(np.flatnonzero(edge), band_keys)
+    band_keys = np.concatenate([band_keys, missing])
+    band_time = np.concatenate([band_time, np.full(missing.size, -tiny)])
+    t_plane = fast_march_s(
+        medium.speed_plane_m_s,
+        barrier=medium.barrier_plane,
+        inside=inside,
+        band_cells=(band_keys // ncp, band_keys % ncp),
+        band_time_s=band_time,
+        spacing_m=plane.spacing_m,
+        periodic_x=plane.periodic_x,
+        max_time_s=max_time_s,
+        borrow_speed=False,
+    )
+    t_flat = t_plane.ravel()
+    t_flat[keys] = times  # start cells keep their (relaxed) start times
+    seed = np.full(t_plane.size, NO_LABEL, dtype=np.int32)
+    seed[keys] = labs
+    labels, tie, unlabelled = propagate_labels(
+        t_plane, seed.reshape(plane.shape), tie_tolerance_s=tie_tolerance_s,
+        periodic_x=plane.periodic_x,
+    )
+    arrival = plane.to_native(t_plane)
+    first_native, tie_native = _labels_to_native(medium, labels, tie)
+    flat_a, flat_l = arrival.ravel(), first_native.ravel()
+    for zk, i in zero_cells:
+        flat_a[zk] = 0.0
+    for zk, i in reversed(zero_cells):  # several areas may hold a cell: the lowest index wins
+        flat_l[zk] = i
+    arrival[~medium.water] = np.nan
+    if max_time_s is not None:
+        with np.errstate(invalid="ignore"):
+            arrival[arrival > max_time_s] = np.nan
+    first_native[~np.isfinite(arrival)] = NO_LABEL
+    tie_native &= np.isfinite(arrival)
+    return arrival, first_native, tie_native, relaxed, unlabelled
+
+
+def _touches_outside(inside: BoolArray, periodic_x: bool) -> BoolArray:
+    out = np.zeros_like(inside)
+    o = ~inside
+    out[1:, :] |= o[:-1, :]
+    out[:-1, :] |= o[1:, :]
+    out[:, 1:] |= o[:, :-1]
+    out[:, :-1] |= o[:, 1:]
+    if periodic_x:
+        out[:, 0] |= o[:, -1]
+        out[:, -1] |= o[:, 0]
+    return out
+
+
+def _labels_to_native(
+    medium: Medium, labels: NDArray[np.int32], tie: BoolArray
+) -> tuple[NDArray[np.int32], BoolArray]:
+    """Plane labels on the native grid: the nearer solve row, else the other one."""
+    plane = medium.plane
+    if plane.is_identity:
+        lab, tt = labels, tie
+    else:
+        r0, r1, w = plane.back_row0, plane.back_row1, plane.back_weight
+        near = np.where(w < 0.5, r0, r1)
+        far = np.where(w < 0.5, r1, r0)
+        a, b = labels[near, :], labels[far, :]
+        lab = np.where(a >= 0, a, b)
+        tt = tie[near, :] | tie[far, :]
+    if plane.drop_seam:
+        lab = np.concatenate([lab, lab[:, :1]], axis=1)
+        tt = np.concatenate([tt, tt[:, :1]], axis=1)
+    return np.array(lab, dtype=np.int32), np.array(tt, dtype=bool)
