@@ -63,7 +63,7 @@ __all__ = [
 # worst residual 1.5 % (89 MiB at 1000^2, 1.10 GiB at 4000^2); before it the fit
 # was 34.9 / 65.2 / 20.1 MiB. The constants below are the new figures rounded up. GDAL's block cache and
 # writing the GeoTIFF (overviews) are not included. A batch worker holds the
-# same (depth, one medium, one solve: ttmap.batch.MEDIA_PER_WORKER = 1).
+# same (depth, one medium, one solve: ttmap.jobs.batch.MEDIA_PER_WORKER = 1).
 
 #: Bytes of peak memory per cell of the native (raster) grid.
 BYTES_PER_NATIVE_CELL: float = 22.0

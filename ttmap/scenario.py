@@ -77,7 +77,7 @@ from pathlib import Path
 from typing import Any
 
 from ttmap.defaults import FLOOR_DEPTH_M, EARTH_MODELS, EXECUTORS, MAX_TRENCH_RUPTURES, PERIOD_SPEEDS
-from ttmap.batch import MediumSpec, SolveTask
+from ttmap.jobs.batch import MediumSpec, SolveTask
 from ttmap.errors import InputDataError, TtmapError
 from ttmap.physics.scaling import MW_MAX, MW_MIN, SCALING_RELATIONS, rupture_size_km
 from ttmap.defaults import SCALING_RELATION
@@ -662,14 +662,14 @@ def trench_centres(
 def check_executor(value: Any) -> str | None:
     """None if ``value`` names an executor, else the reason and fix.
 
-    The same rule as :func:`ttmap.batch.check_executor`, with a suggestion.
+    The same rule as :func:`ttmap.jobs.batch.check_executor`, with a suggestion.
 
     >>> check_executor("local") is None, check_executor("tcp://10.0.0.5:8786") is None
     (True, True)
     >>> check_executor("lokal").endswith("; did you mean 'local'?")
     True
     """
-    from ttmap.batch import check_executor as _batch_check
+    from ttmap.jobs.batch import check_executor as _batch_check
 
     problem = _batch_check(value)
     if problem is None:
@@ -1969,7 +1969,7 @@ def run_scenario_file(
         envelope, difference rasters and ``run.json`` are derived from the
         rasters and rebuilt on every run.
     progress : callable, optional
-        Passed to :func:`ttmap.batch.run_tasks`.
+        Passed to :func:`ttmap.jobs.batch.run_tasks`.
     command_line : str
         Recorded in ``run.json``.
 
@@ -1988,7 +1988,7 @@ def run_scenario_file(
     import json
     import time
 
-    from ttmap.batch import run_tasks
+    from ttmap.jobs.batch import run_tasks
     from ttmap.io.atomic import atomic_output, check_writable
     from ttmap.io.raster import file_sha256
     from ttmap.mapjob import software_versions

@@ -204,7 +204,7 @@ def site_centred_times(
             )
         row, col = (int(v) for v in grid.rowcol(x, y))
         if not medium.open_water[row, col]:
-            from ttmap.sources import _nearest_open_water
+            from ttmap.sources import nearest_open_water
 
             d = float(medium.depth_m[row, col])
             what = "land or nodata" if not medium.water[row, col] else "a closed basin"
@@ -213,7 +213,7 @@ def site_centred_times(
                     f"{who} at {_where(grid, x, y)} lies on {what} (depth_m = {d:.1f}); move it "
                     "into open water or allow a move (snap_radius_m / --site-snap-radius-km)"
                 )
-            found = _nearest_open_water(grid, medium.open_water, x, y, snap_radius_m)
+            found = nearest_open_water(grid, medium.open_water, x, y, snap_radius_m)
             if found is None:
                 raise SourceError(
                     f"{who} at {_where(grid, x, y)} lies on {what} (depth_m = {d:.1f}) and no "
@@ -1010,19 +1010,19 @@ def write_combined_products(
 def _first_site_sld(names: Sequence[str]) -> str:
     """Categorical raster style: one colour per site index, labelled with its name."""
     from ttmap.products.palette import arrival_colors_hex
-    from ttmap.products.styles import _default_abstract, _document, _serialise, _sub
+    from ttmap.products.styles import default_abstract, sld_document, sld_element, sld_serialise
 
     colors = arrival_colors_hex(max(len(names), 2), "tab20")[: len(names)]
-    root, fts = _document(
-        "site_centred_first_site", "Site reached first from a source here", _default_abstract()
+    root, fts = sld_document(
+        "site_centred_first_site", "Site reached first from a source here", default_abstract()
     )
-    rule = _sub(fts, "Rule")
-    _sub(rule, "Name", "first_site")
-    _sub(rule, "Title", "Site reached first from a source here")
-    sym = _sub(rule, "RasterSymbolizer")
-    _sub(sym, "Opacity", "1.0")
-    cmap = _sub(sym, "ColorMap", type="values")
-    _sub(
+    rule = sld_element(fts, "Rule")
+    sld_element(rule, "Name", "first_site")
+    sld_element(rule, "Title", "Site reached first from a source here")
+    sym = sld_element(rule, "RasterSymbolizer")
+    sld_element(sym, "Opacity", "1.0")
+    cmap = sld_element(sym, "ColorMap", type="values")
+    sld_element(
         cmap,
         "ColorMapEntry",
         color="#000000",
@@ -1031,5 +1031,5 @@ def _first_site_sld(names: Sequence[str]) -> str:
         label="no data",
     )
     for i, (name, color) in enumerate(zip(names, colors, strict=True)):
-        _sub(cmap, "ColorMapEntry", color=color, quantity=str(i), opacity="1", label=name)
-    return _serialise(root)
+        sld_element(cmap, "ColorMapEntry", color=color, quantity=str(i), opacity="1", label=name)
+    return sld_serialise(root)
