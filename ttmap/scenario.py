@@ -1991,7 +1991,7 @@ def run_scenario_file(
     from ttmap.jobs.batch import run_tasks
     from ttmap.io.atomic import atomic_output, check_writable
     from ttmap.io.raster import file_sha256
-    from ttmap.mapjob import software_versions
+    from ttmap.jobs.record import software_versions
     from ttmap.products.cautions import CAUTION_SHORT
 
     t_start = time.perf_counter()
