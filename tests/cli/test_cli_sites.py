@@ -364,6 +364,10 @@ def test_site_map_two_sites(run_cli, spec, utm_bathymetry, tmp_path):
 
     record = json.loads((out / "run.json").read_text())
     assert record["inputs"]["bathymetry"]["sha256"]
+    from ttmap.jobs.record import validate_run_record
+
+    assert validate_run_record(record) == []  # the one schema (docs/run-record.md)
+    assert record["job"] == "site-map" and record["combined_written"] is True
     assert record["parameters"]["sites"]["notification_delay_min"] == 7.0
     assert record["parameters"]["speed_mode"] == "long-wave"
     assert [s["name"] for s in record["sites"]] == ["Wharf", "Bay North"]
