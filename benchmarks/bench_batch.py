@@ -62,8 +62,9 @@ import numpy as np
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
-from ttmap import batch as batch_module  # noqa: E402
-from ttmap.batch import MediumSpec, SolveTask, run_tasks  # noqa: E402
+from ttmap.jobs import batch as batch_module  # noqa: E402
+from ttmap.jobs.batch import run_tasks  # noqa: E402
+from ttmap.tasks import MediumSpec, SolveTask  # noqa: E402
 from ttmap.sources import Source  # noqa: E402
 
 

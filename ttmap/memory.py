@@ -31,6 +31,7 @@ import subprocess
 import sys
 import tempfile
 from collections.abc import Sequence
+from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
@@ -45,6 +46,9 @@ __all__ = [
     "total_memory_bytes",
     "check_memory",
     "measure_peak_bytes",
+    "NS_PER_CELL",
+    "SolveEstimate",
+    "estimate_solve",
 ]
 
 # Measured 2026-12-01 on the development machine (Linux x86-64, Python 3.11,
@@ -63,7 +67,7 @@ __all__ = [
 # worst residual 1.5 % (89 MiB at 1000^2, 1.10 GiB at 4000^2); before it the fit
 # was 34.9 / 65.2 / 20.1 MiB. The constants below are the new figures rounded up. GDAL's block cache and
 # writing the GeoTIFF (overviews) are not included. A batch worker holds the
-# same (depth, one medium, one solve: ttmap.batch.MEDIA_PER_WORKER = 1).
+# same (depth, one medium, one solve: ttmap.jobs.batch.MEDIA_PER_WORKER = 1).
 
 #: Bytes of peak memory per cell of the native (raster) grid.
 BYTES_PER_NATIVE_CELL: float = 22.0
@@ -114,6 +118,35 @@ def estimate_peak_bytes(grid_shape: Sequence[int], solve_shape: Sequence[int] | 
     native = float(rows) * float(cols)
     solve = float(s_rows) * float(s_cols)
     return math.ceil(BYTES_PER_NATIVE_CELL * native + BYTES_PER_SOLVE_CELL * solve + BASE_BYTES)
+
+
+#: Solve time per solve-grid cell, measured on the development machine (2 cores,
+#: 2026-12-01; benchmarks/bench_batch.py: 250 ns per cell for a 1000 x 1000 solve).
+NS_PER_CELL: float = 250.0
+
+
+@dataclass(frozen=True)
+class SolveEstimate:
+    """The cost of one solve of a grid: solve-grid cells, seconds on one core, peak bytes."""
+
+    cells: int
+    seconds: float
+    peak_bytes: int
+
+
+def estimate_solve(grid: Any) -> SolveEstimate:
+    """Cells, time and peak memory of one solve of ``grid`` (a :class:`ttmap.Grid`).
+
+    Fast marching is O(N log N): the measured time per cell (:data:`NS_PER_CELL`,
+    at 1e6 cells) is scaled by log2(N) / log2(1e6) for larger grids. Memory
+    is :func:`estimate_peak_bytes` of the grid and its solve plane.
+    """
+    from ttmap.grid import solve_plane
+
+    plane = solve_plane(grid)
+    cells = int(plane.shape[0] * plane.shape[1])
+    n = cells * max(1.0, math.log2(max(cells, 2)) / math.log2(1e6))
+    return SolveEstimate(cells, n * NS_PER_CELL * 1e-9, int(estimate_peak_bytes(grid.shape, plane.shape)))
 
 
 def _cgroup_limit_bytes() -> int | None:

@@ -62,6 +62,7 @@ __all__ = [
     "SourceStart",
     "Placement",
     "place_source",
+    "nearest_open_water",
     "POINT_START_RADIUS_CELLS",
 ]
 
@@ -336,7 +337,7 @@ def _ground_distance_m(grid: Grid, x0: float, y0: float, x: FloatArray, y: Float
     return np.asarray(2.0 * MEAN_EARTH_RADIUS_M * np.arcsin(np.sqrt(np.clip(h, 0, 1))), dtype=np.float64)
 
 
-def _nearest_open_water(
+def nearest_open_water(
     grid: Grid, open_water: BoolArray, x: float, y: float, radius_m: float
 ) -> tuple[int, int, float] | None:
     """Nearest open-water cell within ``radius_m`` of map position (x, y)."""
@@ -502,7 +503,7 @@ def _place_point(
                 f"source at {where} {problem}; move it into open water or allow a move to the "
                 "nearest open water (snap_radius_m / --snap-radius-km)"
             )
-        found = _nearest_open_water(grid, open_water, x, y, snap_radius_m)
+        found = nearest_open_water(grid, open_water, x, y, snap_radius_m)
         if found is None:
             raise SourceError(
                 f"source at {where} {problem}, and no open water lies within "

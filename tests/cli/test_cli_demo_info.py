@@ -11,7 +11,7 @@ import pytest
 import rasterio
 
 import ttmap
-from ttmap.cli.demo import DEMO_PERIODS_S, DEMO_SOURCE_LONLAT, demo_data_dir
+from ttmap.jobs.demo import DEMO_PERIODS_S, DEMO_SOURCE_LONLAT, demo_data_dir
 
 
 @pytest.fixture(scope="module")
@@ -43,7 +43,7 @@ def test_demo_writes_products_and_run_record(run_cli, tmp_path):
         "lon": DEMO_SOURCE_LONLAT[0],
         "lat": DEMO_SOURCE_LONLAT[1],
     }
-    assert record["parameters"]["periods_s"] == list(DEMO_PERIODS_S)
+    assert record["parameters"]["speed"]["periods_s"] == list(DEMO_PERIODS_S)
     assert "invented" in record["parameters"]["source"]["label"]
     front = record["product_sets"]["front"]
     assert front["cells_reached"] > 0.9 * front["water_cells"]

@@ -331,7 +331,7 @@ def test_max_time_h(run_cli, spec, utm_bathymetry, tmp_path):
     # away is beyond the limit, one 20 km away is reached.
     assert t.mask[59, 20] and not t.mask[59, 40]
     record = json.loads((out / "run.json").read_text())
-    assert record["parameters"]["max_time_s"] == 900.0
+    assert record["parameters"]["speed"]["max_time_s"] == 900.0
     assert record["product_sets"]["front"]["cells_beyond_max_time"] > 0
     with rasterio.open(out / "arrival_front.tif") as src:
         assert src.tags()["MAX_TIME_MIN"] == "15"

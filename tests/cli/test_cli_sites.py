@@ -156,7 +156,8 @@ def test_site_layers_and_run_record(sites_run):
     assert not (out / "sites.shp").exists()
 
     record = json.loads((out / "run.json").read_text())
-    assert record["parameters"]["coast"] is True and record["parameters"]["coast_interval_min"] == 5.0
+    assert record["parameters"]["products"]["coast"] is True
+    assert record["parameters"]["products"]["coast_interval_min"] == 5.0
     sites = record["sites"]
     assert sites["table_settings"]["speed_uncertainty"] == pytest.approx(0.05)
     assert sites["table_settings"]["default_notification_delay_min"] == 15.0
@@ -165,7 +166,7 @@ def test_site_layers_and_run_record(sites_run):
     assert sum(sites["budget_status_counts"].values()) == 3
     assert [s["name"] for s in sites["per_site"]] == ["Wharf", "Bay", "Inland Farm"]
     assert record["inputs"]["sites"]["sha256"] and len(record["inputs"]["sites"]["sha256"]) == 64
-    written = {Path(p).name for p in record["files_written"]}
+    written = {Path(p).name for p in record["products"]}
     for name in ("sites.csv", "sites.gpkg", "sites.geojson", "timeline.png", "timeline.pdf",
                  "coast_front.gpkg", "coast_front.geojson", "coast_front.sld",
                  "coast_group_T300s.gpkg"):
@@ -363,12 +364,16 @@ def test_site_map_two_sites(run_cli, spec, utm_bathymetry, tmp_path):
 
     record = json.loads((out / "run.json").read_text())
     assert record["inputs"]["bathymetry"]["sha256"]
-    assert record["parameters"]["notification_delay_min"] == 7.0
+    from ttmap.jobs.record import validate_run_record
+
+    assert validate_run_record(record) == []  # the one schema (docs/run-record.md)
+    assert record["job"] == "site-map" and record["combined_written"] is True
+    assert record["parameters"]["sites"]["notification_delay_min"] == 7.0
     assert record["parameters"]["speed_mode"] == "long-wave"
     assert [s["name"] for s in record["sites"]] == ["Wharf", "Bay North"]
     assert record["sites"][0]["moved_m"] == pytest.approx(1000.0, abs=1.0)
     assert record["versions"]["ttmap"] and record["timings_s"]["total_s"] > 0
-    written = {Path(p).name for p in record["files_written"]}
+    written = set(record["products"])  # relative to the output folder
     assert written | {"run.json"} == {p.name for p in out.iterdir()}
     assert leftovers(out) == []
 
@@ -452,7 +457,7 @@ def test_site_map_site_on_land_far_from_water(run_cli, spec, utm_bathymetry, tmp
 
 
 def test_demo_planner_products(run_cli, tmp_path):
-    from ttmap.cli.demo import DEMO_SITE_MAP_DIR, demo_data_dir
+    from ttmap.jobs.demo import DEMO_SITE_MAP_DIR, demo_data_dir
     from ttmap.io.sites import read_sites
 
     out = tmp_path / "demo"

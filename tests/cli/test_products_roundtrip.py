@@ -282,8 +282,8 @@ def test_run_record(utm_run):
         record["inputs"]["bathymetry"]["sha256"] == hashlib.sha256(bathy.read_bytes()).hexdigest()
     )
     params = record["parameters"]
-    assert params["isochrone_interval_min"] == 10.0
-    assert params["vector_formats"] == ["gpkg", "geojson"]
+    assert params["products"]["isochrone_interval_min"] == 10.0
+    assert params["products"]["vector_formats"] == ["gpkg", "geojson"]
     assert params["source"]["kind"] == "point"
     versions = record["versions"]
     import importlib.metadata as md
@@ -298,7 +298,8 @@ def test_run_record(utm_run):
     assert list(sets) == ["front"]
     # 120 x 120 cells less the 120 x 10 land strip, all reached
     assert sets["front"]["cells_reached"] == 120 * 110
-    written = [Path(p) for p in record["files_written"]]
+    # products are listed relative to the output folder
+    written = [out / p for p in record["products"]]
     assert all(p.is_file() and p.parent == out for p in written)
     # every file the run left in the folder (listed before any test read the
     # products: readers may add side files) is a listed product, or the record

@@ -1,4 +1,4 @@
-"""Unit tests of ttmap.batch: run_tasks on the serial executor, a local cluster and a scheduler address.
+"""Unit tests of ttmap.jobs.batch: run_tasks on the serial executor, a local cluster and a scheduler address.
 
 The bathymetry is a tiny invented lon/lat grid (80 x 100 cells of 0.05 degrees,
 140-145 E, 36-40 N, elevation -3000 m) with an island, a shelf and a line of
@@ -26,8 +26,9 @@ import rasterio
 from affine import Affine
 
 import ttmap
-from ttmap import batch as batch_module
-from ttmap.batch import MediumSpec, SolveTask, TaskSummary, check_executor, run_tasks
+from ttmap.jobs import batch as batch_module
+from ttmap.jobs.batch import TaskSummary, run_tasks
+from ttmap.tasks import MediumSpec, SolveTask, check_executor
 from ttmap.errors import InputDataError, OutputExistsError
 from ttmap.io.raster import file_sha256, read_bathymetry
 from ttmap.products.cautions import CAUTION_SHORT

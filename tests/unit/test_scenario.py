@@ -24,7 +24,7 @@ import pytest
 from affine import Affine
 from pyproj import Geod
 
-from ttmap.batch import check_executor
+from ttmap.tasks import check_executor
 from ttmap.errors import InputDataError
 from ttmap.scenario import (
     ScenarioFileError,

@@ -27,18 +27,15 @@ from numpy.testing import assert_allclose, assert_array_equal
 from ttmap import Grid, Source, prepare_medium
 from ttmap.errors import InputDataError, OutputExistsError, SourceError
 from ttmap.products.cautions import CAUTION_SHORT
+from ttmap.jobs.plan import combined_names, site_file_stem, site_names
+from ttmap.jobs.sitemap import write_combined_products, write_site_products
+from ttmap.products.site_maps import render_site_map
 from ttmap.sitemap import (
     RECIPROCITY_NOTE,
     combine_site_times,
     combine_sites,
-    combined_product_paths,
     minutes_left,
-    render_site_map,
     site_centred_times,
-    site_file_stem,
-    site_product_paths,
-    write_combined_products,
-    write_site_products,
 )
 from ttmap.defaults import SITE_SEARCH_RADIUS_M
 
@@ -244,9 +241,9 @@ def test_site_products_are_written_and_read_back(tmp_path, medium, harbour):
         vector_formats=("gpkg", "geojson"),
         map_formats=("png", "pdf"),
     )
-    assert files == site_product_paths(
+    assert files == site_names(
         tmp_path, "Harbour", vector_formats=("gpkg", "geojson"), map_formats=("png", "pdf")
-    )
+    ).files()
     assert all(p.is_file() for p in files)
     assert sorted(p.name for p in tmp_path.iterdir()) == sorted(p.name for p in files)
 
@@ -355,7 +352,7 @@ def test_combined_products_are_written_and_read_back(tmp_path, medium, harbour):
     cove = site_centred_times(medium, Source.point_xy(x, y), name="Cove")
     t, idx, names = combine_sites({"Harbour": harbour, "Cove": cove})
     files = write_combined_products(tmp_path, t, idx, names, GRID, settings_from=harbour)
-    assert files == combined_product_paths(tmp_path)
+    assert files == combined_names(tmp_path).files()
     assert sorted(p.name for p in tmp_path.iterdir()) == sorted(p.name for p in files)
 
     tmin, tags, nodata, _, dtype = read(tmp_path / "site_centred_min.tif")
@@ -412,7 +409,9 @@ def test_a_failing_combined_write_leaves_no_file(tmp_path, monkeypatch):
 def test_module_doctests_pass():
     import doctest
 
+    import ttmap.jobs.plan as plan_module
     import ttmap.sitemap as sitemap_module
 
-    failed, attempted = doctest.testmod(sitemap_module, optionflags=doctest.NORMALIZE_WHITESPACE)
-    assert attempted >= 6 and failed == 0
+    for module, least in ((sitemap_module, 3), (plan_module, 5)):
+        failed, attempted = doctest.testmod(module, optionflags=doctest.NORMALIZE_WHITESPACE)
+        assert attempted >= least and failed == 0

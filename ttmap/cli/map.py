@@ -2,8 +2,6 @@
 
 from __future__ import annotations
 
-import datetime as _dt
-import math
 import shlex
 import sys
 from typing import Any
@@ -11,129 +9,31 @@ from typing import Any
 import click
 
 from ttmap.cli.options import (
-    bbox_callback,
+    LazyChoice,
+    bathymetry_options,
+    option_default,
     pair_callback,
+    period_speed_option,
     positive_callback,
     product_options,
+    products_from_options,
+    reading_from_options,
     reporter,
+    site_table_options,
+    sites_from_options,
+    speed_from_options,
     speed_model_options,
     verbosity_options,
 )
-from ttmap.physics.scaling import SCALING_RELATIONS
-from ttmap.defaults import FLOOR_DEPTH_M, NOTIFICATION_DELAY_MIN, PREPARATION_MIN, WALKING_SPEED_M_S, LITTLE_MARGIN_MIN
-from ttmap.defaults import COAST_CLASS_INTERVAL_MIN
-from ttmap.defaults import SITE_SEARCH_RADIUS_M, SPEED_UNCERTAINTY
+from ttmap.defaults import SCALING_RELATION
 
 __all__ = [
-    "bathymetry_options",
     "build_source",
-    "finite_callback",
+    "job_from_options",
     "map_command",
-    "origin_time_callback",
-    "parse_origin_time",
-    "site_file_options",
+    "report_map",
+    "report_sites",
 ]
-
-SCALING_CHOICES = tuple(SCALING_RELATIONS)
-
-
-def finite_callback(ctx: click.Context, param: click.Parameter, value: Any) -> Any:
-    """Refuse NaN and infinite numbers (click's ranges let them through)."""
-    if value is None:
-        return None
-    for v in value if isinstance(value, tuple) else (value,):
-        if not math.isfinite(v):
-            raise click.BadParameter(f"{v!r} is not a finite number", ctx=ctx, param=param)
-    return value
-
-
-def parse_origin_time(value: str) -> _dt.datetime:
-    """An ISO 8601 time with a zone (``Z`` or an offset), as UTC; ValueError otherwise.
-
-    >>> parse_origin_time("2026-03-01T16:12:00+13:00").isoformat()
-    '2026-03-01T03:12:00+00:00'
-    >>> parse_origin_time("2026-03-01T03:12:00Z").isoformat()
-    '2026-03-01T03:12:00+00:00'
-    """
-    text = str(value).strip()
-    try:
-        t = _dt.datetime.fromisoformat(text)
-    except ValueError:
-        raise ValueError(
-            f"{value!r} is not an ISO 8601 time; give e.g. 2026-03-01T03:12:00Z"
-        ) from None
-    if t.tzinfo is None or t.utcoffset() is None:
-        raise ValueError(
-            f"{value!r} has no time zone; add Z for UTC or an offset, e.g. 2026-03-01T03:12:00Z "
-            "or 2026-03-01T16:12:00+13:00"
-        )
-    return t.astimezone(_dt.UTC)
-
-
-def origin_time_callback(ctx: click.Context, param: click.Parameter, value: Any) -> Any:
-    if value is None:
-        return None
-    try:
-        return parse_origin_time(value)
-    except ValueError as err:
-        raise click.BadParameter(str(err), ctx=ctx, param=param) from None
-
-
-def site_file_options(f: Any) -> Any:
-    """``--sites FILE`` and how to read it (layer, name field, CRS)."""
-    f = click.option("--sites-crs", metavar="CRS",
-                     help="CRS of x,y columns in a CSV site file (or of a vector file that declares "
-                          "none), e.g. EPSG:32759. lon,lat columns are WGS84 degrees.")(f)
-    f = click.option("--name-field", metavar="COLUMN",
-                     help="Column holding the site names (default: name).")(f)
-    f = click.option("--sites-layer", metavar="LAYER", help="Layer of a multi-layer vector site file.")(f)
-    f = click.option("--sites", "sites_file", type=click.Path(dir_okay=False), metavar="FILE",
-                     help="Coastal sites: CSV with name,lon,lat and optional safe_ground_distance_m, "
-                          "walking_speed_m_s, preparation_min, notification_delay_min; or a point "
-                          "vector file with those attributes.")(f)
-    return f
-
-
-def site_table_options(f: Any) -> Any:
-    """Options of the site table: snapping, uncertainty, clock times and the time budget."""
-    f = click.option("--little-margin-min", type=click.FloatRange(min=0.0), default=LITTLE_MARGIN_MIN,
-                     show_default=True, callback=finite_callback,
-                     help="Margins below this are flagged as little.")(f)
-    f = click.option("--walking-speed-m-s", type=click.FloatRange(min=0.0, min_open=True),
-                     default=WALKING_SPEED_M_S, show_default=True, callback=finite_callback,
-                     help="Walking speed for sites that give none (mean observed in the 2011 "
-                          "evacuations; slower than the older 1.0 m/s planning value).")(f)
-    f = click.option("--preparation-min", type=click.FloatRange(min=0.0), default=PREPARATION_MIN,
-                     show_default=True, callback=finite_callback,
-                     help="Minutes before people start walking, for sites that give none.")(f)
-    f = click.option("--notification-delay-min", type=click.FloatRange(0.0, 1440.0),
-                     default=NOTIFICATION_DELAY_MIN, show_default=True, callback=finite_callback,
-                     help="Minutes from the earthquake until an official message can reach people, "
-                          "for sites that give none.")(f)
-    f = click.option("--origin-time", metavar="ISO8601", callback=origin_time_callback,
-                     help="Earthquake origin time with a zone (e.g. 2026-03-01T03:12:00Z); adds UTC "
-                          "clock times to the site table.")(f)
-    f = click.option("--speed-uncertainty-pct", type=click.FloatRange(0.0, 100.0, max_open=True),
-                     default=100.0 * SPEED_UNCERTAINTY, show_default=True, callback=finite_callback,
-                     help="Stated +/- wave-speed uncertainty behind the earliest/latest columns.")(f)
-    f = click.option("--site-search-radius-km", type=click.FloatRange(min=0.0),
-                     default=SITE_SEARCH_RADIUS_M / 1000.0, show_default=True, callback=finite_callback,
-                     help="Read a site's time at the nearest reached water cell within this distance.")(f)
-    return site_file_options(f)
-
-
-def bathymetry_options(f: Any) -> Any:
-    """Options shared by commands that read a bathymetry raster."""
-    f = click.option("--coarsen", type=click.IntRange(min=1), default=1, show_default=True,
-                     help="Average depth over N x N blocks first (faster, coarser).")(f)
-    f = click.option("--crop-xy", callback=bbox_callback, metavar="W,S,E,N",
-                     help="Crop to a window in the raster's own map units.")(f)
-    f = click.option("--crop-lonlat", callback=bbox_callback, metavar="W,S,E,N",
-                     help="Crop to a longitude/latitude window (degrees).")(f)
-    f = click.option("--depth-positive", is_flag=True,
-                     help="Values are depths (positive down), not elevations.")(f)
-    f = click.option("--band", type=click.IntRange(min=1), help="Band to read from a multi-band raster.")(f)
-    return f
 
 
 def build_source(opts: dict[str, Any]) -> Any:
@@ -175,6 +75,12 @@ def build_source(opts: dict[str, Any]) -> Any:
     return Source.rupture(lon, lat, strike_deg=strike, length_km=opts["length_km"], width_km=opts["width_km"])
 
 
+def _scaling_keys() -> list[str]:
+    from ttmap.physics.scaling import SCALING_RELATIONS
+
+    return list(SCALING_RELATIONS)
+
+
 @click.command("map")
 @click.argument("bathymetry", type=click.Path(dir_okay=False))
 @click.option("--source", metavar="LON,LAT", callback=pair_callback(("LON", "LAT")),
@@ -189,23 +95,21 @@ def build_source(opts: dict[str, Any]) -> Any:
 @click.option("--length-km", type=float, callback=positive_callback, help="Rupture length along strike.")
 @click.option("--width-km", type=float, callback=positive_callback, help="Rupture width across strike.")
 @click.option("--magnitude-mw", type=click.FloatRange(6.0, 9.6), help="Size the rupture from moment magnitude.")
-@click.option("--scaling-law", type=click.Choice(SCALING_CHOICES), default="strasser2010-interface",
+@click.option("--scaling-law", type=LazyChoice(_scaling_keys), default=SCALING_RELATION,
               show_default=True, help="Magnitude-to-size scaling relation.")
 @click.option("--snap-radius-km", type=float, callback=positive_callback,
               help="Move a point source on land or in a closed basin to open water within this distance.")
 @click.option("--period-s", type=float, multiple=True, callback=positive_callback,
               help="Wave period in seconds; repeat for several. Each adds a product set for the energy "
                    "arrival of that period.")
-@click.option("--period-speed", type=click.Choice(["group", "phase"]), default="group", show_default=True,
-              help="Speed used for the --period-s product sets.")
+@period_speed_option
 @click.option("--front/--no-front", default=True, show_default=True,
               help="Produce the front (long-wave speed, earliest arrival) set.")
 @speed_model_options
 @product_options
-@click.option("--no-map", is_flag=True, help="Skip the map picture.")
-@click.option("--coast/--no-coast", default=True, show_default=True,
+@click.option("--coast/--no-coast", default=option_default("coast"), show_default=True,
               help="Write the coastal arrival layer (coastline stretches with first-arrival minutes).")
-@click.option("--coast-interval-min", type=float, default=COAST_CLASS_INTERVAL_MIN, show_default=True,
+@click.option("--coast-interval-min", type=float, default=option_default("coast_interval_min"), show_default=True,
               callback=positive_callback, help="Width of the coastal arrival classes, minutes.")
 @site_table_options
 @bathymetry_options
@@ -234,18 +138,18 @@ def map_command(ctx: click.Context, bathymetry: str, **opts: Any) -> None:
     management decide. Margins are planning figures, not promises; strong
     or long shaking is itself the warning.
     """
+    from ttmap.jobs.map import run_map_job
+
     with reporter(ctx) as rep:
         job = job_from_options(bathymetry, opts)
-        record = _run(job, rep)
-        _report(rep, record, job.out_dir)
+        result = run_map_job(job, progress=rep.stage)
+        report_map(rep, result)
 
 
 def job_from_options(bathymetry: str, opts: dict[str, Any]) -> Any:
-    from ttmap.mapjob import MapJob
+    """The :class:`~ttmap.jobs.map.MapJob` the options describe."""
+    from ttmap.jobs.map import MapJob
 
-    if opts.get("crop_lonlat") and opts.get("crop_xy"):
-        raise click.UsageError("give --crop-lonlat or --crop-xy, not both")
-    window = opts.get("crop_lonlat") or opts.get("crop_xy")
     sites_file = opts.get("sites_file")
     if sites_file is None:
         for key, flag in (("sites_layer", "--sites-layer"), ("name_field", "--name-field"),
@@ -254,55 +158,27 @@ def job_from_options(bathymetry: str, opts: dict[str, Any]) -> Any:
                 raise click.UsageError(f"{flag} applies to the site table; give --sites FILE too")
     elif not opts.get("front", True):
         raise click.UsageError("--sites needs the front (long-wave) arrival; drop --no-front")
+    reading = reading_from_options(bathymetry, opts)
     source = build_source(opts)
     return MapJob(
-        bathymetry=bathymetry,
+        reading=reading,
         source=source,
         out_dir=opts["out_dir"],
-        band=opts.get("band"),
-        depth_positive=opts.get("depth_positive", False),
-        window=window,
-        window_crs=None if opts.get("crop_xy") else "EPSG:4326",
-        coarsen=opts.get("coarsen", 1),
-        periods_s=tuple(opts.get("period_s") or ()),
-        period_mode=opts.get("period_speed", "group"),
+        speed=speed_from_options(opts, tuple(opts.get("period_s") or ())),
+        products=products_from_options(opts),
+        sites=None if sites_file is None else sites_from_options(opts),
         front=opts.get("front", True),
-        far_field=opts.get("far_field_correction", False),
-        floor_depth_m=opts.get("floor_depth_m", FLOOR_DEPTH_M),
-        earth=opts.get("earth", "wgs84"),
-        max_time_s=None if opts.get("max_time_h") is None else opts["max_time_h"] * 3600.0,
-        snap_radius_m=None if opts.get("snap_radius_km") is None else opts["snap_radius_km"] * 1000.0,
-        isochrone_interval_min=opts.get("isochrone_interval_min"),
-        vector_formats=tuple(opts.get("vector_format") or ("gpkg",)),
-        map_formats=() if opts.get("no_map") else tuple(opts.get("map_format") or ("png",)),
+        source_snap_radius_m=None if opts.get("snap_radius_km") is None else opts["snap_radius_km"] * 1000.0,
         overwrite=opts.get("overwrite", False),
         command_line=shlex.join(["ttmap", *sys.argv[1:]]),
-        coast=opts.get("coast", True),
-        coast_interval_min=opts.get("coast_interval_min", COAST_CLASS_INTERVAL_MIN),
-        sites=sites_file,
-        sites_layer=opts.get("sites_layer"),
-        sites_name_field=opts.get("name_field"),
-        sites_crs=opts.get("sites_crs"),
-        site_search_radius_m=1000.0 * opts.get("site_search_radius_km", SITE_SEARCH_RADIUS_M / 1000.0),
-        speed_uncertainty=opts.get("speed_uncertainty_pct", 100.0 * SPEED_UNCERTAINTY) / 100.0,
-        origin_time_utc=opts.get("origin_time"),
-        notification_delay_min=opts.get("notification_delay_min", NOTIFICATION_DELAY_MIN),
-        preparation_min=opts.get("preparation_min", PREPARATION_MIN),
-        walking_speed_m_s=opts.get("walking_speed_m_s", WALKING_SPEED_M_S),
-        little_margin_min=opts.get("little_margin_min", LITTLE_MARGIN_MIN),
     )
 
 
-def _run(job: Any, rep: Any) -> Any:
-    from ttmap.mapjob import run_map_job
-
-    return run_map_job(job, progress=rep.stage)
-
-
-def _report(rep: Any, record: dict[str, Any], out_dir: str) -> None:
+def report_map(rep: Any, result: Any) -> None:
+    """Per product set: cells reached, arrival range, basins, joins; the sites; files and caution."""
     from ttmap.products.cautions import CAUTION_SHORT
 
-    for key, s in record["product_sets"].items():
+    for key, s in result.product_sets.items():
         rng = s.get("arrival_min_range")
         span = f"{rng[0]:.0f}-{rng[1]:.0f} min" if rng else "no arrivals"
         rep.stage(
@@ -311,9 +187,9 @@ def _report(rep: Any, record: dict[str, Any], out_dir: str) -> None:
         )
         if s.get("source_moved_m"):
             rep.notice(f"the source was moved {s['source_moved_m'] / 1000:.2f} km to open water")
-    if record.get("sites"):
-        report_sites(rep, record["sites"])
-    rep.stage(f"{len(record['files_written'])} files written to {out_dir} (run record: run.json)")
+    if result.sites:
+        report_sites(rep, result.sites)
+    rep.stage(f"{len(result.products)} files written to {result.out_dir} (run record: {result.record_path.name})")
     rep.stage(CAUTION_SHORT)
 
 

@@ -18,7 +18,7 @@ def executor_callback(ctx: click.Context, param: click.Parameter, value: Any) ->
     """``--executor``: 'serial', 'local' or a scheduler address."""
     if value is None:
         return None
-    from ttmap.batch import check_executor
+    from ttmap.tasks import check_executor
     from ttmap.defaults import EXECUTORS
     from ttmap.scenario import did_you_mean
 

@@ -49,6 +49,7 @@ __all__ = [
     "write_arrival_geotiff",
     "overview_factors",
     "file_sha256",
+    "describe_bathymetry",
     "RASTER_DTYPES",
     "BLOCK_SIZE",
 ]
@@ -605,6 +606,47 @@ def read_bathymetry(
 # ---------------------------------------------------------------------------
 # Writing
 # ---------------------------------------------------------------------------
+
+
+def describe_bathymetry(bathy: Bathymetry) -> dict[str, Any]:
+    """A summary of a bathymetry as ttmap sees it (what ``ttmap info`` prints).
+
+    Returns
+    -------
+    dict
+        ``crs``, ``crs_name``, ``rows``, ``cols``, ``cells``, ``bounds``
+        (left, bottom, right, top), ``geographic``, ``wraps_x``,
+        ``has_seam_column``, ``cell_size_m`` (row_m, col_m; at mid-latitude
+        for a geographic grid), ``water_cells``, ``water_share``,
+        ``nodata_share``, ``depth_range_m`` (shallowest and deepest water,
+        None without water), ``max_land_height_m`` (None without land) and
+        ``notes`` (changes made on reading).
+    """
+    g = bathy.grid
+    d = bathy.depth_m
+    valid = np.isfinite(d)
+    water = valid & (d > 0)
+    land = valid & ~water
+    row_m, col_m = g.cell_size_m()
+    n = int(d.size)
+    return {
+        "crs": g.crs.to_string(),
+        "crs_name": g.crs.name,
+        "rows": int(g.rows),
+        "cols": int(g.cols),
+        "cells": int(g.rows * g.cols),
+        "bounds": tuple(float(v) for v in g.bounds),
+        "geographic": bool(g.is_geographic),
+        "wraps_x": bool(g.wraps_x),
+        "has_seam_column": bool(g.has_seam_column),
+        "cell_size_m": (float(row_m), float(col_m)),
+        "water_cells": int(water.sum()),
+        "water_share": float(water.sum()) / n if n else 0.0,
+        "nodata_share": float((~valid).sum()) / n if n else 0.0,
+        "depth_range_m": (float(d[water].min()), float(d[water].max())) if water.any() else None,
+        "max_land_height_m": float(-d[land].min()) if land.any() else None,
+        "notes": list(bathy.notes),
+    }
 
 
 def overview_factors(shape: tuple[int, int], *, min_side: int = BLOCK_SIZE) -> list[int]:

@@ -58,6 +58,8 @@ __all__ = [
     "SiteList",
     "SITE_FIELDS",
     "read_sites",
+    "check_lonlat",
+    "sites_from_lonlat",
     "write_site_table_csv",
 ]
 
@@ -252,17 +254,51 @@ def _check_site_values(
             )
 
 
-def _check_lonlat(lon: float, lat: float, *, where: str, lon_col: str, lat_col: str) -> None:
+def check_lonlat(lon: float, lat: float, *, where: str, lon_column: str | None = None,
+                 lat_column: str | None = None) -> None:
+    """Refuse a WGS84 position with latitude outside -90..90 or longitude outside -360..360.
+
+    ``where`` starts the message (a file and line, or a site); the column
+    names, when given, are added.
+
+    >>> check_lonlat(174.8, -41.3, where="site 'A'")
+    >>> check_lonlat(-41.3, 174.8, where="site 'A'")
+    Traceback (most recent call last):
+    ...
+    ttmap.errors.InputDataError: site 'A': latitude 174.8 lies outside -90..90; check the value (latitude, not longitude? give longitude first)
+    """
     if not -90.0 <= lat <= 90.0:
+        col = "" if lat_column is None else f", column {lat_column!r}"
         raise InputDataError(
-            f"{where}, column {lat_col!r}: latitude {lat:g} lies outside -90..90; "
-            "check the value (latitude, not longitude?)"
+            f"{where}{col}: latitude {lat:g} lies outside -90..90; "
+            "check the value (latitude, not longitude? give longitude first)"
         )
     if not -360.0 <= lon <= 360.0:
-        raise InputDataError(
-            f"{where}, column {lon_col!r}: longitude {lon:g} lies outside -360..360; "
-            "check the value"
-        )
+        col = "" if lon_column is None else f", column {lon_column!r}"
+        raise InputDataError(f"{where}{col}: longitude {lon:g} lies outside -360..360; check the value")
+
+
+def _check_lonlat(lon: float, lat: float, *, where: str, lon_col: str, lat_col: str) -> None:
+    check_lonlat(lon, lat, where=where, lon_column=lon_col, lat_column=lat_col)
+
+
+def sites_from_lonlat(specs: Sequence[tuple[str, float, float]]) -> SiteList:
+    """A WGS84 :class:`SiteList` from ``(name, lon, lat)`` triples, positions and names checked.
+
+    Raises
+    ------
+    InputDataError
+        A latitude or longitude out of range, or a name given twice.
+    """
+    seen: set[str] = set()
+    sites = []
+    for name, lon, lat in specs:
+        check_lonlat(lon, lat, where=f"site {name!r}")
+        if name in seen:
+            raise InputDataError(f"site name {name!r} is given twice; give each site a unique name")
+        seen.add(name)
+        sites.append(Site(name, float(lon), float(lat)))
+    return SiteList(tuple(sites))
 
 
 def _user_crs(crs: Any, path: str) -> CRS | None:

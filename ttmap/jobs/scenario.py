@@ -2,7 +2,7 @@
 
 :func:`run_scenario_file` takes a validated
 :class:`~ttmap.scenario.ScenarioFile`, hands its solves to
-:func:`ttmap.batch.run_tasks` (serial, a local Dask cluster or a scheduler),
+:func:`ttmap.jobs.batch.run_tasks` (serial, a local Dask cluster or a scheduler),
 then derives the comparisons from the finished front rasters (envelope,
 difference rasters, sites by scenarios) and writes the run record last.
 """
@@ -14,7 +14,8 @@ from collections.abc import Iterator, Mapping, Sequence
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
-from ttmap.batch import MediumSpec, TaskSummary, check_executor
+from ttmap.jobs.batch import TaskSummary
+from ttmap.tasks import MediumSpec, check_executor
 from ttmap.errors import InputDataError
 from ttmap.physics.scaling import SCALING_RELATIONS
 from ttmap.scenario import ScenarioFile, scenario_tasks
@@ -71,7 +72,7 @@ def run_scenario_file(
         envelope, difference rasters and ``run.json`` are derived from the
         rasters and rebuilt on every run.
     progress : callable, optional
-        Passed to :func:`ttmap.batch.run_tasks`.
+        Passed to :func:`ttmap.jobs.batch.run_tasks`.
     command_line : str
         Recorded in ``run.json``.
 
@@ -90,7 +91,7 @@ def run_scenario_file(
     import json
     import time
 
-    from ttmap.batch import run_tasks
+    from ttmap.jobs.batch import run_tasks
     from ttmap.io.atomic import atomic_output, check_writable
 
     t_start = time.perf_counter()
@@ -204,7 +205,7 @@ def _scenario_record(
 ) -> dict[str, Any]:
     """The run record of a scenario run (written as ``run.json``); built here and only here."""
     from ttmap.io.raster import file_sha256
-    from ttmap.mapjob import software_versions
+    from ttmap.jobs.record import software_versions
     from ttmap.products.cautions import CAUTION_SHORT
 
     def _file(path: str | None) -> dict[str, Any] | None:

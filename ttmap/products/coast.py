@@ -808,7 +808,7 @@ def coast_sld(
     True
     """
     from ttmap.products.palette import check_hex_colors
-    from ttmap.products.styles import _css, _default_abstract, _document, _num, _serialise, _sub
+    from ttmap.products.styles import default_abstract, sld_css, sld_document, sld_element, sld_number, sld_serialise
 
     colors = check_hex_colors(list(colors_hex))
     rows = list(classes)
@@ -826,30 +826,30 @@ def coast_sld(
             )
         seen.add(float(lo))
 
-    root, fts = _document(layer_name, title, _default_abstract() if abstract is None else abstract)
+    root, fts = sld_document(layer_name, title, default_abstract() if abstract is None else abstract)
 
     def stroke(rule: Any, color: str, dash: str | None = None) -> None:
-        sym = _sub(rule, "LineSymbolizer")
-        st = _sub(sym, "Stroke")
-        _css(st, "stroke", color)
-        _css(st, "stroke-width", _num(line_width))
-        _css(st, "stroke-linecap", "round")
-        _css(st, "stroke-linejoin", "round")
+        sym = sld_element(rule, "LineSymbolizer")
+        st = sld_element(sym, "Stroke")
+        sld_css(st, "stroke", color)
+        sld_css(st, "stroke-width", sld_number(line_width))
+        sld_css(st, "stroke-linecap", "round")
+        sld_css(st, "stroke-linejoin", "round")
         if dash:
-            _css(st, "stroke-dasharray", dash)
+            sld_css(st, "stroke-dasharray", dash)
 
     for (lo, _, label), color in zip(rows, colors, strict=True):
-        rule = _sub(fts, "Rule")
-        _sub(rule, "Name", f"coast_{_num(lo)}")
-        _sub(rule, "Title", str(label))
-        flt = _sub(rule, "ogc:Filter")
-        eq = _sub(flt, "ogc:PropertyIsEqualTo")
-        _sub(eq, "ogc:PropertyName", attribute)
-        _sub(eq, "ogc:Literal", _num(lo))
+        rule = sld_element(fts, "Rule")
+        sld_element(rule, "Name", f"coast_{sld_number(lo)}")
+        sld_element(rule, "Title", str(label))
+        flt = sld_element(rule, "ogc:Filter")
+        eq = sld_element(flt, "ogc:PropertyIsEqualTo")
+        sld_element(eq, "ogc:PropertyName", attribute)
+        sld_element(eq, "ogc:Literal", sld_number(lo))
         stroke(rule, color)
-    rule = _sub(fts, "Rule")
-    _sub(rule, "Name", "coast_unreached")
-    _sub(rule, "Title", UNREACHED_LABEL)
-    _sub(rule, "ElseFilter")
-    stroke(rule, _UNREACHED_COLOR, dash=f"{_num(2 * line_width)} {_num(1.5 * line_width)}")
-    return _serialise(root)
+    rule = sld_element(fts, "Rule")
+    sld_element(rule, "Name", "coast_unreached")
+    sld_element(rule, "Title", UNREACHED_LABEL)
+    sld_element(rule, "ElseFilter")
+    stroke(rule, _UNREACHED_COLOR, dash=f"{sld_number(2 * line_width)} {sld_number(1.5 * line_width)}")
+    return sld_serialise(root)

@@ -69,7 +69,7 @@ from ttmap.io.vector import VectorLayer
 from ttmap.products.budget import warning_budget
 from ttmap.defaults import NOTIFICATION_DELAY_MIN, PREPARATION_MIN, WALKING_SPEED_M_S, LITTLE_MARGIN_MIN
 from ttmap.products.cautions import CAUTION_SHORT
-from ttmap.sources import _nearest_open_water
+from ttmap.sources import nearest_open_water
 from ttmap.traveltime import TravelTimeResult
 
 __all__ = [
@@ -272,7 +272,7 @@ def snap_sites(
         if mask[row, col]:
             status, moved = SNAP_OK, 0.0
         else:
-            found = _nearest_open_water(grid, mask, float(x), float(y), radius)
+            found = nearest_open_water(grid, mask, float(x), float(y), radius)
             if found is None:
                 out.append(
                     SnappedSite(

@@ -41,6 +41,12 @@ __all__ = [
     "bands_sld",
     "lines_sld",
     "write_sld",
+    "sld_document",
+    "sld_element",
+    "sld_css",
+    "sld_number",
+    "sld_serialise",
+    "default_abstract",
 ]
 
 SLD_NAMESPACE = "http://www.opengis.net/sld"
@@ -60,7 +66,7 @@ _BAND_STROKE = "#404040"
 _HALO_COLOR = "#ffffff"
 
 
-def _num(value: float) -> str:
+def sld_number(value: float) -> str:
     """Shortest plain text for a number: ``10`` for 10.0, ``7.5`` for 7.5."""
     v = float(value)
     if v.is_integer() and abs(v) < 1e15:
@@ -74,15 +80,17 @@ def _label(minutes: float) -> str:
     return format_minutes_label(minutes)
 
 
-def _sub(parent: ET.Element, tag: str, text: str | None = None, **attrib: str) -> ET.Element:
+def sld_element(parent: ET.Element, tag: str, text: str | None = None, **attrib: str) -> ET.Element:
+    """A child element ``tag`` of ``parent`` with optional text and attributes."""
     el = ET.SubElement(parent, tag, attrib)
     if text is not None:
         el.text = text
     return el
 
 
-def _css(parent: ET.Element, name: str, value: str) -> None:
-    _sub(parent, "CssParameter", value, name=name)
+def sld_css(parent: ET.Element, name: str, value: str) -> None:
+    """A ``CssParameter`` child (``fill``, ``stroke``, ...) of a symbolizer element."""
+    sld_element(parent, "CssParameter", value, name=name)
 
 
 def _check_name(what: str, value: str) -> str:
@@ -91,7 +99,7 @@ def _check_name(what: str, value: str) -> str:
     return value
 
 
-def _document(layer_name: str, title: str, abstract: str | None) -> tuple[ET.Element, ET.Element]:
+def sld_document(layer_name: str, title: str, abstract: str | None) -> tuple[ET.Element, ET.Element]:
     """Root element and the FeatureTypeStyle to fill with rules."""
     _check_name("layer_name", layer_name)
     root = ET.Element(
@@ -105,23 +113,25 @@ def _document(layer_name: str, title: str, abstract: str | None) -> tuple[ET.Ele
             "xsi:schemaLocation": f"{SLD_NAMESPACE} {_SCHEMA}",
         },
     )
-    layer = _sub(root, "NamedLayer")
-    _sub(layer, "Name", layer_name)
-    style = _sub(layer, "UserStyle")
-    _sub(style, "Name", layer_name)
-    _sub(style, "Title", title)
+    layer = sld_element(root, "NamedLayer")
+    sld_element(layer, "Name", layer_name)
+    style = sld_element(layer, "UserStyle")
+    sld_element(style, "Name", layer_name)
+    sld_element(style, "Title", title)
     if abstract:
-        _sub(style, "Abstract", abstract)
-    fts = _sub(style, "FeatureTypeStyle")
+        sld_element(style, "Abstract", abstract)
+    fts = sld_element(style, "FeatureTypeStyle")
     return root, fts
 
 
-def _serialise(root: ET.Element) -> str:
+def sld_serialise(root: ET.Element) -> str:
+    """The SLD document as indented UTF-8 XML text with its declaration."""
     ET.indent(root, space="  ")
     return '<?xml version="1.0" encoding="UTF-8"?>\n' + ET.tostring(root, encoding="unicode") + "\n"
 
 
-def _default_abstract() -> str:
+def default_abstract() -> str:
+    """The abstract every style carries unless given one: the short caution."""
     from ttmap.products.cautions import CAUTION_SHORT
 
     return CAUTION_SHORT
@@ -199,38 +209,38 @@ def raster_sld(
             "pass the raster's nodata value (e.g. -9999)"
         )
 
-    root, fts = _document(layer_name, title, _default_abstract() if abstract is None else abstract)
-    rule = _sub(fts, "Rule")
-    _sub(rule, "Name", "arrival_minutes")
-    _sub(rule, "Title", title)
-    symbolizer = _sub(rule, "RasterSymbolizer")
-    _sub(symbolizer, "Opacity", "1.0")
-    cmap = _sub(symbolizer, "ColorMap")
+    root, fts = sld_document(layer_name, title, default_abstract() if abstract is None else abstract)
+    rule = sld_element(fts, "Rule")
+    sld_element(rule, "Name", "arrival_minutes")
+    sld_element(rule, "Title", title)
+    symbolizer = sld_element(rule, "RasterSymbolizer")
+    sld_element(symbolizer, "Opacity", "1.0")
+    cmap = sld_element(symbolizer, "ColorMap")
     if color_map_type == "ramp":
-        _sub(
+        sld_element(
             cmap,
             "ColorMapEntry",
             color="#000000",
-            quantity=_num(nodata),
+            quantity=sld_number(nodata),
             opacity="0",
             label="no data",
         )
         for level, color in zip(levels, colors, strict=True):
-            _sub(
+            sld_element(
                 cmap,
                 "ColorMapEntry",
                 color=color,
-                quantity=_num(level),
+                quantity=sld_number(level),
                 opacity="1",
                 label=_label(level),
             )
     else:
         cmap.set("type", "intervals")
-        _sub(
+        sld_element(
             cmap,
             "ColorMapEntry",
             color="#000000",
-            quantity=_num(levels[0]),
+            quantity=sld_number(levels[0]),
             opacity="0",
             label="no data",
         )
@@ -241,8 +251,8 @@ def raster_sld(
                 if i < len(levels) - 1
                 else f"{_label(level)} and later"
             )
-            _sub(cmap, "ColorMapEntry", color=color, quantity=_num(upper), opacity="1", label=text)
-    return _serialise(root)
+            sld_element(cmap, "ColorMapEntry", color=color, quantity=sld_number(upper), opacity="1", label=text)
+    return sld_serialise(root)
 
 
 def bands_sld(
@@ -309,23 +319,23 @@ def bands_sld(
         if hi is not None and not float(hi) > float(lo):
             raise InputDataError(f"band ({lo!r}, {hi!r}) has its upper bound not above its lower")
 
-    root, fts = _document(layer_name, title, _default_abstract() if abstract is None else abstract)
+    root, fts = sld_document(layer_name, title, default_abstract() if abstract is None else abstract)
     for (lo, _, label), color in zip(rows, colors, strict=True):
-        rule = _sub(fts, "Rule")
-        _sub(rule, "Name", f"band_{_num(lo)}")
-        _sub(rule, "Title", str(label))
-        flt = _sub(rule, "ogc:Filter")
-        eq = _sub(flt, "ogc:PropertyIsEqualTo")
-        _sub(eq, "ogc:PropertyName", attribute)
-        _sub(eq, "ogc:Literal", _num(lo))
-        sym = _sub(rule, "PolygonSymbolizer")
-        fill = _sub(sym, "Fill")
-        _css(fill, "fill", color)
-        _css(fill, "fill-opacity", _num(fill_opacity))
-        stroke = _sub(sym, "Stroke")
-        _css(stroke, "stroke", _BAND_STROKE)
-        _css(stroke, "stroke-width", "0.3")
-    return _serialise(root)
+        rule = sld_element(fts, "Rule")
+        sld_element(rule, "Name", f"band_{sld_number(lo)}")
+        sld_element(rule, "Title", str(label))
+        flt = sld_element(rule, "ogc:Filter")
+        eq = sld_element(flt, "ogc:PropertyIsEqualTo")
+        sld_element(eq, "ogc:PropertyName", attribute)
+        sld_element(eq, "ogc:Literal", sld_number(lo))
+        sym = sld_element(rule, "PolygonSymbolizer")
+        fill = sld_element(sym, "Fill")
+        sld_css(fill, "fill", color)
+        sld_css(fill, "fill-opacity", sld_number(fill_opacity))
+        stroke = sld_element(sym, "Stroke")
+        sld_css(stroke, "stroke", _BAND_STROKE)
+        sld_css(stroke, "stroke-width", "0.3")
+    return sld_serialise(root)
 
 
 def lines_sld(
@@ -372,27 +382,27 @@ def lines_sld(
         raise InputDataError(
             f"line_width {line_width!r} and font_size {font_size!r} must be > 0 pixels"
         )
-    root, fts = _document(layer_name, title, _default_abstract() if abstract is None else abstract)
-    rule = _sub(fts, "Rule")
-    _sub(rule, "Name", "isochrone")
-    _sub(rule, "Title", title)
-    line = _sub(rule, "LineSymbolizer")
-    stroke = _sub(line, "Stroke")
-    _css(stroke, "stroke", color)
-    _css(stroke, "stroke-width", _num(line_width))
-    text = _sub(rule, "TextSymbolizer")
-    label = _sub(text, "Label")
-    _sub(label, "ogc:PropertyName", label_attribute)
-    font = _sub(text, "Font")
-    _css(font, "font-family", "sans-serif")
-    _css(font, "font-size", _num(font_size))
-    placement = _sub(_sub(text, "LabelPlacement"), "LinePlacement")
-    _sub(placement, "PerpendicularOffset", "0")
-    halo = _sub(text, "Halo")
-    _sub(halo, "Radius", "1")
-    _css(_sub(halo, "Fill"), "fill", _HALO_COLOR)
-    _css(_sub(text, "Fill"), "fill", color)
-    return _serialise(root)
+    root, fts = sld_document(layer_name, title, default_abstract() if abstract is None else abstract)
+    rule = sld_element(fts, "Rule")
+    sld_element(rule, "Name", "isochrone")
+    sld_element(rule, "Title", title)
+    line = sld_element(rule, "LineSymbolizer")
+    stroke = sld_element(line, "Stroke")
+    sld_css(stroke, "stroke", color)
+    sld_css(stroke, "stroke-width", sld_number(line_width))
+    text = sld_element(rule, "TextSymbolizer")
+    label = sld_element(text, "Label")
+    sld_element(label, "ogc:PropertyName", label_attribute)
+    font = sld_element(text, "Font")
+    sld_css(font, "font-family", "sans-serif")
+    sld_css(font, "font-size", sld_number(font_size))
+    placement = sld_element(sld_element(text, "LabelPlacement"), "LinePlacement")
+    sld_element(placement, "PerpendicularOffset", "0")
+    halo = sld_element(text, "Halo")
+    sld_element(halo, "Radius", "1")
+    sld_css(sld_element(halo, "Fill"), "fill", _HALO_COLOR)
+    sld_css(sld_element(text, "Fill"), "fill", color)
+    return sld_serialise(root)
 
 
 def write_sld(path: str | os.PathLike[str], xml_text: str, *, overwrite: bool = False) -> None:

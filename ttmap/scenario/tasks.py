@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import re
 
-from ttmap.batch import MediumSpec, SolveTask
+from ttmap.tasks import MediumSpec, SolveTask
 from ttmap.physics.scaling import SCALING_RELATIONS
 from ttmap.scenario.schema import ScenarioFile
 

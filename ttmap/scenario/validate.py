@@ -27,7 +27,7 @@ from collections.abc import Mapping, Sequence
 from pathlib import Path
 from typing import Any
 
-from ttmap.batch import check_executor
+from ttmap.tasks import check_executor
 from ttmap.defaults import EARTH_MODELS, EXECUTORS, FLOOR_DEPTH_M, MAX_TRENCH_RUPTURES, PERIOD_SPEEDS, SCALING_RELATION
 from ttmap.errors import InputDataError, TtmapError
 from ttmap.physics.scaling import MW_MAX, MW_MIN, SCALING_RELATIONS, rupture_size_km

@@ -69,118 +69,29 @@ import time
 import warnings
 from collections import Counter, OrderedDict
 from collections.abc import Callable, Mapping, Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
-from ttmap.defaults import FLOOR_DEPTH_M, CONNECT_TIMEOUT_S, EXECUTORS, MEDIA_PER_WORKER
+from ttmap.defaults import CONNECT_TIMEOUT_S, MEDIA_PER_WORKER
 from ttmap.errors import InputDataError, OutputExistsError, TtmapError, TtmapWarning
 from ttmap.sources import Source
+from ttmap.tasks import MediumSpec, SolveTask, check_executor
 
 if TYPE_CHECKING:
     from ttmap.io.raster import Bathymetry
     from ttmap.traveltime import Medium
 
 __all__ = [
-    "MediumSpec",
-    "SolveTask",
     "TaskSummary",
     "run_tasks",
     "task_output_paths",
-    "check_executor",
 ]
 
 _NAME_RE = re.compile(r"^[A-Za-z0-9_.-]+$")
-_ADDRESS_RE = re.compile(r"^([a-z][a-z0-9+.-]*://)?[^\s/:]+:\d{1,5}$|^[a-z][a-z0-9+.-]*://\S+$")
 _RECORD_VERSION = 1
 
 ProgressFn = Callable[[int, int, str], None]
-
-
-@dataclass(frozen=True)
-class MediumSpec:
-    """How to build the speed field, identically on every worker.
-
-    Attributes
-    ----------
-    bathymetry : str
-        Path of the raster (every worker must be able to read it).
-    band, depth_positive, window, window_crs, coarsen
-        Passed to :func:`ttmap.io.raster.read_bathymetry`.
-    floor_depth_m, far_field, earth
-        Passed to :func:`ttmap.traveltime.prepare_medium`.
-    """
-
-    bathymetry: str
-    band: int | None = None
-    depth_positive: bool = False
-    window: tuple[float, float, float, float] | None = None
-    window_crs: str | None = "EPSG:4326"
-    coarsen: int = 1
-    floor_depth_m: float = FLOOR_DEPTH_M
-    far_field: bool = False
-    earth: str = "wgs84"
-
-    def __post_init__(self) -> None:
-        # A list window (from TOML or JSON) would make the spec unhashable.
-        if self.window is not None:
-            try:
-                window = tuple(float(v) for v in self.window)
-            except (TypeError, ValueError) as err:
-                raise InputDataError(
-                    f"window {self.window!r} is not four numbers; give (west, south, east, north)"
-                ) from err
-            object.__setattr__(self, "window", window)
-
-    def describe(self) -> dict[str, Any]:
-        """JSON-ready dictionary of the fields."""
-        d = dataclasses.asdict(self)
-        d["window"] = None if self.window is None else list(self.window)
-        return d
-
-
-@dataclass(frozen=True)
-class SolveTask:
-    """One solve.
-
-    Attributes
-    ----------
-    name : str
-        Unique within a run; letters, digits, ``_``, ``-`` and ``.`` only
-        (it names the output files).
-    source : Source
-    mode : {"long-wave", "group", "phase"}
-    period_s : float or None
-    max_time_s, snap_radius_m : float or None
-    kind : str
-        "scenario" or "site" (site-centred map), for reports.
-    meta : dict
-        Free JSON-ready details carried into the summary (scenario name, ...).
-    """
-
-    name: str
-    source: Source
-    mode: str = "long-wave"
-    period_s: float | None = None
-    max_time_s: float | None = None
-    snap_radius_m: float | None = None
-    kind: str = "scenario"
-    meta: dict[str, Any] = field(default_factory=dict)
-
-    def describe(self) -> dict[str, Any]:
-        """JSON-ready description (what the task's record calls its inputs)."""
-        source = dict(self.source.describe())
-        source["geometry_wkt"] = self.source.geometry.wkt
-        return {
-            "name": self.name,
-            "kind": self.kind,
-            "mode": self.mode,
-            "period_s": self.period_s,
-            "max_time_s": self.max_time_s,
-            "snap_radius_m": self.snap_radius_m,
-            "source": source,
-            "meta": self.meta,
-        }
 
 
 @dataclass(frozen=True)
@@ -237,24 +148,6 @@ def task_output_paths(name: str, out_dir: str | os.PathLike[str]) -> tuple[Path,
     """
     out = Path(out_dir)
     return out / f"arrival_{name}.tif", out / f"{name}.task.json"
-
-
-def check_executor(value: Any) -> str | None:
-    """None if ``value`` names an executor, else the reason and the fix.
-
-    Examples
-    --------
-    >>> check_executor("local") is None, check_executor("tcp://127.0.0.1:8786") is None
-    (True, True)
-    >>> check_executor("paralel")
-    "executor 'paralel' is neither 'serial', 'local' nor a scheduler address such as 'tcp://10.0.0.5:8786'"
-    """
-    if isinstance(value, str) and (value in EXECUTORS or _ADDRESS_RE.match(value)):
-        return None
-    return (
-        f"executor {value!r} is neither 'serial', 'local' nor a scheduler address such as "
-        "'tcp://10.0.0.5:8786'"
-    )
 
 
 def _json_default(value: Any) -> Any:

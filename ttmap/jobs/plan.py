@@ -1,0 +1,323 @@
+"""Output-name plans: every file a job writes, named in one place.
+
+Each job asks one function here for the names of its outputs. The same names
+serve twice: the whole list is checked before any work (existing outputs are
+refused unless ``overwrite`` is set), and the writers take each file's name
+from the same plan, so the two can never disagree.
+
+- :func:`product_set_names` - one product set of the map job
+  (``arrival_<set>.tif``, isochrones, styles, maps, coastal layer);
+- :func:`site_table_names` - the map job's site table and timeline;
+- :func:`site_names` - one site of the site-map job;
+- :func:`combined_names` - the site-map job's several-site products;
+- :data:`RUN_RECORD_NAME` - the run record every job writes last.
+
+The module imports nothing heavy.
+"""
+
+from __future__ import annotations
+
+import os
+import re
+import unicodedata
+from collections.abc import Iterable, Sequence
+from dataclasses import dataclass, field
+from pathlib import Path
+
+from ttmap.defaults import VECTOR_FORMATS
+from ttmap.errors import InputDataError
+
+__all__ = [
+    "RUN_RECORD_NAME",
+    "ISOCHRONE_LAYERS",
+    "ProductSetNames",
+    "SiteNames",
+    "CombinedNames",
+    "SiteTableNames",
+    "product_set_names",
+    "site_table_names",
+    "site_names",
+    "combined_names",
+    "site_file_stem",
+    "check_site_stems",
+    "refuse_outputs_up_front",
+]
+
+#: File name of the run record, written last in the output folder.
+RUN_RECORD_NAME: str = "run.json"
+
+#: Layer names of every isochrone file (GeoPackage layers; Shapefile and
+#: GeoJSON outputs get one file per layer, named ``<stem>_<layer>``).
+ISOCHRONE_LAYERS: tuple[str, str] = ("isochrone_lines", "isochrone_bands")
+
+
+def _layer_files(target: Path, layers: Sequence[str]) -> list[Path]:
+    """The files a multi-layer write to ``target`` creates."""
+    from ttmap.io.vector import vector_output_paths
+
+    return vector_output_paths(target, layers)
+
+
+@dataclass(frozen=True)
+class _Isochrones:
+    """Names of one isochrone output: the vector targets (one per format) and their styles."""
+
+    targets: dict[str, Path]
+    lines_sld: Path
+    bands_sld: Path
+    bands_shp_sld: Path | None
+    #: Layer name a Shapefile reader gives the bands (the SLD names it).
+    shp_bands_layer: str
+
+    def files(self) -> list[Path]:
+        out: list[Path] = []
+        for target in self.targets.values():
+            out += _layer_files(target, ISOCHRONE_LAYERS)
+        out += [self.lines_sld, self.bands_sld]
+        if self.bands_shp_sld is not None:
+            out.append(self.bands_shp_sld)
+        return out
+
+
+def _isochrones(out: Path, stem: str, vector_formats: Sequence[str]) -> _Isochrones:
+    return _Isochrones(
+        targets={fmt: out / f"{stem}{VECTOR_FORMATS[fmt]}" for fmt in vector_formats},
+        lines_sld=out / f"{stem}_lines.sld",
+        bands_sld=out / f"{stem}_bands.sld",
+        bands_shp_sld=out / f"{stem}_bands_shp.sld" if "shp" in vector_formats else None,
+        shp_bands_layer=f"{stem}_isochrone_bands",
+    )
+
+
+@dataclass(frozen=True)
+class ProductSetNames:
+    """The files of one product set of the map job (``<set>`` is its key)."""
+
+    key: str
+    arrival_tif: Path
+    arrival_sld: Path
+    isochrones: _Isochrones
+    maps: dict[str, Path]
+    coast: dict[str, Path] = field(default_factory=dict)
+    coast_sld: Path | None = None
+
+    def files(self) -> list[Path]:
+        """Every file, in writing order."""
+        out = [self.arrival_tif, self.arrival_sld, *self.isochrones.files()]
+        if self.coast_sld is not None:
+            out += [*self.coast.values(), self.coast_sld]
+        out += list(self.maps.values())
+        return out
+
+
+def product_set_names(out_dir: str | os.PathLike[str], key: str, *, vector_formats: Sequence[str],
+                      map_formats: Sequence[str], coast: bool) -> ProductSetNames:
+    """Names of one map-job product set.
+
+    Examples
+    --------
+    >>> [p.name for p in product_set_names("out", "front", vector_formats=["gpkg"],
+    ...                                    map_formats=["png"], coast=True).files()]
+    ... # doctest: +NORMALIZE_WHITESPACE
+    ['arrival_front.tif', 'arrival_front.sld', 'isochrones_front.gpkg', 'isochrones_front_lines.sld',
+     'isochrones_front_bands.sld', 'coast_front.gpkg', 'coast_front.sld', 'map_front.png']
+    """
+    out = Path(out_dir)
+    return ProductSetNames(
+        key=key,
+        arrival_tif=out / f"arrival_{key}.tif",
+        arrival_sld=out / f"arrival_{key}.sld",
+        isochrones=_isochrones(out, f"isochrones_{key}", vector_formats),
+        maps={fmt: out / f"map_{key}.{fmt}" for fmt in map_formats},
+        coast={fmt: out / f"coast_{key}{VECTOR_FORMATS[fmt]}" for fmt in vector_formats} if coast else {},
+        coast_sld=out / f"coast_{key}.sld" if coast else None,
+    )
+
+
+@dataclass(frozen=True)
+class SiteTableNames:
+    """The map job's site files: table (CSV, GeoPackage, GeoJSON on request) and timeline."""
+
+    csv: Path
+    layers: tuple[Path, ...]
+    timelines: dict[str, Path]
+
+    def files(self) -> list[Path]:
+        return [self.csv, *self.layers, *self.timelines.values()]
+
+
+def site_table_names(out_dir: str | os.PathLike[str], *, vector_formats: Sequence[str],
+                     map_formats: Sequence[str]) -> SiteTableNames:
+    """Names of the site table files (the timeline is always a PNG, and a PDF on request).
+
+    >>> [p.name for p in site_table_names("out", vector_formats=["gpkg"], map_formats=["png"]).files()]
+    ['sites.csv', 'sites.gpkg', 'timeline.png']
+    """
+    out = Path(out_dir)
+    layers = [out / "sites.gpkg"]
+    if "geojson" in vector_formats:
+        layers.append(out / "sites.geojson")
+    timelines = {"png": out / "timeline.png"}
+    if "pdf" in map_formats:
+        timelines["pdf"] = out / "timeline.pdf"
+    return SiteTableNames(out / "sites.csv", tuple(layers), timelines)
+
+
+def site_file_stem(name: str) -> str:
+    """A file-name-safe ASCII stem for a site name.
+
+    Accents are dropped, any run of other characters becomes ``_``.
+
+    Raises
+    ------
+    InputDataError
+        The name leaves no letter or digit.
+
+    Examples
+    --------
+    >>> site_file_stem("Port Ōrua (north wharf)")
+    'Port_Orua_north_wharf'
+    """
+    text = unicodedata.normalize("NFKD", str(name)).encode("ascii", "ignore").decode("ascii")
+    stem = re.sub(r"[^A-Za-z0-9-]+", "_", text).strip("_-")
+    if not stem:
+        raise InputDataError(
+            f"site name {name!r} has no letter or digit to name its files by; rename the site"
+        )
+    return stem
+
+
+def check_site_stems(names: Iterable[str]) -> None:
+    """Refuse sites whose file names would collide (compared ignoring case).
+
+    >>> check_site_stems(["Bay A", "bay-a"])
+    >>> check_site_stems(["Bay A", "bay a"])
+    Traceback (most recent call last):
+    ...
+    ttmap.errors.InputDataError: sites 'Bay A' and 'bay a' would both write files named 'bay_a' \
+(names are reduced to letters, digits, '-' and '_'); rename one of them
+    """
+    seen: dict[str, str] = {}
+    for name in names:
+        stem = site_file_stem(name)
+        key = stem.lower()
+        if key in seen:
+            raise InputDataError(
+                f"sites {seen[key]!r} and {name!r} would both write files named '{stem}' "
+                "(names are reduced to letters, digits, '-' and '_'); rename one of them"
+            )
+        seen[key] = name
+
+
+@dataclass(frozen=True)
+class SiteNames:
+    """The files of one site of the site-map job (``<site>`` is :func:`site_file_stem` of its name)."""
+
+    stem: str
+    site_tif: Path
+    site_sld: Path
+    left_tif: Path
+    left_sld: Path
+    isochrones: _Isochrones
+    maps: dict[str, Path]
+
+    def files(self) -> list[Path]:
+        """Every file, in writing order."""
+        return [self.site_tif, self.site_sld, self.left_tif, self.left_sld, *self.isochrones.files(),
+                *self.maps.values()]
+
+
+def site_names(out_dir: str | os.PathLike[str], name: str, *, vector_formats: Sequence[str] = ("gpkg",),
+               map_formats: Sequence[str] = ("png",)) -> SiteNames:
+    """Names of one site's site-centred products.
+
+    Examples
+    --------
+    >>> [p.name for p in site_names("out", "Bay A").files()]  # doctest: +NORMALIZE_WHITESPACE
+    ['site_centred_Bay_A.tif', 'site_centred_Bay_A.sld', 'minutes_left_Bay_A.tif',
+     'minutes_left_Bay_A.sld', 'isochrones_site_Bay_A.gpkg', 'isochrones_site_Bay_A_lines.sld',
+     'isochrones_site_Bay_A_bands.sld', 'map_site_Bay_A.png']
+    """
+    out = Path(out_dir)
+    stem = site_file_stem(name)
+    return SiteNames(
+        stem=stem,
+        site_tif=out / f"site_centred_{stem}.tif",
+        site_sld=out / f"site_centred_{stem}.sld",
+        left_tif=out / f"minutes_left_{stem}.tif",
+        left_sld=out / f"minutes_left_{stem}.sld",
+        isochrones=_isochrones(out, f"isochrones_site_{stem}", vector_formats),
+        maps={fmt: out / f"map_site_{stem}.{fmt}" for fmt in map_formats},
+    )
+
+
+@dataclass(frozen=True)
+class CombinedNames:
+    """The several-site products of the site-map job."""
+
+    min_tif: Path
+    min_sld: Path
+    first_tif: Path
+    first_sld: Path
+    first_json: Path
+
+    def files(self) -> list[Path]:
+        """Every file, in writing order.
+
+        >>> [p.name for p in combined_names("out").files()]  # doctest: +NORMALIZE_WHITESPACE
+        ['site_centred_min.tif', 'site_centred_min.sld', 'site_centred_first_site.tif',
+         'site_centred_first_site.sld', 'site_centred_first_site.json']
+        """
+        return [self.min_tif, self.min_sld, self.first_tif, self.first_sld, self.first_json]
+
+
+def combined_names(out_dir: str | os.PathLike[str]) -> CombinedNames:
+    """Names of the several-site products."""
+    out = Path(out_dir)
+    return CombinedNames(
+        min_tif=out / "site_centred_min.tif",
+        min_sld=out / "site_centred_min.sld",
+        first_tif=out / "site_centred_first_site.tif",
+        first_sld=out / "site_centred_first_site.sld",
+        first_json=out / "site_centred_first_site.json",
+    )
+
+
+def refuse_outputs_up_front(out_dir: str | os.PathLike[str], planned: Sequence[Path], overwrite: bool) -> Path:
+    """Refuse existing outputs and unwritable places before any work.
+
+    The folder itself is created only when the first product is written, so
+    that a run refused for its input (missing file, source on land) leaves
+    nothing behind.
+
+    Raises
+    ------
+    InputDataError
+        ``out_dir`` is a file, or cannot be created.
+    OutputExistsError
+        A planned file exists and ``overwrite`` is False.
+    """
+    from ttmap.io.atomic import check_writable
+
+    out = Path(out_dir)
+    if out.exists() and not out.is_dir():
+        raise InputDataError(f"output folder {str(out)!r} is a file; give a folder name")
+    if out.is_dir():
+        check_writable(planned, overwrite)
+    else:
+        _check_creatable(out)
+    return out
+
+
+def _check_creatable(out: Path) -> None:
+    """Refuse an output folder that cannot be created (its nearest existing parent is not writable)."""
+    parent = out.absolute().parent
+    while not parent.exists() and parent != parent.parent:
+        parent = parent.parent
+    if not parent.is_dir():
+        raise InputDataError(f"output folder {str(out)!r} cannot be created: {str(parent)!r} is a file")
+    if not os.access(parent, os.W_OK | os.X_OK):
+        raise InputDataError(
+            f"output folder {str(out)!r} cannot be created in {str(parent)!r} (not writable); "
+            "choose another --out folder"
+        )
