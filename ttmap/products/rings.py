@@ -446,7 +446,9 @@ def valid_polygons(
     --------
     Two squares joined at one corner, traced as one ring (a figure eight):
 
-    >>> ring = np.array([[0, 0], [1, 0], [1, 1], [2, 1], [2, 2], [1, 2], [1, 1], [0, 1], [0, 0]], float)
+    >>> ring = np.array(
+    ...     [[0, 0], [1, 0], [1, 1], [2, 1], [2, 2], [1, 2], [1, 1], [0, 1], [0, 0]], float
+    ... )
     >>> polygons = valid_polygons(ring, np.array([0, 9]), np.array([0, 1]))
     >>> [(p.is_valid, p.area) for p in polygons]
     [(True, 1.0), (True, 1.0)]
