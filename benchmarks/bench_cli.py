@@ -42,8 +42,8 @@ This process stays small (the arrays live in helper processes) so the
 children's ru_maxrss, a high-water mark that Linux carries over from the
 parent at exec(), is their own.
 
-Targets: ``ttmap --help`` under 0.3 s; CLI / raw within 2x for 2000 x 2000 projected, within 1.5x for
-7200 x 4800 geographic. The script prints figures; it never asserts.
+Targets: ``ttmap --help`` under 0.3 s; CLI / raw within 2x for 2000 x 2000
+projected, within 1.5x for 7200 x 4800 geographic. The script prints figures; it never asserts.
 """
 
 from __future__ import annotations
@@ -409,7 +409,8 @@ def time_help(runs: int = HELP_RUNS) -> dict[str, Any]:
         _, status, usage = os.wait4(proc.pid, 0)
         wall = time.perf_counter() - t0
         if os.waitstatus_to_exitcode(status) != 0:
-            raise SystemExit(f"{code!r} failed: {proc.stderr.read().decode() if proc.stderr else ''}")
+            err = proc.stderr.read().decode() if proc.stderr else ""
+            raise SystemExit(f"{code!r} failed: {err}")
         if proc.stderr is not None:
             proc.stderr.close()
         return wall, usage.ru_utime + usage.ru_stime
