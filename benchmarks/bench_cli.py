@@ -7,7 +7,9 @@ Run from the repository root (ttmap need not be installed)::
     python benchmarks/bench_cli.py --coast rough    # cell-scale speckle coasts (the stress case)
     python benchmarks/bench_cli.py --write-stages   # also time the products one by one
 
-For each case the script
+First the script times ``ttmap --help`` in fresh interpreters (best and
+median of seven, beside the bare interpreter's start; goal under 0.3 s) and
+counts the modules ``import ttmap.cli.main`` loads. Then, for each case, it
 
 1. writes a test bathymetry GeoTIFF with rasterio into a temporary folder
    (float32 elevation, negative below sea level, tiled and DEFLATE-compressed;
@@ -40,8 +42,8 @@ This process stays small (the arrays live in helper processes) so the
 children's ru_maxrss, a high-water mark that Linux carries over from the
 parent at exec(), is their own.
 
-Targets: CLI / raw within 2x for 2000 x 2000 projected, within 1.5x for
-7200 x 4800 geographic. The script prints figures; it never asserts.
+Targets: ``ttmap --help`` under 0.3 s; CLI / raw within 2x for 2000 x 2000
+projected, within 1.5x for 7200 x 4800 geographic. The script prints figures; it never asserts.
 """
 
 from __future__ import annotations
@@ -347,10 +349,7 @@ def run_cli(tif: str, source_args: list[str], out_dir: Path, log_dir: Path) -> d
         "--out",
         str(out_dir),
     ]
-    env = dict(os.environ)
-    env["PYTHONPATH"] = str(ROOT) + (
-        os.pathsep + env["PYTHONPATH"] if env.get("PYTHONPATH") else ""
-    )
+    env = _child_env()
     log_dir.mkdir(parents=True, exist_ok=True)
     with open(log_dir / "stdout.txt", "wb") as so, open(log_dir / "stderr.txt", "wb") as se:
         t0 = time.perf_counter()
@@ -370,6 +369,71 @@ def run_cli(tif: str, source_args: list[str], out_dir: Path, log_dir: Path) -> d
         "files": len(record.get("files_written", [])),
         "summary": record.get("product_sets", {}).get("front", {}),
         "children_maxrss_mib": resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss / 1024.0,
+    }
+
+
+#: Runs of ``ttmap --help`` timed for the start-up figure (best and median printed).
+HELP_RUNS = 7
+
+#: Start-up goal for ``ttmap --help`` in a fresh process (issue 8), seconds.
+HELP_GOAL_S = 0.3
+
+
+def _child_env() -> dict[str, str]:
+    env = dict(os.environ)
+    env["PYTHONPATH"] = str(ROOT) + (
+        os.pathsep + env["PYTHONPATH"] if env.get("PYTHONPATH") else ""
+    )
+    return env
+
+
+def time_help(runs: int = HELP_RUNS) -> dict[str, Any]:
+    """Wall and CPU time of ``ttmap --help`` in fresh interpreters, and the modules it loads.
+
+    The command is what the ``ttmap`` console script runs (``cli()`` from
+    ``ttmap.cli.main``), started as ``python -c`` so that the source tree is
+    timed whether or not it is installed. The interpreter's own start is
+    timed too (``python -c pass``) and printed beside it, so the figure can be
+    read as "interpreter + ttmap".
+    """
+    env = _child_env()
+
+    def one(code: str) -> tuple[float, float]:
+        t0 = time.perf_counter()
+        proc = subprocess.Popen(
+            [sys.executable, "-c", code],
+            stdout=subprocess.DEVNULL,
+            stderr=subprocess.PIPE,
+            env=env,
+        )
+        _, status, usage = os.wait4(proc.pid, 0)
+        wall = time.perf_counter() - t0
+        if os.waitstatus_to_exitcode(status) != 0:
+            err = proc.stderr.read().decode() if proc.stderr else ""
+            raise SystemExit(f"{code!r} failed: {err}")
+        if proc.stderr is not None:
+            proc.stderr.close()
+        return wall, usage.ru_utime + usage.ru_stime
+
+    help_code = "import sys; sys.argv = ['ttmap', '--help']; from ttmap.cli.main import cli; cli()"
+    one(help_code)  # warm the file cache (byte code, shared libraries)
+    helps = sorted(one(help_code) for _ in range(runs))
+    bare = sorted(one("pass") for _ in range(runs))
+    count_code = (
+        "import sys; before = set(sys.modules); import ttmap.cli.main; "
+        "new = set(sys.modules) - before; "
+        "print(len([m for m in new if m == 'ttmap' or m.startswith('ttmap.')]), len(new))"
+    )
+    out = subprocess.run(
+        [sys.executable, "-c", count_code], capture_output=True, text=True, env=env, check=True
+    ).stdout.split()
+    return {
+        "best_s": helps[0][0],
+        "median_s": helps[len(helps) // 2][0],
+        "best_cpu_s": min(c for _, c in helps),
+        "python_best_s": bare[0][0],
+        "ttmap_modules": int(out[0]),
+        "all_modules": int(out[1]),
     }
 
 
@@ -446,6 +510,16 @@ def main() -> None:
         f"helper processes: '{ctx.get_start_method()}'"
     )
     print(f"  coastlines: {coast}" + (f" ({be.COAST_ROUGHNESS:g})" if coast == "rough" else ""))
+    helped = time_help()
+    print(
+        f"\n== ttmap --help, fresh process (best of {HELP_RUNS}) ==\n"
+        f"  {helped['best_s']:.3f} s wall (median {helped['median_s']:.3f} s, "
+        f"CPU {helped['best_cpu_s']:.3f} s; bare interpreter {helped['python_best_s']:.3f} s); "
+        f"goal < {HELP_GOAL_S} s: {'met' if helped['best_s'] < HELP_GOAL_S else 'NOT met'}\n"
+        f"  import ttmap.cli.main loads {helped['ttmap_modules']} ttmap modules, "
+        f"{helped['all_modules']} modules in all",
+        flush=True,
+    )
     cases = [dict(c, coast=coast) for c in (CASES[:1] if args.quick else CASES)]
     results = []
     tmp_obj = None
@@ -547,6 +621,10 @@ def main() -> None:
             tmp_obj.cleanup()
 
     print("\n== Summary ==")
+    print(
+        f"ttmap --help start-up: {helped['best_s']:.3f} s (goal < {HELP_GOAL_S} s); "
+        f"interpreter alone {helped['python_best_s']:.3f} s"
+    )
     print(
         f"{'case':<30} {'M cells':>7} {'CLI s':>7} {'raw s':>7} {'wall':>6} {'CLI CPU':>8} "
         f"{'raw CPU':>8} {'CPU':>6} {'target':>6} {'CLI MiB':>8} {'raw MiB':>8}"

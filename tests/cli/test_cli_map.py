@@ -567,7 +567,7 @@ def test_verbose_keeps_the_exception(run_cli, spec, tmp_path):
 
 
 def test_traceback_only_with_verbose(tmp_path):
-    """In a real process: one line by default, the traceback with -v (STYLE.md section 5)."""
+    """In a real process: one line by default, the traceback with -v (DEVELOPERS.md)."""
     code = "from ttmap.cli.main import cli; cli(prog_name='ttmap')"
     env = dict(os.environ, PYTHONPATH=str(REPO) + os.pathsep + os.environ.get("PYTHONPATH", ""))
     base = [sys.executable, "-c", code]

@@ -87,7 +87,8 @@ def test_check_demo_file(run_cli):
     assert f"{DEMO_TOML}: valid" in out
     assert "scenarios: 9 (2 written out, 7 generated along 1 trench(es))" in out
     assert "solves: 18 (9 fronts + 9 x 1 period(s))" in out
-    # Strasser et al. 2010, SRL 81(6):941-950, interface: Mw 8 -> 160 x 84 km (REFERENCE.md 5).
+    # Strasser et al. 2010, SRL 81(6):941-950, interface: Mw 8 -> 160 x 84 km
+    # (docs/references.md §5).
     assert "Mw 8 -> 160 x 84 km each (strasser2010-interface, Strasser et al. 2010)" in out
     assert f"outputs: {DEMO_DIR / 'demo_scenarios_out'}" in out
     assert "sites: 8 in" in out

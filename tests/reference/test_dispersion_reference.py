@@ -1,8 +1,11 @@
-"""Reference checks of ttmap.physics.dispersion against tables, exact roots and limits.
+"""Reference checks of ttmap.physics.dispersion against exact roots, published errors and limits.
 
-Tags used in the comments:
+Tags used in the comments (defined in docs/references.md):
 [S] read in the cited source; [C] computed (exact root, double precision);
 [from memory] not re-checked against the source; "common practice, no source".
+
+No value here is copied from a printed handbook table: the rows at the depths
+of Shore Protection Manual Table C-1 are computed (docs/references.md §1.1).
 """
 
 from __future__ import annotations
@@ -45,14 +48,17 @@ def _kh_brentq(y: float) -> float:
 
 
 # ---------------------------------------------------------------------------------
-# Shore Protection Manual (1984), Vol. II, Appendix C, Table C-1
-# "Functions of d/L for even increments of d/L0". Table C-1 tabulates d/L, tanh(kd)
-# (= C/C0 = L/L0), n and CG/C0 [S: table guide]. The row values below are [C]
-# (exact root); to memory they agree with the printed Table C-1 to 4 d.p.
-# [from memory].
+# Dispersion functions at the depths of a handbook table (docs/references.md §1.1).
+# Shore Protection Manual (1984), Vol. II, Appendix C, Table C-1, "Functions of d/L
+# for even increments of d/L0", tabulates d/L, tanh(kd) (= C/C0 = L/L0), n and
+# CG/C0 against d/L0 [S: the table's guide]. The printed row values were NOT read:
+# they are [from memory]. The rows below are [C]: an exact bracketed root of
+# x tanh x = 2 pi h/L0 (scipy brentq), then the formulas. That they agree with the
+# printed table to 4 d.p. is [from memory]. So this test checks ttmap's solver
+# against an independent computation, sampled where the handbook has rows.
 # ---------------------------------------------------------------------------------
 
-SPM_TABLE_C1 = [
+EXACT_ROWS_AT_TABLE_C1_DEPTHS = [
     # h/L0,  h/L,      tanh kh,  n,        cg/c0
     (0.001, 0.012629, 0.079184, 0.997907, 0.079018),
     (0.005, 0.028358, 0.176317, 0.989572, 0.174478),
@@ -67,17 +73,22 @@ SPM_TABLE_C1 = [
 ]
 
 
-@pytest.mark.parametrize(("h_over_l0", "h_over_l", "tanh_kh", "n", "cg_over_c0"), SPM_TABLE_C1)
-def test_shore_protection_manual_table_c1(h_over_l0, h_over_l, tanh_kh, n, cg_over_c0):
-    # Shore Protection Manual 1984, Vol. II, App. C, Table C-1; values [C], agreement
-    # with the printed table to 4 d.p. [from memory]. Tolerance 1e-4 absolute.
+@pytest.mark.parametrize(
+    ("h_over_l0", "h_over_l", "tanh_kh", "n", "cg_over_c0"), EXACT_ROWS_AT_TABLE_C1_DEPTHS
+)
+def test_dispersion_functions_match_exact_roots_at_table_c1_depths(
+    h_over_l0, h_over_l, tanh_kh, n, cg_over_c0
+):
+    # Rows [C] (exact root), at the d/L0 of Shore Protection Manual 1984 Table C-1;
+    # the printed table's values are [from memory], not checked here.
+    # Tolerance 1e-4 absolute (the rows are printed to 6 d.p.).
     depth_m = h_over_l0 * L0_M
     k = wavenumber_rad_m(depth_m, PERIOD_S)
     c = phase_speed_m_s(depth_m, PERIOD_S)
     cg = group_speed_m_s(depth_m, PERIOD_S)
     assert abs(depth_m * k / (2 * np.pi) - h_over_l) <= 1e-4
     assert abs(np.tanh(k * depth_m) - tanh_kh) <= 1e-4
-    assert abs(c / C0_M_S - tanh_kh) <= 1e-4  # Table C-1: tanh kd = C/C0
+    assert abs(c / C0_M_S - tanh_kh) <= 1e-4  # tanh kd = C/C0 (the table's guide [S])
     assert abs(cg / c - n) <= 1e-4
     assert abs(cg / C0_M_S - cg_over_c0) <= 1e-4
 
@@ -107,7 +118,7 @@ def test_newton_solution_matches_brentq(exact_kh):
 
 # ---------------------------------------------------------------------------------
 # Explicit approximations. Max relative error in k over y = 1e-4..1e3 and where it
-# occurs: [C] values from the project reference notes; the published stated errors
+# occurs: [C] values from docs/references.md §1.2; the published stated errors
 # differ (see each line).
 # ---------------------------------------------------------------------------------
 
@@ -149,7 +160,7 @@ def test_explicit_approximations_have_both_limits(func):
 
 # ---------------------------------------------------------------------------------
 # Limits. Textbook linear theory: deep water c = gT/(2 pi), n = 1/2; shallow water
-# c = cg = sqrt(g h) (project reference notes, section 2).
+# c = cg = sqrt(g h) (docs/references.md §1.3).
 # ---------------------------------------------------------------------------------
 
 
@@ -193,8 +204,8 @@ def test_shallow_water_second_order_terms():
 
 
 # ---------------------------------------------------------------------------------
-# Tsunami-band dispersion, c0 = sqrt(g h) here. All values [C] from the project
-# reference notes (exact root, g = 9.80665), printed to 4 d.p. (L to 0.1 km).
+# Tsunami-band dispersion, c0 = sqrt(g h) here. All values [C] from
+# docs/references.md §1.3 (exact root, g = 9.80665), printed to 4 d.p. (L to 0.1 km).
 # ---------------------------------------------------------------------------------
 
 TSUNAMI_BAND = [
@@ -226,7 +237,7 @@ def test_tsunami_band_similarity():
 
 
 def test_shallow_water_criterion_h_over_l_one_twentieth():
-    # At h/L = 1/20, c/sqrt(gh) = 0.9840 [C] (project reference notes).
+    # At h/L = 1/20, c/sqrt(gh) = 0.9840 [C] (docs/references.md §1.3).
     depth_m = 1000.0
     k = 2 * np.pi / (20 * depth_m)
     period_s = 2 * np.pi / np.sqrt(G_M_S2 * k * np.tanh(k * depth_m))
@@ -236,10 +247,10 @@ def test_shallow_water_criterion_h_over_l_one_twentieth():
 
 # ---------------------------------------------------------------------------------
 # Long-wave speed c = sqrt(g h), g = 9.80665 m/s^2 exactly (3rd CGPM 1901 [S]).
-# Values [C] from the project reference notes (section 2), checked to the printed
-# precision (half a unit of the last printed digit). Two printed values there are
-# rounding slips and are corrected here: 2000 m gives 140.047 m/s (printed 140.1,
-# correct 140.0) and 1000 m gives 356.50 km/h (printed 356, correct 357).
+# Values [C] from docs/references.md §2, checked to the printed
+# precision (half a unit of the last printed digit). Two values were rounding slips
+# in earlier notes and are printed corrected there: 2000 m gives 140.047 m/s (140.0,
+# not 140.1) and 1000 m gives 356.505 km/h (357, not 356).
 # ---------------------------------------------------------------------------------
 
 LONG_WAVE_SPEEDS = [
@@ -247,8 +258,8 @@ LONG_WAVE_SPEEDS = [
     (7000.0, "262.0", "943", "6.4"),
     (6000.0, "242.6", "873", "6.9"),
     (4000.0, "198.1", "713", "8.4"),
-    (2000.0, "140.0", "504", "11.9"),  # notes print 140.1 m/s: rounding slip
-    (1000.0, "99.0", "357", "16.8"),  # notes print 356 km/h: rounding slip
+    (2000.0, "140.0", "504", "11.9"),  # 140.047 m/s (once misprinted 140.1)
+    (1000.0, "99.0", "357", "16.8"),  # 356.505 km/h (once misprinted 356)
     (200.0, "44.3", "159", "37.6"),
     (100.0, "31.3", "113", "53.2"),
     (50.0, "22.1", "80", "75.3"),

@@ -1,11 +1,11 @@
 """Reference checks of the travel-time engine against analytic and geodesic solutions.
 
 Each check names its outside reference beside it. Tags follow the project
-reference notes (REFERENCE.md): [S] read in the cited source, [C] computed,
+reference notes (docs/references.md): [S] read in the cited source, [C] computed,
 [from memory] not re-checked, "common practice, no source".
 
 Speeds use standard gravity g = 9.80665 m/s^2 exactly (3rd CGPM 1901,
-REFERENCE.md section 9 [S]).
+docs/references.md §9 [S]).
 """
 
 from __future__ import annotations
@@ -20,8 +20,8 @@ from scipy import ndimage
 from ttmap import Grid, Source, compute_travel_time, prepare_medium
 from ttmap.physics.dispersion import group_speed_m_s, phase_speed_m_s
 
-G_M_S2 = 9.80665  # standard gravity, exact (3rd CGPM 1901; REFERENCE.md section 9 [S])
-MEAN_RADIUS_M = 6371008.7714  # IUGG mean radius R1 (REFERENCE.md section 9 [S library doc; C])
+G_M_S2 = 9.80665  # standard gravity, exact (3rd CGPM 1901; docs/references.md §9 [S])
+MEAN_RADIUS_M = 6371008.7714  # IUGG mean radius R1 (docs/references.md §9 [S library doc; C])
 DEPTH_M = 4000.0
 C_4000_M_S = float(np.sqrt(G_M_S2 * DEPTH_M))  # long-wave speed sqrt(g h), 198.06 m/s
 
@@ -39,7 +39,7 @@ def _cell_centres(grid: Grid) -> tuple[np.ndarray, np.ndarray]:
 
 
 # ---------------------------------------------------------------------------------------
-# 1. Uniform depth, projected grid: T = r / sqrt(g h)  (analytic; REFERENCE.md section 8)
+# 1. Uniform depth, projected grid: T = r / sqrt(g h)  (analytic; docs/references.md §8)
 # ---------------------------------------------------------------------------------------
 
 
@@ -80,7 +80,7 @@ def test_uniform_depth_point_source_matches_distance_over_speed():
 
 def test_uniform_depth_error_shrinks_when_cell_size_is_halved():
     # Same physical source position and the same ring of cells 95-105 km away on
-    # three grids; the analytic time is r / sqrt(g h) (REFERENCE.md section 8).
+    # three grids; the analytic time is r / sqrt(g h) (docs/references.md §8).
     sx, sy = 120_623.0, 119_877.0
     ring_errors = []
     for n, cell_m in ((121, 2000.0), (241, 1000.0), (481, 500.0)):
@@ -97,7 +97,7 @@ def test_uniform_depth_error_shrinks_when_cell_size_is_halved():
 
 # ---------------------------------------------------------------------------------------
 # 2. Global geographic grid against geodesics (Karney 2013, J. Geodesy 87:43-55 via
-#    pyproj.Geod) and against great circles on a sphere (REFERENCE.md section 8).
+#    pyproj.Geod) and against great circles on a sphere (docs/references.md §8).
 # ---------------------------------------------------------------------------------------
 
 GLOBAL_SHAPE = (640, 1440)  # 0.25 degree, latitude -80..80, all 360 degrees, no seam column
@@ -191,7 +191,7 @@ def test_duplicated_seam_column_gives_the_same_times():
 
 def _great_circle_m(lon0: float, lat0: float, lon: np.ndarray, lat: np.ndarray) -> np.ndarray:
     """Great-circle distance on the sphere of radius R1 (Vincenty's atan2 form of the
-    spherical law of cosines; exact on a sphere, REFERENCE.md section 8)."""
+    spherical law of cosines; exact on a sphere, docs/references.md §8)."""
     l0, p0 = np.radians(lon0), np.radians(lat0)
     lam, phi = np.radians(lon), np.radians(lat)
     dl = lam - l0
@@ -214,7 +214,7 @@ def test_global_grid_on_a_sphere_matches_great_circle_distance():
     rows, cols, lon, lat, geod_m = _sample_in_band(grid, sphere, seed=7)
     dist_m = _great_circle_m(SOURCE_LON, SOURCE_LAT, lon, lat)
     np.testing.assert_allclose(dist_m, geod_m, rtol=1e-9)  # two routes to one distance
-    exact_s = dist_m / C_4000_M_S  # T = R * sigma / sqrt(g h) (REFERENCE.md section 8 [C])
+    exact_s = dist_m / C_4000_M_S  # T = R * sigma / sqrt(g h) (docs/references.md §8 [C])
     rel = np.abs(result.arrival_time_s[rows, cols] - exact_s) / exact_s
     assert np.percentile(rel, 99) <= 1e-3
     assert rel.max() <= 5e-3
@@ -222,7 +222,7 @@ def test_global_grid_on_a_sphere_matches_great_circle_distance():
 
 # ---------------------------------------------------------------------------------------
 # 3. Plane beach h = a x: T = 2 (sqrt(x2) - sqrt(x1)) / sqrt(g a)
-#    (derived from T = integral dx / sqrt(g a x); REFERENCE.md section 8 [C, derived])
+#    (derived from T = integral dx / sqrt(g a x); docs/references.md §8 [C, derived])
 # ---------------------------------------------------------------------------------------
 
 
@@ -275,7 +275,7 @@ def test_plane_beach_matches_closed_form():
 @pytest.mark.parametrize(
     ("mode", "speed_fn", "table_ratio"),
     [
-        # REFERENCE.md section 1, tsunami-band table [C]: h = 4000 m, T = 300 s.
+        # docs/references.md §1, tsunami-band table [C]: h = 4000 m, T = 300 s.
         ("group", group_speed_m_s, 0.9137),
         ("phase", phase_speed_m_s, 0.9701),
     ],
@@ -302,8 +302,8 @@ def test_dispersive_mode_uniform_depth(mode, speed_fn, table_ratio):
 
 
 # ---------------------------------------------------------------------------------------
-# 5. Reciprocity T(A->B) = T(B->A) (Fermat's principle, isotropic speed; REFERENCE.md
-#    section 8 [S: GSA 2007 abstract for the practice])
+# 5. Reciprocity T(A->B) = T(B->A) (Fermat's principle, isotropic speed; docs/references.md
+#    §8 [S: GSA 2007 abstract for the practice])
 # ---------------------------------------------------------------------------------------
 
 
@@ -468,7 +468,7 @@ def test_rupture_at_lonlat_on_utm_grid():
 def test_rupture_from_magnitude_has_strasser_2010_size():
     src = Source.rupture_from_magnitude(141.0, 38.0, strike_deg=0.0, mw=8.0)
     # Strasser et al. 2010, SRL 81(6):941-950, interface: Mw 8 -> 160 x 84 km
-    # (REFERENCE.md section 5 check rows [C]).
+    # (docs/references.md §5 check rows [C]).
     assert src.params["length_km"] == pytest.approx(160.0, abs=0.5)
     assert src.params["width_km"] == pytest.approx(84.0, abs=0.5)
     local = CRS.from_proj4("+proj=aeqd +lat_0=38 +lon_0=141 +datum=WGS84 +units=m +no_defs")

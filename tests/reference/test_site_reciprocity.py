@@ -4,8 +4,8 @@ Fermat's principle: the first-arrival time between two points is the least
 travel time over all paths, T(A, B) = min over paths of the integral of
 ds / c(x). For a speed that depends on position only (isotropic, no currents)
 the integral does not depend on the direction of travel, so
-T(A -> B) = T(B -> A) (REFERENCE.md section 8 [S: eikonal / Fermat]; Sethian
-1999, Level Set Methods and Fast Marching Methods). A site-centred map (one
+T(A -> B) = T(B -> A) (docs/references.md §8: exact for an isotropic medium;
+Sethian 1999, Level Set Methods and Fast Marching Methods). A site-centred map (one
 solve started at the site, read at a source cell) must therefore equal the
 forward map of a solve started at that source cell, read at the site. The
 discrete solve breaks the equality slightly; the tolerance is 0.5 %.
@@ -78,7 +78,7 @@ def utm_grid() -> Grid:
 
 
 def test_site_centred_map_equals_forward_maps_projected():
-    # Fermat / REFERENCE.md section 8: T(source -> site) = T(site -> source).
+    # Fermat / docs/references.md §8: T(source -> site) = T(site -> source).
     # Tolerance 0.5 %; measured max 0.20 %, median 0.07 %.
     errors, _ = reciprocity_errors(utm_grid())
     assert errors.max() <= TOLERANCE
@@ -87,7 +87,7 @@ def test_site_centred_map_equals_forward_maps_projected():
 
 def test_site_centred_map_equals_forward_maps_for_group_speed():
     # The group speed of one period (300 s) is a function of depth only, so Fermat's
-    # reciprocity holds for it as computed (REFERENCE.md sections 1 and 8).
+    # reciprocity holds for it as computed (docs/references.md §1 and §8).
     # Tolerance 0.5 %; measured max 0.19 %.
     errors, site = reciprocity_errors(utm_grid(), mode="group", period_s=300.0)
     assert site.settings["speed_mode"] == "group"

@@ -1,7 +1,7 @@
 """Site arrival times against analytic references on a constant-depth geographic grid.
 
 Each check names its outside reference beside it. Tags follow the project
-reference notes (REFERENCE.md): [S] read in the cited source, [C] computed,
+reference notes (docs/references.md): [S] read in the cited source, [C] computed,
 [from memory] not re-checked, "common practice, no source".
 
 Setting: 0.02-degree WGS84 grid, uniform depth 4000 m, land east of 153.8 E
@@ -25,11 +25,11 @@ from ttmap.io.sites import Site, SiteList
 from ttmap.physics.dispersion import group_speed_m_s
 from ttmap.products.sites import SNAP_MOVED, site_table, snap_sites
 
-G_M_S2 = 9.80665  # standard gravity, exact (3rd CGPM 1901; REFERENCE.md section 9 [S])
+G_M_S2 = 9.80665  # standard gravity, exact (3rd CGPM 1901; docs/references.md §9 [S])
 DEPTH_M = 4000.0
 C0_M_S = math.sqrt(
     G_M_S2 * DEPTH_M
-)  # long-wave speed sqrt(g h) = 198.06 m/s (REFERENCE.md s. 2 [C])
+)  # long-wave speed sqrt(g h) = 198.06 m/s (docs/references.md §2 [C])
 PERIOD_S = 600.0
 CELL_DEG = 0.02
 COAST_LON = 153.8  # land from here eastward
@@ -77,14 +77,14 @@ def test_sites_move_one_column_west_to_the_coastal_water(solved):
         assert s.x == pytest.approx(COAST_LON - CELL_DEG / 2, abs=1e-9)
         _, _, expect_m = geod.inv(x, y, s.x, s.y)
         # haversine on the mean radius vs the ellipsoid: tolerance 0.5 %, measured 0.21 %
-        # (the two radii of curvature differ from R1 by that much; REFERENCE.md section 9)
+        # (the two radii of curvature differ from R1 by that much; docs/references.md §9)
         assert s.moved_m == pytest.approx(expect_m, rel=5e-3)
 
 
 def test_front_arrival_is_geodesic_distance_over_long_wave_speed(solved):
     _, _, snapped, table = solved
     dist_m = _geodesic_to_cells(snapped)
-    expected_min = dist_m / C0_M_S / 60.0  # T = distance / sqrt(g h) (REFERENCE.md section 8)
+    expected_min = dist_m / C0_M_S / 60.0  # T = distance / sqrt(g h) (docs/references.md §8)
     got = np.array(table.columns["front_min"])
     rel = np.abs(got - expected_min) / expected_min
     # Tolerance 0.5 % (brief); measured worst 0.023 %.
@@ -95,8 +95,8 @@ def test_energy_arrival_is_distance_over_group_speed(solved):
     _, _, snapped, table = solved
     cg = float(group_speed_m_s(DEPTH_M, PERIOD_S))
     # The group speed itself against the tsunami-band table: c_g / sqrt(g h) = 0.9778 at
-    # h = 4000 m, T = 600 s (REFERENCE.md section 1 [C]; the dispersion solver is checked
-    # against Shore Protection Manual 1984, Table C-1, in test_dispersion_reference.py).
+    # h = 4000 m, T = 600 s (docs/references.md §1.3 [C]; the dispersion solver is checked
+    # against exact roots in test_dispersion_reference.py).
     assert cg / C0_M_S == pytest.approx(0.9778, abs=1e-4)
     dist_m = _geodesic_to_cells(snapped)
     expected_min = dist_m / cg / 60.0

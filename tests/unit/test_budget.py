@@ -1,7 +1,7 @@
 """Time-budget arithmetic and status words (ttmap.products.budget).
 
 Rows are computed by hand. References are named beside each check; tags as
-in REFERENCE.md ([S] source read, [from memory], common practice = no source).
+in docs/references.md ([S] source read, [from memory], common practice = no source).
 """
 
 from __future__ import annotations
@@ -33,7 +33,7 @@ from ttmap.products.budget import (
 
 
 def test_default_walking_speed_is_the_observed_2011_mean():
-    # Mean evacuation speed observed in 2011, 2.65 km/h (MLIT survey, REFERENCE.md section 6
+    # Mean evacuation speed observed in 2011, 2.65 km/h (MLIT survey, docs/references.md §6
     # [S, secondary source]); the 2002 guideline assumed 3.6 km/h = 1.0 m/s.
     assert defaults.WALKING_SPEED_M_S == pytest.approx(2.65 / 3.6, abs=0.005)
     assert defaults.WALKING_SPEED_M_S == 0.74
@@ -41,10 +41,10 @@ def test_default_walking_speed_is_the_observed_2011_mean():
 
 
 def test_default_delays_are_the_cited_values():
-    # Departure delay of the guideline's worked example: 3 min (REFERENCE.md section 6 [S]).
+    # Departure delay of the guideline's worked example: 3 min (docs/references.md §6 [S]).
     assert defaults.PREPARATION_MIN == 3.0
-    # Warning centres "can often" message within 10 min (IOC/ITIC glossary, REFERENCE.md
-    # section 6 [S]).
+    # Warning centres "can often" message within 10 min (IOC/ITIC glossary, docs/references.md
+    # §6 [S]).
     assert defaults.NOTIFICATION_DELAY_MIN == 10.0
     # Little-margin threshold: common practice, no source.
     assert defaults.LITTLE_MARGIN_MIN == 5.0
@@ -64,7 +64,7 @@ def test_module_text_cites_each_default():
 
 
 def test_reachable_distance_matches_the_guideline_example():
-    # Japanese guideline practice (REFERENCE.md section 6 [S]): reachable distance =
+    # Japanese guideline practice (docs/references.md §6 [S]): reachable distance =
     # v x (arrival - departure delay - climb); 1.0 m/s x (10 - 3 - 3) min = 240 m.
     assert reachable_distance_m(10.0, 3.0, 3.0, 1.0) == pytest.approx(240.0, abs=1e-12)
 

@@ -26,8 +26,8 @@ from ttmap.grid import (
     solve_plane,
 )
 
-WGS84_A_M = 6378137.0  # WGS84 semi-major axis (REFERENCE.md section 9 [M, standard])
-MEAN_RADIUS_M = 6371008.7714  # IUGG mean radius R1 (REFERENCE.md section 9)
+WGS84_A_M = 6378137.0  # WGS84 semi-major axis (docs/references.md §9 [M, standard])
+MEAN_RADIUS_M = 6371008.7714  # IUGG mean radius R1 (docs/references.md §9)
 
 
 def _global(

@@ -24,7 +24,6 @@ from ttmap.products import isochrones as iso
 from ttmap.products.isochrones import (
     IsochroneBand,
     IsochroneLine,
-    _polygonal_only,
     default_levels_min,
     format_minutes_label,
     isochrone_bands,
@@ -32,6 +31,7 @@ from ttmap.products.isochrones import (
     isochrone_lines_and_bands,
     levels_from_interval,
 )
+from ttmap.products.rings import polygonal_parts
 
 SPEED_M_S = math.sqrt(9.80665 * 4000.0)
 CELL_M = 1000.0
@@ -322,15 +322,7 @@ def test_band_around_two_touching_islands_is_repaired():
     assert_allclose(band.geometry.area, (36.0 - 2 * 2.0) * CELL_M**2)
 
 
-def test_polygonal_only_repairs_a_bowtie():
-    bowtie = shapely.MultiPolygon([shapely.Polygon([(0, 0), (2, 2), (2, 0), (0, 2)])])
-    assert not shapely.is_valid(bowtie)
-    fixed = _polygonal_only(bowtie)
-    assert fixed.geom_type == "MultiPolygon" and shapely.is_valid(fixed)
-    assert_allclose(fixed.area, 2.0)
-
-
-# --- fast repair of touching rings, windows, shared tracing -------------------
+# --- bands on speckled fields (ring repair itself: test_rings.py), windows, shared tracing
 
 
 def speckled_field(shape=(240, 260), land_share=0.2, seed=3):
@@ -362,52 +354,10 @@ def test_speckled_bands_are_valid_and_cover_what_make_valid_covers():
         raw = raw_band_polygons(field, lower, band.max_minutes)
         raw = shapely.transform(raw, lambda xy: xy + 0.5)  # cell centres, as isochrone_bands
         n_repaired += int((~shapely.is_valid(raw)).sum())
-        reference = _polygonal_only(shapely.MultiPolygon(list(raw)))
+        reference = polygonal_parts(shapely.MultiPolygon(list(raw)))
         assert_allclose(band.geometry.area, reference.area, rtol=1e-12)
         assert shapely.symmetric_difference(band.geometry, reference).area < 1e-9
     assert n_repaired > 20  # the fast repair did the work, not the fallback
-
-
-def test_split_ring_separates_lobes_and_an_inverted_hole():
-    # An exterior ring that passes (2, 2) three times: two lobes (0-2 and 2-4 on x)
-    # and, inside the second lobe, a loop turning the other way (a hole touching it).
-    ring = np.array(
-        [[2, 2], [0, 0], [0, 4], [2, 2], [4, 4], [4, 0], [2, 2], [3, 1.5], [3, 2.5], [2, 2]],
-        dtype=float,
-    )
-    loops = iso._split_ring(ring)
-    assert [loop.tolist() for loop in loops] == [
-        [[2, 2], [0, 0], [0, 4], [2, 2]],
-        [[2, 2], [4, 4], [4, 0], [2, 2]],
-        [[2, 2], [3, 1.5], [3, 2.5], [2, 2]],
-    ]
-    areas2 = iso._ring_areas2(np.concatenate(loops), np.array([0, 4, 8, 12]))
-    assert areas2.tolist() == [-8.0, -8.0, 1.0]  # the lobes turn as the ring does, the hole not
-    out = iso._split_touching_rings(ring, np.array([0, len(ring)]))
-    assert out is not None
-    polygons = shapely.from_ragged_array(shapely.GeometryType.POLYGON, out[0], (out[1], out[2]))
-    assert len(polygons) == 2 and shapely.is_valid(shapely.MultiPolygon(list(polygons)))
-    assert_allclose(sorted(shapely.area(polygons)), [3.5, 4.0])  # one lobe keeps the hole
-
-
-def test_a_hole_touching_the_shell_twice_cuts_the_interior():
-    shell = [[0, 0], [2, 0], [4, 0], [4, 4], [2, 4], [0, 4], [0, 0]]
-    twice = [[2, 0], [3, 2], [2, 4], [1, 2], [2, 0]]  # meets the shell at (2, 0) and (2, 4)
-    once = [[2, 0], [3, 2], [2, 3], [1, 2], [2, 0]]  # meets it at (2, 0) only
-    for hole, cut in ((twice, True), (once, False)):
-        coords = np.array(shell + hole, dtype=float)
-        rings = np.array([0, len(shell), len(shell) + len(hole)])
-        assert iso._interior_disconnected(coords, rings, np.array([0, 2])) is cut
-        polygon = shapely.Polygon(shell, [hole])
-        assert shapely.is_valid(polygon) is not cut  # GEOS agrees
-
-
-def test_polygons_invalid_for_another_reason_fall_back_to_make_valid():
-    bowtie = np.array([[0, 0], [2, 2], [2, 0], [0, 2], [0, 0]], dtype=float)
-    assert iso._split_touching_rings(bowtie, np.array([0, 5])) is None
-    polygons = iso._band_polygons(bowtie, np.array([0, 5]), np.array([0, 1]))
-    assert shapely.is_valid(polygons).all()
-    assert_allclose(shapely.area(polygons).sum(), 2.0)
 
 
 def test_windows_give_the_same_contours_as_one_pass():

@@ -29,8 +29,10 @@ from ttmap.products.isochrones import isochrone_lines
 from ttmap.products.maps import (
     COLORBAR_LABEL,
     DEFAULT_CMAP,
+    _LAND_RGBA,
     _decimate,
     _decimation,
+    _display_stride,
     _resolve_cmap,
     render_arrival_map,
     save_figure,
@@ -172,8 +174,32 @@ def test_large_grid_is_decimated():
     images = [im for im in fig.axes[0].get_images() if isinstance(im, AxesImage)]
     assert images
     for image in images:
-        assert 0 < image.get_array().size <= 50_000
-        assert image.get_array().shape == (900 // 5, 1300 // 5)  # stride 5
+        cells = image.get_array().shape[:2]  # RGBA: (rows, cols, 4)
+        assert 0 < cells[0] * cells[1] <= 50_000
+        assert cells == (900 // 5, 1300 // 5)  # stride 5
+
+
+def test_grid_finer_than_the_drawn_box_is_sampled_to_its_pixels():
+    # 1500 x 1800 cells on an 8 x 6.5 in figure at 80 dpi: the map box is a few
+    # hundred pixels across, so the picture keeps about one cell per pixel.
+    shape = (1500, 1800)
+    fine = Affine(100.0, 0.0, 400_000.0, 0.0, -100.0, 5_200_000.0)
+    time_min, land = case(shape=shape, transform=fine)
+    fig = render(time_min, land, fine)
+    fig.canvas.draw()
+    (image,) = fig.axes[0].get_images()
+    rows, cols = image.get_array().shape[:2]
+    bbox = fig.axes[0].get_window_extent()  # the drawn map box, pixels
+    assert rows >= bbox.height - 1 and cols >= bbox.width - 1  # never fewer cells than pixels
+    assert rows < 2 * bbox.height + 2 or cols < 2 * bbox.width + 2  # but not twice as many
+    assert _display_stride(shape, (bbox.width, bbox.height)) == 1800 // cols
+
+
+def test_display_stride_keeps_one_cell_per_pixel():
+    assert _display_stride((2000, 2000), (800.0, 800.0)) == 2
+    assert _display_stride((2000, 2000), (1001.0, 1001.0)) == 1
+    assert _display_stride((4800, 7200), (1100.0, 733.0)) == 6
+    assert _display_stride((10, 10), (0.0, 500.0)) == 1
 
 
 def test_decimation_keeps_cells_in_place():
@@ -195,9 +221,14 @@ def test_south_up_grid_is_drawn_north_up():
     time_min, land = case(south_up)
     fig = render(time_min, land, south_up)
     image = fig.axes[0].get_images()[0]
-    drawn = np.ma.filled(image.get_array(), np.nan)
+    drawn = np.asarray(image.get_array())  # RGBA bytes
     # imshow draws row 0 at the top: it must be the northernmost row of the grid
-    assert_allclose(drawn, time_min[::-1], equal_nan=True)
+    colorbar = fig.axes[0].child_axes[0]._colorbar  # the colour bar's mappable
+    expected = colorbar.mappable.to_rgba(np.ma.masked_invalid(time_min[::-1]), bytes=True)
+    land_grey = np.round(np.asarray(_LAND_RGBA) * 255).astype(np.uint8)
+    expected[land[::-1]] = land_grey
+    assert_allclose(drawn, expected, atol=0)
+    assert (drawn[land[::-1]] == land_grey).all() and not (drawn[~land[::-1]] == land_grey).all()
     assert_allclose(image.get_extent(), (400_000.0, 520_000.0, 5_100_000.0, 5_200_000.0))
 
 
@@ -233,10 +264,15 @@ def test_polygon_source_and_all_nan_field_render(tmp_path):
 def test_default_colours_match_the_shared_palette():
     time_min, land = case()
     fig = render(time_min, land)
-    image = fig.axes[0].get_images()[0]
+    mappable = fig.axes[0].child_axes[0]._colorbar.mappable  # what the image and bar use
     early, late = arrival_colors_hex(2)  # the ramp the style files use
-    assert to_hex(image.cmap(image.norm(0.0))) == early
-    assert to_hex(image.cmap(image.norm(np.nanmax(time_min)))) == late
+    assert to_hex(mappable.cmap(mappable.norm(0.0))) == early
+    assert to_hex(mappable.cmap(mappable.norm(np.nanmax(time_min)))) == late
+    image = np.asarray(fig.axes[0].get_images()[0].get_array())
+    source_row, source_col = 50, 60  # the cell of SOURCE_XY: the earliest colour
+    assert to_hex(image[source_row, source_col] / 255.0) == to_hex(
+        mappable.cmap(mappable.norm(time_min[source_row, source_col]))
+    )
 
 
 @pytest.mark.parametrize(

@@ -1,7 +1,7 @@
 """Unit tests of ttmap.physics.scaling: coefficients, check rows, cap, errors, moment.
 
 Coefficients are checked against the published regressions (source beside each row,
-as read for the project reference notes, section 5). The L x W check rows are [C]:
+as read for docs/references.md §5). The L x W check rows are [C]:
 computed from those coefficients and rounded to the km.
 """
 
@@ -110,7 +110,7 @@ def test_citations_carry_year_and_pages(key, year, pages):
 
 @pytest.mark.parametrize(
     "key",
-    # The project reference notes tag these as not verified: Blaser reverse sigma and
+    # docs/references.md §5 tags these [from memory]: Blaser reverse sigma and
     # regression type, Wells & Coppersmith reverse sigma, Papazachos citation.
     ["blaser2010-reverse", "wells-coppersmith1994-reverse", "papazachos2004-subduction"],
 )

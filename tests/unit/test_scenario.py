@@ -6,7 +6,7 @@ cells, sea (elevation -4000 m) west of lon -143, land (+200 m) east of it.
 
 Outside references: rupture sizes from Strasser et al. (2010), Seismological
 Research Letters 81(6), 941-950 (interface: Mw 8 -> 160 x 84 km, Mw 9 ->
-614 x 189 km; REFERENCE.md section 5); geodesic distances and azimuths on
+614 x 189 km; docs/references.md §5); geodesic distances and azimuths on
 WGS84 (Karney 2013, J. Geodesy 87:43-55, via pyproj.Geod).
 """
 
@@ -266,7 +266,8 @@ def test_trench_table_generates_named_ruptures_of_scaling_size(folder: Path):
     for s, (lon, lat, strike) in zip(gen, centres):
         p = s.source.params
         assert (p["lon"], p["lat"], p["strike_deg"]) == pytest.approx((lon, lat, strike))
-        # Strasser et al. (2010), SRL 81(6):941-950, interface, Mw 8: 160 x 84 km (REFERENCE.md 5).
+        # Strasser et al. (2010), SRL 81(6):941-950, interface, Mw 8: 160 x 84 km
+        # (docs/references.md §5).
         assert (round(p["length_km"]), round(p["width_km"])) == (160, 84)
         assert p["scaling_relation"] == "strasser2010-interface"
         assert s.max_time_s == 3 * 3600.0
@@ -292,7 +293,7 @@ def test_trench_other_scaling_law(folder: Path):
         scaling_law = "strasser2010-interface"
         """)
     sf = load_scenario_file(_write(folder, text))
-    # Strasser et al. 2010 interface, Mw 9: 614 x 189 km (REFERENCE.md section 5).
+    # Strasser et al. 2010 interface, Mw 9: 614 x 189 km (docs/references.md §5).
     assert (round(sf.trenches[0].length_km), round(sf.trenches[0].width_km)) == (614, 189)
 
 

@@ -2,8 +2,8 @@
 
 Invented data only. Analytic reference: on uniform depth the first-arrival
 time is distance over the long-wave speed sqrt(g h), with standard gravity
-g = 9.80665 m/s^2 (3rd CGPM 1901; REFERENCE.md sections 2 and 8). Reciprocity
-itself (Fermat's principle, REFERENCE.md section 8) is checked in
+g = 9.80665 m/s^2 (3rd CGPM 1901; docs/references.md §2 and §8). Reciprocity
+itself (Fermat's principle, docs/references.md §8) is checked in
 tests/reference/test_site_reciprocity.py.
 """
 
@@ -39,7 +39,7 @@ from ttmap.sitemap import (
 )
 from ttmap.defaults import SITE_SEARCH_RADIUS_M
 
-G_M_S2 = 9.80665  # standard gravity, exact (3rd CGPM 1901; REFERENCE.md section 9)
+G_M_S2 = 9.80665  # standard gravity, exact (3rd CGPM 1901; docs/references.md §9)
 DEPTH_M = 1000.0
 SPEED_M_S = math.sqrt(G_M_S2 * DEPTH_M)  # 99.03 m/s
 CELL_M = 1000.0
@@ -87,7 +87,7 @@ def test_site_on_land_is_moved_to_the_nearest_water_and_the_move_is_reported(med
 
 
 def test_site_centred_times_on_uniform_depth_are_distance_over_speed(harbour):
-    # Analytic: T = r / sqrt(g h) from the (moved) site cell (REFERENCE.md section 8).
+    # Analytic: T = r / sqrt(g h) from the (moved) site cell (docs/references.md §8).
     # Tolerance 0.3 % beyond 20 cells (0.2 % is the open-water bound of
     # tests/reference/test_engine_reference.py); a start next to land keeps its full
     # straight-ray region on the water side.

@@ -1,7 +1,7 @@
 """Unit tests of ttmap.solver.fast_march_s: input checks, output conversion, walls.
 
 Analytic reference: a plane front aligned with the grid in a uniform medium has
-T = s / c exactly for the fast-marching update (REFERENCE.md section 8,
+T = s / c exactly for the fast-marching update (docs/references.md §8,
 "plane waves aligned with the grid are exact" [S: Stanford SEP reports]).
 """
 

@@ -146,7 +146,7 @@ def test_rupture_from_magnitude_records_its_origin():
     assert s.kind == "rupture"
     assert s.params["mw"] == 9.0 and s.params["scaling_relation"] == "strasser2010-interface"
     # Strasser et al. 2010, SRL 81(6):941-950, interface, Mw 9: 614 x 189 km
-    # (REFERENCE.md section 5 check rows [C]).
+    # (docs/references.md §5 check rows [C]).
     assert s.params["length_km"] == pytest.approx(614.0, abs=0.5)
     assert s.params["width_km"] == pytest.approx(189.0, abs=0.5)
     assert s.label.startswith("Mw 9 (strasser2010-interface)")

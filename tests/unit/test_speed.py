@@ -1,6 +1,6 @@
 """Unit tests of ttmap.physics.speed: floor depth, far-field slowdown, speed modes.
 
-Check values come from the project reference notes (REFERENCE.md), tagged there:
+Check values come from the project reference notes (docs/references.md), tagged there:
 [C] computed, [S] read in the cited source.
 """
 
@@ -24,7 +24,7 @@ from ttmap.physics.speed import (
 )
 from ttmap.defaults import FLOOR_DEPTH_M
 
-G_M_S2 = 9.80665  # standard gravity, exact (3rd CGPM 1901; REFERENCE.md section 9 [S])
+G_M_S2 = 9.80665  # standard gravity, exact (3rd CGPM 1901; docs/references.md §9 [S])
 
 
 def test_module_doctests_pass():
@@ -64,7 +64,7 @@ def test_floor_depth_must_be_positive(bad):
 
 @pytest.mark.parametrize(
     ("depth_m", "speed_m_s", "abs_tol"),
-    # REFERENCE.md section 2, c = sqrt(g h) table [C], rounded as printed there.
+    # docs/references.md §2, c = sqrt(g h) table [C], rounded as printed there.
     [
         (7000.0, 262.0, 0.05),
         (6000.0, 242.6, 0.05),
@@ -106,7 +106,7 @@ def test_far_field_speed_reduction_at_4000_m():
     plain = float(wave_speed_m_s(4000.0))
     slowed = float(wave_speed_m_s(4000.0, far_field=True))
     reduction = 1.0 - slowed / plain
-    # REFERENCE.md section 3 [C]: speed factor ~ 1 - g h / (2 c_s^2) = 0.87 % at 4000 m
+    # docs/references.md §3 [C]: speed factor ~ 1 - g h / (2 c_s^2) = 0.87 % at 4000 m
     # (close to Wang 2015's ~0.86 % from compressibility [S]).
     assert reduction == pytest.approx(0.0087, abs=1e-4)
     assert reduction == pytest.approx(1.0 - np.sqrt(1.0 - G_M_S2 * 4000.0 / 1500.0**2), rel=1e-12)
@@ -114,7 +114,7 @@ def test_far_field_speed_reduction_at_4000_m():
 
 @pytest.mark.parametrize(
     ("depth_m", "speed_reduction"),
-    # REFERENCE.md section 3 [C]: 1.31 % at 6000 m, 0.04 % at 200 m.
+    # docs/references.md §3 [C]: 1.31 % at 6000 m, 0.04 % at 200 m.
     [(6000.0, 0.0131), (200.0, 0.0004)],
 )
 def test_far_field_speed_reduction_table(depth_m, speed_reduction):
@@ -123,7 +123,7 @@ def test_far_field_speed_reduction_table(depth_m, speed_reduction):
 
 
 def test_far_field_effective_depth_against_wang_2015():
-    # Wang 2015, Science of Tsunami Hazards 34(1) [S, via REFERENCE.md section 3]:
+    # Wang 2015, Science of Tsunami Hazards 34(1) [S, via docs/references.md §3]:
     # effective depth ~2.5 % smaller at 6000 m, < 0.1 % at 200 m.
     assert 1.0 - float(far_field_effective_depth_m(6000.0)) / 6000.0 == pytest.approx(
         0.025, abs=2e-3
@@ -146,7 +146,7 @@ def test_far_field_applies_to_the_group_speed_too():
 
 @pytest.mark.parametrize(
     ("depth_m", "period_s", "phase_ratio", "group_ratio"),
-    # REFERENCE.md section 1, tsunami-band dispersion table [C]: c / sqrt(gh), cg / sqrt(gh).
+    # docs/references.md §1, tsunami-band dispersion table [C]: c / sqrt(gh), cg / sqrt(gh).
     [
         (4000.0, 120.0, 0.8145, 0.5657),
         (4000.0, 300.0, 0.9701, 0.9137),

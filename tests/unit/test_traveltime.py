@@ -23,7 +23,7 @@ from ttmap import traveltime as traveltime_module
 from ttmap.errors import GridError, TtmapWarning
 from ttmap.grid import projection_scale
 
-G_M_S2 = 9.80665  # standard gravity, exact (3rd CGPM 1901; REFERENCE.md section 9 [S])
+G_M_S2 = 9.80665  # standard gravity, exact (3rd CGPM 1901; docs/references.md §9 [S])
 
 
 def _grid(n: int = 30, cell: float = 1000.0) -> Grid:
@@ -191,7 +191,7 @@ def test_far_field_and_mode_settings_reach_the_result():
     assert slow.settings["far_field"] is True
     ratio = plain.arrival_time_s[20, 40] / slow.arrival_time_s[20, 40]
     # Speed factor sqrt(1 - g h / c_s^2), c_s = 1500 m/s: 0.87 % slower at 4000 m
-    # (REFERENCE.md section 3 [C]).
+    # (docs/references.md §3 [C]).
     assert ratio == pytest.approx(np.sqrt(1.0 - G_M_S2 * 4000.0 / 1500.0**2), rel=1e-9)
     grp = compute_travel_time(depth, grid, src, mode="group", period_s=600.0)
     assert grp.settings["speed_mode"] == "group" and grp.settings["period_s"] == 600.0

@@ -38,9 +38,10 @@ Sources
 -------
 - Shore Protection Manual (1984), 4th ed., U.S. Army Corps of Engineers,
   Coastal Engineering Research Center, Vol. II, Appendix C, Table C-1
-  ("Functions of d/L for even increments of d/L0"): tabulated ``tanh(kh)``,
-  ``n`` and ``c_g/c0`` used as check values in the tests. Edition and
-  publisher from memory.
+  ("Functions of d/L for even increments of d/L0"): the quantities it
+  tabulates (``tanh(kh)``, ``n``, ``c_g/c0``) are checked in the tests at
+  its depths, against exact roots computed in this project; the printed
+  values, edition and publisher are from memory (docs/references.md §1.1).
 - Eckart, C. (1951), National Bureau of Standards Circular 521.
 - Hunt, J. N. (1979), Journal of the Waterway, Port, Coastal and Ocean
   Division (ASCE) 105(WW4), 457-459; as given in Dean, R. G. and Dalrymple,

@@ -58,6 +58,7 @@ _LINE_COLOR = "#141414"
 _SOURCE_COLOR = "#e8175d"  # red-magenta: not in the arrival ramp, clear on it
 _MAX_LABELS = 14
 _MAX_LINE_VERTICES = 300_000  # above this, lines are simplified for drawing
+_PNG_COMPRESS_LEVEL = 3
 
 
 # ---------------------------------------------------------------------------
@@ -120,6 +121,44 @@ def _decimation(shape: tuple[int, int], max_pixels: int) -> int:
     while math.ceil(rows / stride) * math.ceil(cols / stride) > max_pixels:
         stride += 1
     return stride
+
+
+def _display_stride(shape: tuple[int, int], box_px: tuple[float, float]) -> int:
+    """Largest stride that still leaves at least one cell per drawn pixel on both axes.
+
+    ``box_px`` is the drawn map box, (width, height) in pixels. A grid finer
+    than the box is sampled down to about the box's size: the image then has
+    as many cells as the PNG has pixels, or a little more, and nothing a
+    reader can see is lost (``imshow`` would pick one cell per pixel anyway).
+
+    >>> _display_stride((2000, 2000), (800.0, 800.0))
+    2
+    >>> _display_stride((500, 700), (1100.0, 790.0))
+    1
+    """
+    rows, cols = shape
+    width_px, height_px = box_px
+    if width_px <= 0 or height_px <= 0:
+        return 1
+    return max(1, int(min(cols / width_px, rows / height_px)))
+
+
+def _arrival_rgba(
+    shown: NDArray[np.float64],
+    land: NDArray[np.bool_] | None,
+    colormap: Colormap,
+    norm: Any,
+) -> NDArray[np.uint8]:
+    """The drawn image as RGBA bytes: arrival colours, land grey, no arrival transparent.
+
+    One colour-mapped image instead of an arrival image and a land image:
+    matplotlib then resamples bytes once instead of normalising and
+    colour-mapping two float arrays at display resolution.
+    """
+    rgba: NDArray[np.uint8] = colormap(norm(np.ma.masked_invalid(shown)), bytes=True)
+    if land is not None:
+        rgba[land] = np.round(np.asarray(_LAND_RGBA) * 255.0).astype(np.uint8)
+    return rgba
 
 
 def _decimate(array: NDArray[Any], transform: Affine, stride: int) -> tuple[NDArray[Any], Affine]:
@@ -216,13 +255,17 @@ def _draw_raster(
     values: NDArray[Any],
     transform: Affine,
     *,
-    cmap: Colormap,
+    cmap: Colormap | None,
     norm: Any,
     zorder: float,
 ) -> Any:
-    """Draw a raster with imshow (axis-aligned grids) or pcolormesh (rotated)."""
+    """Draw a raster with imshow (axis-aligned grids) or pcolormesh (rotated).
+
+    ``values`` of shape (rows, cols, 4), uint8, are drawn as RGBA as they are
+    (``cmap`` and ``norm`` None).
+    """
     a, b, _, d, e, _ = tuple(transform)[:6]
-    rows, cols = values.shape
+    rows, cols = values.shape[:2]
     if b == 0.0 and d == 0.0:
         # Flip so that row 0 is north and col 0 is west, then imshow with an extent.
         if e > 0:
@@ -240,6 +283,8 @@ def _draw_raster(
             aspect="auto",
             zorder=zorder,
         )
+    if values.ndim == 3:
+        raise InputDataError("internal: RGBA images are drawn only on axis-aligned grids")
     cc, rr = np.meshgrid(np.arange(cols + 1.0), np.arange(rows + 1.0))
     a_, b_, c_, d_, e_, f_ = tuple(transform)[:6]
     xx = a_ * cc + b_ * rr + c_
@@ -542,8 +587,12 @@ def render_arrival_map(
         :data:`ttmap.products.cautions.CAUTION_TEXT`) is shown as a list, one
         bullet per line.
     max_pixels : int, optional
-        Largest number of raster cells drawn; bigger grids are sampled every
-        ``s``-th row and column (the middle cell of each ``s x s`` block).
+        Largest number of raster cells drawn. A grid with more cells, or
+        (north-up, south-up or mirrored grids) with at least twice as many
+        cells per axis as the drawn map box has pixels, is sampled every
+        ``s``-th row and column (the middle cell of each ``s x s`` block),
+        with ``s`` as large as keeps at least one cell per pixel. Only the
+        picture is sampled: isochrones are drawn as given.
     cmap : str or matplotlib Colormap, optional
         Colour map of the arrival times, first colour = earliest. The default
         is the ramp shared with the style files,
@@ -572,6 +621,7 @@ def render_arrival_map(
     drawn pixel before drawing.
     """
     from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.cm import ScalarMappable
     from matplotlib.collections import LineCollection
     from matplotlib.colors import ListedColormap, Normalize
     from matplotlib.figure import Figure
@@ -583,10 +633,6 @@ def render_arrival_map(
     colormap = _resolve_cmap(cmap)
 
     # --- data preparation ---------------------------------------------------
-    stride = _decimation(field.shape, int(max_pixels))
-    shown, shown_transform = _decimate(field, transform, stride)
-    shown = np.ma.masked_invalid(np.asarray(shown, dtype=np.float64))
-    land_shown = _decimate(land, transform, stride)[0] if land is not None else None
     finite = np.isfinite(field)
     has_values = bool(finite.any())
     vmax_min = float(np.max(field, where=finite, initial=-np.inf)) if has_values else 60.0
@@ -627,14 +673,39 @@ def render_arrival_map(
     ax = fig.add_axes(ax_rect)
     ax.set_facecolor(_UNREACHED_RGB)
 
+    # --- the image, sampled down to the drawn box's pixels (or max_pixels) -------
+    ax_w_in = ax_rect[2] * fig_w
+    ax_h_in = ax_rect[3] * fig_h
+    box_scale = min(ax_w_in / (xmax - xmin), ax_h_in / ((ymax - ymin) * aspect)) * dpi
+    box_px = (box_scale * (xmax - xmin), box_scale * (ymax - ymin) * aspect)
+    a_, b_, _, d_, e_, _ = tuple(transform)[:6]
+    axis_aligned = b_ == 0.0 and d_ == 0.0
+    stride = _decimation(field.shape, int(max_pixels))
+    if axis_aligned:
+        stride = max(stride, _display_stride(field.shape, box_px))
+    shown_values, shown_transform = _decimate(field, transform, stride)
+    shown = np.ma.masked_invalid(np.asarray(shown_values, dtype=np.float64))
+    land_shown = _decimate(land, transform, stride)[0] if land is not None else None
+
     # --- arrival colours, land, coast -----------------------------------------
-    image = _draw_raster(ax, shown, shown_transform, cmap=colormap, norm=norm, zorder=1)
+    image: Any = ScalarMappable(norm=norm, cmap=colormap)  # what the colour bar shows
+    if axis_aligned:
+        rgba = _arrival_rgba(shown.data, land_shown, colormap, norm)
+        _draw_raster(ax, rgba, shown_transform, cmap=None, norm=None, zorder=1)
+    else:
+        _draw_raster(ax, shown, shown_transform, cmap=colormap, norm=norm, zorder=1)
+        if land_shown is not None and land_shown.any():
+            land_cmap = ListedColormap([_LAND_RGBA]).with_extremes(bad=(0, 0, 0, 0))
+            land_values = np.ma.masked_array(np.zeros(land_shown.shape), mask=~land_shown)
+            _draw_raster(
+                ax,
+                land_values,
+                shown_transform,
+                cmap=land_cmap,
+                norm=Normalize(0.0, 1.0),
+                zorder=2,
+            )
     if land_shown is not None and land_shown.any():
-        land_cmap = ListedColormap([_LAND_RGBA]).with_extremes(bad=(0, 0, 0, 0))
-        land_values = np.ma.masked_array(np.zeros(land_shown.shape), mask=~land_shown)
-        _draw_raster(
-            ax, land_values, shown_transform, cmap=land_cmap, norm=Normalize(0.0, 1.0), zorder=2
-        )
         coast = _coastline_segments(land_shown, shown_transform)
         if coast:
             ax.add_collection(
@@ -644,7 +715,6 @@ def render_arrival_map(
             )
 
     # --- isochrones -------------------------------------------------------------
-    ax_w_in = ax_rect[2] * fig_w
     data_per_pixel = max(xmax - xmin, (ymax - ymin) * aspect) / (ax_w_in * dpi)
     total_vertices = 0
     if lines:
@@ -809,9 +879,9 @@ def save_figure(
 
     Notes
     -----
-    PNG files use the figure's dpi. Files carry "ttmap" as their creating
-    software; PDF files carry no creation date, so equal figures give equal
-    bytes.
+    PNG files use the figure's dpi and fast zlib compression (level 3).
+    Files carry "ttmap" as their creating software; PDF files carry no
+    creation date, so equal figures give equal bytes.
     """
     if format is None:
         fmt = os.path.splitext(os.fspath(path))[1].lstrip(".").lower()
@@ -826,4 +896,9 @@ def save_figure(
             f"cannot write a map as {fmt or 'a file without suffix'!r} ({os.fspath(path)}); "
             "use a .png or .pdf path, or pass format='png' or format='pdf'"
         )
-    fig.savefig(path, format=fmt, dpi=fig.dpi, metadata=metadata, facecolor="white")
+    extra: dict[str, Any] = {}
+    if fmt == "png":
+        # zlib level 3: on a 1500 x 1200 px map 0.06 s instead of 0.10 s at
+        # the default level 6, for a file about 12 % larger.
+        extra["pil_kwargs"] = {"compress_level": _PNG_COMPRESS_LEVEL}
+    fig.savefig(path, format=fmt, dpi=fig.dpi, metadata=metadata, facecolor="white", **extra)
