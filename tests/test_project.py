@@ -230,18 +230,19 @@ LAYERS: dict[str, int] = {
     "ttmap.connectivity": 1,
     "ttmap.sources": 1,
     "ttmap.solver": 1,
-    # 2: the engine's entry points
+    # 2: the engine's entry points (one solve, site-centred and reciprocal solves, task specs)
     "ttmap.traveltime": 2,
     "ttmap.sitemap": 2,
-    # 3: files in and out, products, scenario files, the memory model
+    "ttmap.reciprocal": 2,
+    "ttmap.tasks": 2,
+    # 3: files in and out, products, scenario files, the memory model, source location
     "ttmap.io": 3,
     "ttmap.products": 3,
     "ttmap.scenario": 3,
     "ttmap.memory": 3,
+    "ttmap.locate": 3,
     # 4: jobs (map, site-map, scenario run, batch)
     "ttmap.jobs": 4,
-    "ttmap.mapjob": 4,
-    "ttmap.batch": 4,
     # 5: the command line
     "ttmap.cli": 5,
 }
