@@ -236,8 +236,8 @@ def _site_table(path: Path) -> ReportTable:
         margin = _float(r.get("margin_min"))
         status = r.get("budget_status", "") or ""
         note, level = margin_note(margin, left, front, needed, status.startswith("little margin"))
-        values = [
-            r.get("name", ""),
+        values: list[str | float] = [
+            r.get("name", "") or "",
             front,
             _float(r.get("earliest_min")),
             *[_float(r.get(c)) for c in periods],
@@ -248,9 +248,11 @@ def _site_table(path: Path) -> ReportTable:
             status,
             _float(r.get("moved_m")),
         ]
+        margin_col, last = 6 + len(periods), len(values) - 1
         cells = tuple(
-            v if isinstance(v, str) else (f"{v:+.1f}" if i == 6 + len(periods) and math.isfinite(v) else
-                                          _fmt(v, 0 if i == len(values) - 1 else 1))
+            v if isinstance(v, str)
+            else f"{v:+.1f}" if i == margin_col and math.isfinite(v)
+            else _fmt(v, 0 if i == last else 1)
             for i, v in enumerate(values)
         )
         keys = tuple(v.lower() if isinstance(v, str) else _key(v) for v in values)
