@@ -38,7 +38,7 @@ from ttmap.products.cautions import CAUTION_SHORT
 if TYPE_CHECKING:
     from matplotlib.figure import Figure
 
-__all__ = ["render_timeline", "timeline_order", "TIMELINE_COLUMNS"]
+__all__ = ["render_timeline", "timeline_order", "TIMELINE_COLUMNS", "MARGIN_LEVEL_COLORS", "margin_note"]
 
 #: Columns the chart needs (a :class:`ttmap.products.sites.SiteTable` has them).
 TIMELINE_COLUMNS: tuple[str, ...] = (
@@ -61,6 +61,10 @@ _FRONT = "#1e1e1e"
 _ALERT = "#c2362b"  # brick red: the wave comes before people can leave
 _ALERT_BG = "#fbe6e2"
 _LITTLE = "#8a5a00"  # dark ochre: little margin
+#: Colour of the margin text at the right of a row, by level: "alert" (the
+#: wave before people can leave, or a negative margin), "little" (little
+#: margin) and "plain"; the report's site table uses the same colours.
+MARGIN_LEVEL_COLORS: dict[str, str] = {"alert": _ALERT, "little": _LITTLE, "plain": "#222222"}
 _ENERGY = ("#2e5e9e", "#7a4a1e", "#3f7f3f", "#6b3f7f")
 _HATCHES = ("////", "\\\\\\\\", "xxx", "...")
 
@@ -124,10 +128,20 @@ def _period_columns(cols: Mapping[str, Sequence[Any]]) -> list[tuple[str, str]]:
     return out
 
 
-def _right_text(
+def margin_note(
     margin: float, left: float, front: float, needed: float, little: bool
 ) -> tuple[str, str]:
-    """Text at the right of a row and its level: "alert", "little" or "plain"."""
+    """Text at the right of a row and its level: "alert", "little" or "plain".
+
+    Parameters are one site's margin, minutes left, front arrival and minutes
+    needed (NaN where missing) and whether its status is "little margin".
+    The level picks the colour in :data:`MARGIN_LEVEL_COLORS`.
+
+    Examples
+    --------
+    >>> margin_note(-3.0, 12.0, 30.0, 15.0, False)
+    ('margin -3.0 min', 'alert')
+    """
     if not math.isfinite(front):
         return "no arrival computed", "plain"
     if left <= 0.0:
@@ -303,7 +317,7 @@ def render_timeline(
     else:
         little = [0.0 <= m < LITTLE_MARGIN_MIN for m in get["margin_min"]]
     for y in range(n):
-        text, level = _right_text(
+        text, level = margin_note(
             get["margin_min"][y],
             get["minutes_left"][y],
             front[y],
@@ -318,7 +332,7 @@ def render_timeline(
             ha="left",
             va="center",
             fontsize=8,
-            color={"alert": _ALERT, "little": _LITTLE, "plain": "#222222"}[level],
+            color=MARGIN_LEVEL_COLORS[level],
             fontweight="normal" if level == "plain" else "bold",
         )
 
