@@ -254,7 +254,7 @@ def styled_demo(tmp_path_factory: pytest.TempPathFactory) -> tuple[Path, dict[st
     assert result.exit_code == 0, result.output
     expect = _style_demo(out)
     # the comparison products: envelope, first scenario, difference of the demo's two sets
-    from ttmap.products.compare import write_difference, write_envelope
+    from ttmap.jobs.scenario import write_difference, write_envelope
     from ttmap.products.palette import arrival_colors_hex
 
     cmp_dir = out / "compare"

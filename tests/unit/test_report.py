@@ -50,21 +50,23 @@ def run_dir(tmp_path: Path) -> Path:
     (out / "sites.csv").write_text(SITES_CSV, encoding="utf-8")
     (out / "arrival_front.tif").write_bytes(b"not really a tif")
     record = {
-        "ttmap_run_record": 1,
+        "schema": "ttmap-run-record",
+        "schema_version": 2,
         "started_utc": "2026-01-01T00:00:00+00:00",
         "finished_utc": "2026-01-01T00:00:02+00:00",
         "command_line": "ttmap map bathy.tif --source 1,2 <script>alert(1)</script>",
         "inputs": {"bathymetry": {"path": "/data/bathy.tif", "sha256": "ab" * 32, "band": 1, "notes": []}},
         "parameters": {"source": {"kind": "point", "label": "test quake", "crs": "EPSG:4326",
-                                  "params": {"lon": 1, "lat": 2}}, "floor_depth_m": 5.0, "earth": "wgs84"},
-        "grid": {"shape": [10, 20], "crs": "EPSG:4326", "bounds": [0, 0, 2, 1], "geographic": True,
-                 "cell_size_m": [1000.0, 900.0]},
+                                  "params": {"lon": 1, "lat": 2}},
+                       "speed": {"floor_depth_m": 5.0, "earth": "wgs84"}},
+        "grid": {"shape": {"rows": 10, "cols": 20}, "crs": "EPSG:4326",
+                 "bounds": {"left": 0, "bottom": 0, "right": 2, "top": 1}, "geographic": True,
+                 "cell_size_m": {"row_m": 1000.0, "col_m": 900.0}},
         "product_sets": {"front": {"title": "front (long-wave speed, earliest arrival)",
                                    "cells_reached": 150, "water_cells": 160, "arrival_min_range": [0.1, 55.5]}},
         "timings_s": {"total_s": 1.5},
         "versions": {"ttmap": "0.1.0", "numpy": "2.0"},
-        "files_written": [str(out / n) for n in
-                          ("arrival_front.tif", "map_front.png", "sites.csv", "timeline.png", "run.json")],
+        "products": ["arrival_front.tif", "map_front.png", "sites.csv", "timeline.png"],
     }
     (out / "run.json").write_text(json.dumps(record), encoding="utf-8")
     return out

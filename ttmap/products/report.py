@@ -296,7 +296,7 @@ def _source_text(src: Mapping[str, Any]) -> str:
 def _speed_text(record: Mapping[str, Any]) -> str:
     sets = record.get("product_sets") or {}
     titles = [str(v.get("title", k)) for k, v in sets.items()] if isinstance(sets, Mapping) else []
-    params = record.get("parameters") or {}
+    params = (record.get("parameters") or {}).get("speed") or {}
     extra = []
     if params.get("far_field"):
         extra.append("far-field slowdown on")
@@ -308,14 +308,15 @@ def _speed_text(record: Mapping[str, Any]) -> str:
 
 
 def _grid_text(grid: Mapping[str, Any]) -> str:
-    shape = grid.get("shape") or ["?", "?"]
-    cell = grid.get("cell_size_m") or []
-    bounds = grid.get("bounds") or []
-    text = f"{shape[0]} x {shape[1]} cells, {grid.get('crs', '?')}"
-    if len(cell) == 2:
-        text += f", cells about {cell[1] / 1000:.2f} x {cell[0] / 1000:.2f} km"
-    if len(bounds) == 4:
-        text += f"; bounds {bounds[0]:g}, {bounds[1]:g} to {bounds[2]:g}, {bounds[3]:g}"
+    shape = grid.get("shape") or {}
+    cell = grid.get("cell_size_m") or {}
+    bounds = grid.get("bounds") or {}
+    text = f"{shape.get('rows', '?')} x {shape.get('cols', '?')} cells, {grid.get('crs', '?')}"
+    if "row_m" in cell and "col_m" in cell:
+        text += f", cells about {cell['col_m'] / 1000:.2f} x {cell['row_m'] / 1000:.2f} km"
+    if all(k in bounds for k in ("left", "bottom", "right", "top")):
+        text += (f"; bounds {bounds['left']:g}, {bounds['bottom']:g} to "
+                 f"{bounds['right']:g}, {bounds['top']:g}")
     if grid.get("geographic"):
         text += "; solved on the ellipsoid (geographic grid)"
     return text
@@ -343,7 +344,7 @@ def report_context_from_run(out_dir: str | os.PathLike[str], *, title: str | Non
     ----------
     out_dir : path-like
         The run's output folder, holding ``run.json`` and the products it
-        lists under ``files_written``.
+        lists under ``products``.
     title : str, optional
         Page title; by default from the source's label.
 
@@ -378,11 +379,14 @@ def report_context_from_run(out_dir: str | os.PathLike[str], *, title: str | Non
         ) from err
     except (OSError, ValueError) as err:
         raise InputDataError(f"{str(run_json)!r} cannot be read as JSON ({err}); re-run the job") from err
-    if not isinstance(record, dict) or "ttmap_run_record" not in record:
-        raise InputDataError(f"{str(run_json)!r} is not a ttmap run record (no 'ttmap_run_record' key)")
+    if not isinstance(record, dict) or record.get("schema") != "ttmap-run-record":
+        raise InputDataError(
+            f"{str(run_json)!r} is not a ttmap run record (no 'schema': 'ttmap-run-record'); "
+            "give the output folder of a finished run"
+        )
 
     files: list[Path] = []
-    for f in record.get("files_written") or []:
+    for f in record.get("products") or []:
         p = Path(f)
         p = p if p.is_absolute() else out / p
         if p.name != "run.json" and p.exists():
@@ -454,7 +458,7 @@ def report_context_from_run(out_dir: str | os.PathLike[str], *, title: str | Non
             if len(rng) == 2:
                 text += f"; arrivals {rng[0]:.1f} to {rng[1]:.1f} min"
             summary.append((f"Product set {key}", text))
-    summary.append(("Files written", str(len(record.get("files_written") or []))))
+    summary.append(("Files written", str(len(record.get("products") or []))))
     summary.append(("Run record", "run.json (inputs with SHA-256, every parameter, versions, timings)"))
 
     links = [
