@@ -203,8 +203,15 @@ def test_run_record(small_run):
     assert len(record["tasks"]) == 6 and all(t["ok"] for t in record["tasks"])
     assert record["failed"] == []
     assert record["versions"]["ttmap"]
-    assert set(record["timings_s"]) >= {"validate", "solve", "compare", "total"}
-    assert record["products"]["envelope"]["envelope_min"] == str(out / "envelope_min.tif")
+    assert set(record["timings_s"]) >= {"validate_s", "solve_s", "compare_s", "total_s"}
+    assert record["comparisons"]["envelope"]["envelope_min"] == str(out / "envelope_min.tif")
+    # the one run-record schema (docs/run-record.md), as for map and site-map runs
+    from ttmap.jobs.record import validate_run_record
+
+    assert validate_run_record(record) == []
+    assert record["job"] == "scenario"
+    listed = set(record["products"])
+    assert "envelope_min.tif" in listed and all((out / p).exists() for p in listed)
 
 
 def test_run_writes_sites_by_scenarios(small_run):
@@ -260,8 +267,8 @@ def test_run_writes_sites_by_scenarios(small_run):
 
     record = json.loads((out / "run.json").read_text())
     for path in (table, first, png):
-        assert str(path) in record["files_written"]
-    assert str(out / "envelope_min.tif") in record["files_written"]
+        assert path.relative_to(out).as_posix() in record["products"]
+    assert "envelope_min.tif" in record["products"]
     summary = record["sites"]
     assert summary["count"] == 8 and summary["scenarios"] == names
     assert summary["files"]["chart_png"] == str(png)

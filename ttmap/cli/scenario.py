@@ -191,7 +191,7 @@ def run_command(
             + (f" ({kept} kept from an earlier run)" if kept else "")
             + f"; rasters in {out}"
         )
-        products = record["products"]
+        products = record["comparisons"]
         if products.get("envelope"):
             rep.stage(f"envelope: {_first_path(products['envelope'])}")
         for d in products.get("differences", []):

@@ -61,7 +61,7 @@ RUN_RECORD_SCHEMA_VERSION: int = 2
 JOB_KINDS: dict[str, tuple[str, ...]] = {
     "map": ("product_sets",),
     "site-map": ("sites", "sites_skipped", "combined_written"),
-    "scenario": (),
+    "scenario": ("scenarios", "tasks", "failed", "comparisons"),
 }
 
 _VERSION_PACKAGES = ("numpy", "scipy", "scikit-fmm", "rasterio", "shapely", "pyproj", "pyogrio",
@@ -240,6 +240,10 @@ def _json_default(o: Any) -> Any:
         return float(o)
     if isinstance(o, np.bool_):
         return bool(o)
+    if isinstance(o, np.ndarray):
+        return o.tolist()
+    if isinstance(o, (set, frozenset)):
+        return sorted(o)
     return str(o)
 
 

@@ -31,16 +31,6 @@ __all__ = [
 ]
 
 
-def _json_default(value: Any) -> Any:
-    if hasattr(value, "tolist"):
-        return value.tolist()
-    if isinstance(value, (set, frozenset, tuple)):
-        return list(value)
-    if isinstance(value, Path):
-        return str(value)
-    return str(value)
-
-
 def run_scenario_file(
     sf: ScenarioFile,
     *,
@@ -92,7 +82,8 @@ def run_scenario_file(
     import time
 
     from ttmap.jobs.batch import run_tasks
-    from ttmap.io.atomic import atomic_output, check_writable
+    from ttmap.io.atomic import check_writable
+    from ttmap.jobs.record import write_run_record
 
     t_start = time.perf_counter()
     started = _dt.datetime.now(_dt.UTC).replace(microsecond=0).isoformat()
@@ -179,14 +170,14 @@ def run_scenario_file(
             "out_dir": str(out),
         },
         timings_s={
-            **({"validate": validate_s} if validate_s is not None else {}),
-            "solve": solve_s,
-            "compare": compare_s,
-            "total": time.perf_counter() - t_start + (validate_s or 0.0),
+            **({"validate_s": validate_s} if validate_s is not None else {}),
+            "solve_s": solve_s,
+            "compare_s": compare_s,
+            "total_s": time.perf_counter() - t_start + (validate_s or 0.0),
         },
+        out_dir=out,
     )
-    with atomic_output(run_json, overwrite=True) as tmp:
-        Path(tmp).write_text(json.dumps(record, indent=2, default=_json_default) + "\n")
+    write_run_record(record, run_json, overwrite=True)
     record["run_json"] = str(run_json)
     return record
 
@@ -202,39 +193,37 @@ def _scenario_record(
     command_line: str,
     options: Mapping[str, Any],
     timings_s: Mapping[str, float],
+    out_dir: Path,
 ) -> dict[str, Any]:
-    """The run record of a scenario run (written as ``run.json``); built here and only here."""
-    from ttmap.io.raster import file_sha256
-    from ttmap.jobs.record import software_versions
-    from ttmap.products.cautions import CAUTION_SHORT
+    """The run record of a scenario run, in the one schema (:mod:`ttmap.jobs.record`)."""
+    from ttmap.jobs.record import build_run_record, file_entry
 
-    def _file(path: str | None) -> dict[str, Any] | None:
-        if path is None:
-            return None
-        return {"path": path, "sha256": file_sha256(path)}
-
-    source_files = sorted({sc.source_file for sc in sf.scenarios if sc.source_file})
-    record: dict[str, Any] = {
-        "ttmap_record": "scenario run",
-        "started_utc": started_utc,
-        "command_line": command_line,
-        "caution": CAUTION_SHORT,
-        "inputs": {
-            "scenario_file": _file(sf.path),
-            "bathymetry": _file(sf.bathymetry.path),
-            "sites": None
-            if sf.sites_path is None
-            else dict(_file(sf.sites_path) or {}, count=sf.sites_count),
-            "source_files": [_file(p) for p in source_files],
-        },
-        "parameters": {
-            "medium": {k: getattr(spec, k) for k in spec.__dataclass_fields__},
+    inputs: dict[str, Any] = {
+        "scenario_file": file_entry(sf.path),
+        "bathymetry": file_entry(sf.bathymetry.path),
+    }
+    if sf.sites_path is not None:
+        inputs["sites"] = file_entry(sf.sites_path, count=sf.sites_count)
+    for k, path in enumerate(sorted({sc.source_file for sc in sf.scenarios if sc.source_file})):
+        inputs[f"source_file_{k + 1}"] = file_entry(path)
+    rasters = [s.raster for s in summaries if s.ok and s.raster]
+    task_records = [s.record for s in summaries if s.ok and s.record]
+    return build_run_record(
+        job="scenario",
+        started_utc=started_utc,
+        command_line=command_line,
+        inputs=inputs,
+        parameters={
+            "medium": spec.describe(),
             "periods_s": list(sf.speed.periods_s),
             "period_speed": sf.speed.period_speed,
             **options,
         },
-        "scenarios": [sc.describe() for sc in sf.scenarios],
-        "trenches": [
+        timings_s=timings_s,
+        products=[*rasters, *task_records, *_files_written(products)],
+        out_dir=out_dir,
+        scenarios=[sc.describe() for sc in sf.scenarios],
+        trenches=[
             {
                 "name_prefix": t.name_prefix,
                 "polyline": [list(p) for p in t.polyline],
@@ -249,7 +238,7 @@ def _scenario_record(
             }
             for t in sf.trenches
         ],
-        "tasks": [
+        tasks=[
             {
                 "name": s.name,
                 "ok": s.ok,
@@ -261,14 +250,10 @@ def _scenario_record(
             }
             for s in summaries
         ],
-        "failed": [{"name": s.name, "error": s.error} for s in summaries if not s.ok],
-        "products": products,
-        "files_written": _files_written(products),
-        "sites": sites_summary,
-        "versions": software_versions(),
-        "timings_s": dict(timings_s),
-    }
-    return record
+        failed=[{"name": s.name, "error": s.error} for s in summaries if not s.ok],
+        comparisons=dict(products),
+        sites=sites_summary,
+    )
 
 
 def _write_sites_x_scenarios(
