@@ -43,6 +43,10 @@ __all__ = ["WavePath", "trace_wave_paths", "PATH_STEP_CELLS"]
 #: Step of the descent, in grid cells.
 PATH_STEP_CELLS: float = 0.5
 
+# Relative disagreement of the two one-sided differences beyond which a cell is
+# taken to sit on a kink of the field and the upwind difference is used.
+_KINK = 0.5
+
 #: Why a path ended: ``source`` (times stopped decreasing, or ``stop_time_s``
 #: was reached), ``no-time`` (it ran into land or unreached cells), ``steps``
 #: (``max_steps`` taken), ``off-grid`` (the site has no arrival time).
@@ -132,12 +136,29 @@ class _Field:
         with np.errstate(invalid="ignore", divide="ignore"):
             return np.where(total >= 0.5, acc / total, np.nan)
 
-    def _diff(self, t0: FloatArray, lo: FloatArray, hi: FloatArray) -> FloatArray:
-        """Central difference per index step, one-sided where one side is missing."""
+    @staticmethod
+    def _one_sided(t0: FloatArray, lo: FloatArray, hi: FloatArray) -> tuple[FloatArray, FloatArray]:
+        """Backward and forward differences per index step (NaN where a side is missing)."""
+        return t0 - lo, hi - t0
+
+    @staticmethod
+    def _diff(lo: FloatArray, hi: FloatArray, t_lo: FloatArray, t_hi: FloatArray, t0: FloatArray,
+              scale: FloatArray) -> FloatArray:
+        """Derivative per index step along one axis.
+
+        Central where both sides agree (a smooth field); where they differ by
+        more than a quarter of the largest one-sided difference (a kink: a
+        speed step, the source, a meeting of fronts) the upwind side, the one
+        the wave came from, as the fast march itself; zero along an axis where
+        the cell is a minimum; one-sided next to land or unreached cells.
+        """
         both = np.isfinite(lo) & np.isfinite(hi)
-        d = np.where(both, 0.5 * (hi - lo), 0.0)
-        d = np.where(~both & np.isfinite(hi), hi - t0, d)
-        d = np.where(~both & np.isfinite(lo), t0 - lo, d)
+        smooth = both & (np.abs(hi - lo) <= _KINK * scale)
+        upwind = np.where(t_lo < t_hi, lo, hi)
+        d = np.where(smooth, 0.5 * (lo + hi), np.where(both, upwind, 0.0))
+        d = np.where(both & ~smooth & (np.minimum(t_lo, t_hi) >= t0), 0.0, d)
+        d = np.where(~both & np.isfinite(hi), hi, d)
+        d = np.where(~both & np.isfinite(lo), lo, d)
         return np.asarray(np.where(np.isfinite(d), d, 0.0))
 
     def direction(self, v: FloatArray, u: FloatArray) -> tuple[FloatArray, FloatArray, BoolArray]:
@@ -152,8 +173,13 @@ class _Field:
         for r, c, w in self._corners(v, u):
             t0 = self.at(r, c)
             ok = np.isfinite(t0)
-            dv = self._diff(t0, self.at(r - 1, c), self.at(r + 1, c))
-            du = self._diff(t0, self.at(r, c - 1), self.at(r, c + 1))
+            t_n, t_s = self.at(r - 1, c), self.at(r + 1, c)
+            t_w, t_e = self.at(r, c - 1), self.at(r, c + 1)
+            bv, fv = self._one_sided(t0, t_n, t_s)
+            bu, fu = self._one_sided(t0, t_w, t_e)
+            scale = np.nanmax(np.abs(np.stack([bv, fv, bu, fu])), axis=0, initial=0.0)
+            dv = self._diff(bv, fv, t_n, t_s, t0, scale)
+            du = self._diff(bu, fu, t_w, t_e, t0, scale)
             w = np.where(ok, w, 0.0)
             gv += w * dv
             gu += w * du
