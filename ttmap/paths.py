@@ -126,6 +126,10 @@ class _Field:
 
     def value(self, v: FloatArray, u: FloatArray) -> FloatArray:
         """Bilinear time at fractional cells, over finite corners (NaN if they weigh < 1/2)."""
+        return self.value_and_support(v, u)[0]
+
+    def value_and_support(self, v: FloatArray, u: FloatArray) -> tuple[FloatArray, FloatArray]:
+        """Bilinear time and the weight of its finite corners (1 away from land)."""
         total = np.zeros(v.shape)
         acc = np.zeros(v.shape)
         for r, c, w in self._corners(v, u):
@@ -134,7 +138,7 @@ class _Field:
             total += np.where(ok, w, 0.0)
             acc += np.where(ok, w * np.where(ok, t, 0.0), 0.0)
         with np.errstate(invalid="ignore", divide="ignore"):
-            return np.where(total >= 0.5, acc / total, np.nan)
+            return np.where(total >= 0.5, acc / total, np.nan), total
 
     @staticmethod
     def _one_sided(t0: FloatArray, lo: FloatArray, hi: FloatArray) -> tuple[FloatArray, FloatArray]:
@@ -287,10 +291,11 @@ def trace_wave_paths(
         du2 = np.where(ok2, du2, np.where(ok1, du1, 0.0))
         vn = vv + step * dv2
         un = uu + step * du2
-        tn = f.value(vn, un)
+        tn, support = f.value_and_support(vn, un)
         flat = ~ok1
-        no_time = ok1 & ~np.isfinite(tn)
-        uphill = ok1 & np.isfinite(tn) & (tn >= tt)
+        # Not decreasing where the next point leans on missing cells: land, not the source.
+        no_time = ok1 & (~np.isfinite(tn) | ((tn >= tt) & (support < 1.0 - 1e-9)))
+        uphill = ok1 & np.isfinite(tn) & (tn >= tt) & ~no_time
         good = ok1 & np.isfinite(tn) & (tn < tt)
         ends[idx[flat | uphill]] = "source"
         ends[idx[no_time]] = "no-time"
