@@ -12,10 +12,10 @@ What is measured, each in a fresh process (wall clock and peak memory):
   inside it (the cost of solving a grid of the nest's size);
 - *nested run*: the basin solve, then ``solve_nest`` from its arrival field.
 
-Goal: the nested run within 1.3 x (basin + nest alone) in time, and its peak memory
-within the larger of the two alone (the nest's arrays are freed before... no: the
-basin's arrival field is kept while the nest is solved, so the expected peak is the
-basin's peak or the basin's result plus the nest's peak, whichever is larger).
+Goal: the nested run within 1.3 x (basin + nest alone) in time. Memory: the
+basin's arrival field is kept while the nest is solved, so the nested peak is
+expected near the larger of the basin's peak and the basin's result plus the
+nest's peak; the ratio to the larger peak alone is printed.
 
 Peak memory: ``ru_maxrss`` of the fresh process minus its level after imports and
 after loading the input ``.npy`` files (call), as in bench_engine.py. The
