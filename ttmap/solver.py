@@ -22,6 +22,25 @@ masked (land) cells, as if the land were outside the region; the pre-pass is
 run as periodic as the march so that it finds them too, and the caller gives
 their times as well.
 
+Solving from given times
+------------------------
+:func:`march_from_times_s` starts a march from a set of cells whose arrival
+times are prescribed (a Dirichlet boundary for the eikonal equation, e.g. the
+times a coarse solve gives along a nested grid's edge), not from a zero level
+set. It is the exact start band above, used with a start front of time zero:
+the given set is eroded by one cell (land and the array's edge count as given)
+into a start region whose every frozen neighbour, on both sides of its edge,
+lies in the given set. Every cell outside the region that scikit-fmm freezes
+therefore gets exactly its given time through its speed, whatever the times
+are (they need not be one level), and the march goes on from them in time
+order. scikit-fmm's second-order stencil reads a frozen cell across the start
+front with its sign flipped (right for one front of time zero, wrong for
+times that vary along the boundary); the region's own frozen cells are given a
+time later than every fixed time, which keeps them out of that stencil. So the
+first ring of marched cells takes a first-order step (exact for a locally
+plane front, local error O(h^2) otherwise), and every ring after it the usual
+second-order step. Nothing of scikit-fmm's interpolation of ``phi`` survives.
+
 Memory
 ------
 Beyond scikit-fmm's own work arrays, a solve allocates one full-size array:
@@ -42,7 +61,7 @@ import numpy as np
 from ttmap._typing import BoolArray, FloatArray
 from ttmap.errors import SolverError
 
-__all__ = ["fast_march_s"]
+__all__ = ["fast_march_s", "march_from_times_s"]
 
 
 def _window(
@@ -269,6 +288,139 @@ def fast_march_s(
         out = np.array(out, dtype=np.float64)
     np.copyto(out, np.nan, where=wall)
     out[rs, cs][start_w] = np.nan
+    if max_time_s is not None:
+        with np.errstate(invalid="ignore"):
+            np.copyto(out, np.nan, where=out > max_time_s)
+    return out
+
+
+def march_from_times_s(
+    speed_m_s: Any,
+    *,
+    barrier: Any,
+    fixed_cells: tuple[Any, Any],
+    fixed_time_s: Any,
+    spacing_m: tuple[float, float],
+    periodic_x: bool = False,
+    max_time_s: float | None = None,
+    borrow_speed: bool = False,
+) -> FloatArray:
+    """Second-order fast-marching time from cells with prescribed times.
+
+    Parameters
+    ----------
+    speed_m_s : ndarray of shape (rows, cols), float, m/s
+        Speed on the solve grid; finite and positive off the barrier.
+    barrier : ndarray of shape (rows, cols), bool
+        Cells the front may not enter (land).
+    fixed_cells : (rows, cols) pair of 1-D int arrays
+        Cells whose arrival times are given. To start anything they must
+        hold a band at least two cells thick (for a nested grid: the two
+        outermost rings of cells); a one-cell set starts nothing.
+    fixed_time_s : 1-D float array, seconds
+        Finite, non-negative arrival time at each fixed cell.
+    spacing_m : (row_spacing_m, col_spacing_m)
+        Cell size along each array axis, metres.
+    periodic_x : bool
+        The columns wrap around.
+    max_time_s : float, optional
+        Cells later than this time are NaN.
+    borrow_speed : bool
+        As in :func:`fast_march_s`.
+
+    Returns
+    -------
+    ndarray of shape (rows, cols), float64, seconds
+        Arrival time: the given time at the fixed cells scikit-fmm freezes
+        and at the start region, the march elsewhere; NaN on the barrier
+        and where the front never arrives.
+
+    Raises
+    ------
+    SolverError
+        Lengths differ, a fixed cell lies outside the grid, a time is NaN,
+        infinite or negative, no fixed water cell lies two cells deep in
+        the fixed set, or the march fails (see :func:`fast_march_s`).
+
+    Notes
+    -----
+    Exact start: the start region is the set of fixed water cells all of
+    whose 4-neighbours are fixed or barrier (or beyond the array's edge).
+    scikit-fmm freezes the region's edge cells and their outside
+    neighbours, all of them fixed, and each gets its given time exactly
+    (see the module notes). A fixed cell that is not frozen (next to water
+    that is not fixed, and away from the region) is marched like any other.
+    The given times are trusted: a frozen cell is never made earlier by the
+    march, as a boundary condition should behave.
+
+    Examples
+    --------
+    >>> speed = np.full((6, 8), 2.0)
+    >>> rows, cols = np.nonzero(np.add.outer(np.arange(6), np.zeros(8)) >= 0)
+    >>> left = cols < 2
+    >>> t = march_from_times_s(speed, barrier=np.zeros((6, 8), bool),
+    ...     fixed_cells=(rows[left], cols[left]), fixed_time_s=10.0 + cols[left] / 2.0,
+    ...     spacing_m=(1.0, 1.0))
+    >>> [round(float(v), 6) for v in t[3, :]]
+    [10.0, 10.5, 11.0, 11.5, 12.0, 12.5, 13.0, 13.5]
+    """
+    speed = np.asarray(speed_m_s, dtype=np.float64)
+    wall: BoolArray = np.asarray(barrier, dtype=bool)
+    if speed.ndim != 2 or speed.shape != wall.shape:
+        raise SolverError(f"speed {speed.shape} and barrier {wall.shape} must be 2-D arrays of one shape")
+    f_rows = np.asarray(fixed_cells[0], dtype=np.intp)
+    f_cols = np.asarray(fixed_cells[1], dtype=np.intp)
+    f_time = np.asarray(fixed_time_s, dtype=np.float64)
+    if not (f_rows.ndim == 1 and f_rows.shape == f_cols.shape == f_time.shape):
+        raise SolverError("fixed cells and fixed times must be 1-D arrays of one length")
+    rows, cols = int(speed.shape[0]), int(speed.shape[1])
+    if f_rows.size and (
+        f_rows.min() < 0 or f_rows.max() >= rows or f_cols.min() < 0 or f_cols.max() >= cols
+    ):
+        raise SolverError(f"a fixed cell lies outside the {rows} x {cols} grid; this is a bug in the caller")
+    if f_time.size and not (np.isfinite(f_time).all() and float(f_time.min()) >= 0.0):
+        raise SolverError(
+            "fixed times must be finite and >= 0 s; leave cells without a time out of the fixed set"
+        )
+    fixed = np.zeros(speed.shape, dtype=bool)
+    fixed[f_rows, f_cols] = True
+    fixed &= ~wall
+    # The start region: fixed water cells whose 4-neighbours are all fixed or barrier
+    # (beyond the edge counts as fixed; along a periodic axis the columns wrap).
+    given = fixed | wall
+    region = fixed.copy()
+    region[1:, :] &= given[:-1, :]
+    region[:-1, :] &= given[1:, :]
+    region[:, 1:] &= given[:, :-1]
+    region[:, :-1] &= given[:, 1:]
+    if periodic_x:
+        region[:, 0] &= given[:, -1]
+        region[:, -1] &= given[:, 0]
+    del given
+    if not region.any():
+        raise SolverError(
+            "no fixed water cell has only fixed or land neighbours; give times on a band "
+            "at least two cells thick"
+        )
+    late_s = 2.0 * float(f_time.max()) + 1.0
+    out = fast_march_s(
+        speed,
+        barrier=wall,
+        inside=region,
+        band_cells=(f_rows, f_cols),
+        # Region cells are only ever read by scikit-fmm as the second cell of a
+        # second-order stencil across the start front, where it negates them (it
+        # assumes one front of time zero). A value later than every fixed time keeps
+        # them out of that stencil: the first ring marched takes a first-order step
+        # from its frozen neighbour, every later ring the second-order one.
+        band_time_s=np.where(region[f_rows, f_cols], -late_s, f_time),
+        spacing_m=spacing_m,
+        periodic_x=periodic_x,
+        max_time_s=max_time_s,
+        borrow_speed=borrow_speed,
+    )
+    in_region = region[f_rows, f_cols]
+    out[f_rows[in_region], f_cols[in_region]] = f_time[in_region]
     if max_time_s is not None:
         with np.errstate(invalid="ignore"):
             np.copyto(out, np.nan, where=out > max_time_s)
