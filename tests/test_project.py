@@ -234,6 +234,8 @@ LAYERS: dict[str, int] = {
     "ttmap.traveltime": 2,
     "ttmap.sitemap": 2,
     "ttmap.reciprocal": 2,
+    "ttmap.nesting": 2,
+    "ttmap.paths": 2,
     "ttmap.tasks": 2,
     # 3: files in and out, products, scenario files, the memory model, source location
     "ttmap.io": 3,
