@@ -206,7 +206,8 @@ def run_locate_job(
         raise InputDataError(f"output folder {str(out)!r} is a file; give a folder name")
     targets = [out / n for n in LOCATE_FILES]
     run_json = out / "run.json"
-    check_writable([*targets, run_json], overwrite)
+    if out.is_dir():
+        check_writable([*targets, run_json], overwrite)
 
     # 1. Picks, checked before anything is solved.
     picks = read_picks(picks_path, layer=picks_layer)
@@ -283,7 +284,7 @@ def run_locate_job(
     t0 = time.perf_counter()
     best_lon, best_lat = _lonlat(grid, loc.best_x, loc.best_y)
     best_origin_utc = (
-        (ref_utc + _dt.timedelta(seconds=loc.best_origin_time_s)).isoformat()
+        (ref_utc + _dt.timedelta(seconds=round(loc.best_origin_time_s))).isoformat()
         if (ref_utc is not None) else None
     )
     origin_ref_text = (
@@ -315,6 +316,8 @@ def run_locate_job(
         "speed_model": mode + (f" T = {period:g} s" if period else ""),
         "caution": LOCATE_CAUTION,
     }
+    out.mkdir(parents=True, exist_ok=True)  # only now: a refused run leaves nothing behind
+    check_writable([*targets, run_json], overwrite)
     _write_products(targets, grid, medium, loc, residual_rows, picks, snapped, summary, overwrite)
     write_s = time.perf_counter() - t0
 
