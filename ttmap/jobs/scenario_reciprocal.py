@@ -508,8 +508,8 @@ def _write_table(
     check_writable(targets, overwrite)
     table = sites_by_scenarios_from_values(sites, snapped, front_at, energy_at)
     first_t = earliest_by_site(table)
-    table_notes, first_notes = sites_by_scenarios_notes()
-    table_notes = [*table_notes, "arrivals by reciprocity: one solve per site and speed model "
+    base_notes, first_notes = sites_by_scenarios_notes()
+    table_notes = [*base_notes, "arrivals by reciprocity: one solve per site and speed model "
                                  "(docs/reciprocal.md)"]
     decimals = {k: 2 for k in table if k.endswith("_min") or k.startswith("minutes_")}
     decimals["moved_m"] = 0
