@@ -53,13 +53,13 @@ def test_every_cli_default_equals_the_option_group_default():
 
 def test_one_search_radius_name_across_commands():
     params = _cli_params()
-    commands = {c for c in ("map", "site-map") if any(p.name == "site_search_radius_km"
-                                                        for p in cli.commands[c].params)}
-    assert commands == {"map", "site-map"}
+    commands = {c for c in ("map", "site-map", "locate") if any(p.name == "site_search_radius_km"
+                                                                  for p in cli.commands[c].params)}
+    assert commands == {"map", "site-map", "locate"}
     alias = [p for p in cli.commands["site-map"].params if p.name == "site_snap_radius_km"]
     assert alias and alias[0].hidden  # the old name still works, out of sight
     assert "site_snap_radius_km" not in {p.name for p in cli.commands["map"].params}
-    assert len(params["site_search_radius_km"]) == 2
+    assert len(params["site_search_radius_km"]) == 3  # map, site-map, locate
 
 
 @pytest.mark.parametrize(

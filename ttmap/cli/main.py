@@ -67,6 +67,7 @@ def cli(ctx: click.Context, verbose: bool, quiet: bool) -> None:
 def _register() -> None:
     from ttmap.cli.demo import demo
     from ttmap.cli.info import info
+    from ttmap.cli.locate import locate_command
     from ttmap.cli.map import map_command
     from ttmap.cli.scenario import scenario
     from ttmap.cli.sitemap import site_map_command
@@ -76,6 +77,7 @@ def _register() -> None:
     cli.add_command(scenario)
     cli.add_command(demo)
     cli.add_command(info)
+    cli.add_command(locate_command)
 
 
 _register()

@@ -134,6 +134,13 @@ class _Progress:
     help="Keep rasters finished by an earlier run and skip their solves. The envelope, "
     "differences and run.json are rebuilt from the rasters on every run.",
 )
+@click.option(
+    "--direct",
+    is_flag=True,
+    help="Solve every scenario directly for the sites x scenarios table and the envelope "
+    "(one raster each), instead of the reciprocal path (one solve per site; one union solve "
+    "for the envelope) that is used when it is cheaper. See the file's outputs.table_method.",
+)
 @verbosity_options
 @click.pass_context
 def run_command(
@@ -144,6 +151,7 @@ def run_command(
     out_dir: str | None,
     overwrite: bool,
     resume: bool,
+    direct: bool,
 ) -> None:
     """Solve every scenario of FILE, then write the envelope and difference rasters.
 
@@ -156,18 +164,30 @@ def run_command(
     """
     from ttmap.products.cautions import CAUTION_SHORT
     from ttmap.jobs.scenario import run_scenario_file
+    from ttmap.jobs.scenario_reciprocal import plan_table_method
 
     t0 = time.perf_counter()
     sf = _load_or_exit(ctx, file)
     validate_s = time.perf_counter() - t0
+    plan = plan_table_method(sf, direct=direct)
     with reporter(ctx) as rep:
         ex = executor or sf.outputs.executor or "local"
         n_workers = workers or sf.outputs.workers
         rep.stage(
-            f"{len(sf.scenarios)} scenarios, {sf.solve_count} solves, executor {ex}"
+            f"{len(sf.scenarios)} scenarios, {plan.total_solves} solves, executor {ex}"
             + (f", {n_workers} workers" if n_workers and ex == "local" else "")
         )
-        progress = _Progress(sf.solve_count, rep.quiet)
+        if plan.method == "reciprocal":
+            rep.stage(
+                f"sites x scenarios and envelope: reciprocal path ({plan.reason}): "
+                f"{plan.site_solves} site solve(s)"
+                + (f", envelope from {plan.envelope_solves} solve(s)" if plan.envelope_one_solve
+                   else "")
+                + f", {plan.raster_solves} raster solve(s); --direct to solve every scenario"
+            )
+        else:
+            rep.stage(f"sites x scenarios and envelope: direct path ({plan.reason})")
+        progress = _Progress(plan.total_solves, rep.quiet)
         try:
             record = run_scenario_file(
                 sf,
@@ -179,6 +199,7 @@ def run_command(
                 progress=progress,
                 validate_s=validate_s,
                 command_line=shlex.join(["ttmap", *sys.argv[1:]]),
+                direct=direct,
             )
         finally:
             progress.close()
@@ -191,6 +212,8 @@ def run_command(
             + (f" ({kept} kept from an earlier run)" if kept else "")
             + f"; rasters in {out}"
         )
+        params = record["parameters"]
+        rep.stage(f"table method: {params['table_method']} ({params['table_method_reason']})")
         products = record["comparisons"]
         if products.get("envelope"):
             rep.stage(f"envelope: {_first_path(products['envelope'])}")

@@ -84,6 +84,8 @@ if TYPE_CHECKING:
 
 __all__ = [
     "TaskSummary",
+    "map_calls",
+    "medium_for_spec",
     "run_tasks",
     "task_output_paths",
 ]
@@ -709,6 +711,120 @@ def _run_on_dask(
                     ),
                 )
             finished(summary)
+    finally:
+        if client is not None:
+            client.close()
+        if cluster is not None:
+            cluster.close()
+
+
+# ---------------------------------------------------------------------------
+# Calls that return small results (reciprocal site solves, gauge solves)
+# ---------------------------------------------------------------------------
+
+
+def medium_for_spec(
+    spec: MediumSpec, mode: str = "long-wave", period_s: float | None = None,
+    bathymetry_sha256: str | None = None,
+) -> Medium:
+    """The prepared medium of ``spec`` in this process, built once and cached.
+
+    For functions run through :func:`map_calls`: every task of one worker
+    shares the bathymetry read and the medium built (and the file's SHA-256,
+    when given, is checked as for :func:`run_tasks`).
+    """
+    return _medium_for(spec, bathymetry_sha256, mode, period_s)
+
+
+def map_calls(
+    fn: Callable[[Any, Any], Any],
+    items: Sequence[Any],
+    shared: Any = None,
+    *,
+    executor: str = "serial",
+    n_workers: int | None = None,
+    progress: ProgressFn | None = None,
+    names: Sequence[str] | None = None,
+) -> list[Any]:
+    """``[fn(item, shared) for item in items]``, serially or on Dask, in order.
+
+    For tasks whose results are small (a table row, running sums): nothing is
+    written, the results come back to the caller. ``shared`` (e.g. the
+    scenario start cells) is sent to each worker once (``scatter``,
+    broadcast). ``fn`` must be a module-level function (it is pickled).
+    A failing call raises its error here (the first one, by item order).
+
+    Parameters
+    ----------
+    fn : callable ``(item, shared) -> result``
+    items : sequence
+    shared : any, optional
+    executor, n_workers
+        As for :func:`run_tasks`.
+    progress : callable, optional
+        ``progress(done, total, name)`` after each call.
+    names : sequence of str, optional
+        Names for ``progress`` (default ``"call <i>"``).
+    """
+    problem = check_executor(executor)
+    if problem:
+        raise InputDataError(problem)
+    items = list(items)
+    labels = list(names) if names is not None else [f"call {i}" for i in range(len(items))]
+    total = len(items)
+    if not items:
+        return []
+    if executor == "serial":
+        out = []
+        try:
+            for i, item in enumerate(items):
+                out.append(fn(item, shared))
+                if progress is not None:
+                    progress(i + 1, total, labels[i])
+        finally:
+            _clear_cache()
+        return out
+    distributed = _import_distributed()
+    cluster = client = None
+    try:
+        if executor == "local":
+            n = n_workers or max(1, min(os.cpu_count() or 1, total))
+            cluster = distributed.LocalCluster(
+                n_workers=n, threads_per_worker=1, processes=True, dashboard_address=None,
+                host="127.0.0.1", scheduler_kwargs={"dashboard_address": "127.0.0.1:0"},
+            )
+            client = distributed.Client(cluster)
+        else:
+            try:
+                client = distributed.Client(executor, timeout=f"{CONNECT_TIMEOUT_S:g}s")
+            except (OSError, TimeoutError) as err:
+                raise InputDataError(
+                    f"cannot reach the Dask scheduler at {executor!r} ({_one_line(str(err))}); "
+                    "start it (dask scheduler) and its workers, or use --executor local"
+                ) from err
+        shared_f = client.scatter(shared, broadcast=True) if shared is not None else None
+        token = hashlib.sha256(f"{time.time_ns()}-{os.getpid()}".encode()).hexdigest()[:10]
+        futures = [
+            client.submit(fn, item, shared_f, key=f"ttmap-call-{i}-{token}", pure=False,
+                          priority=total - i)
+            for i, item in enumerate(items)
+        ]
+        index = {f.key: i for i, f in enumerate(futures)}
+        results: list[Any] = [None] * total
+        errors: dict[int, BaseException] = {}
+        done = 0
+        for fut in distributed.as_completed(futures):
+            i = index[fut.key]
+            try:
+                results[i] = fut.result()
+            except Exception as err:  # noqa: BLE001 - re-raised below, first by order
+                errors[i] = err
+            done += 1
+            if progress is not None:
+                progress(done, total, labels[i])
+        if errors:
+            raise errors[min(errors)]
+        return results
     finally:
         if client is not None:
             client.close()

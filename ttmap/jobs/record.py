@@ -62,6 +62,7 @@ JOB_KINDS: dict[str, tuple[str, ...]] = {
     "map": ("product_sets",),
     "site-map": ("sites", "sites_skipped", "combined_written"),
     "scenario": ("scenarios", "tasks", "failed", "comparisons"),
+    "locate": ("location", "picks"),
 }
 
 _VERSION_PACKAGES = ("numpy", "scipy", "scikit-fmm", "rasterio", "shapely", "pyproj", "pyogrio",
@@ -162,7 +163,7 @@ def build_run_record(
 
     Parameters
     ----------
-    job : {"map", "site-map", "scenario"}
+    job : {"map", "site-map", "scenario", "locate"}
         The job that ran.
     started_utc : str
         From :func:`utc_now` when the job started.

@@ -42,6 +42,7 @@ def run_scenario_file(
     progress: Any = None,
     command_line: str = "",
     validate_s: float | None = None,
+    direct: bool = False,
 ) -> dict[str, Any]:
     """Solve every scenario of a file, then write the comparisons and ``run.json``.
 
@@ -65,6 +66,10 @@ def run_scenario_file(
         Passed to :func:`ttmap.jobs.batch.run_tasks`.
     command_line : str
         Recorded in ``run.json``.
+    direct : bool
+        Solve every scenario directly for the table and the envelope, whatever
+        ``[outputs] table_method`` says (see
+        :func:`ttmap.jobs.scenario_reciprocal.plan_table_method`).
 
     Returns
     -------
@@ -100,7 +105,19 @@ def run_scenario_file(
     derived_overwrite = overwrite or resume
     check_writable([run_json], derived_overwrite)
 
+    from ttmap.jobs.scenario_reciprocal import plan_table_method, run_reciprocal_products
+
+    plan = plan_table_method(sf, direct=direct)
     spec, tasks = scenario_tasks(sf)
+    if plan.method == "reciprocal":
+        keep = set(plan.raster_scenarios)
+        tasks = [t for t in tasks if t.meta.get("scenario") in keep
+                 and (plan.raster_periods or t.meta.get("product") == "front")]
+
+    def raster_progress(done: int, _total: int, name: str) -> None:
+        if progress is not None:
+            progress(done, plan.total_solves, name)
+
     t0 = time.perf_counter()
     summaries = run_tasks(
         tasks,
@@ -110,7 +127,7 @@ def run_scenario_file(
         n_workers=nw,
         overwrite=overwrite,
         resume=resume,
-        progress=progress,
+        progress=raster_progress,
         tags={"SCENARIO_FILE": Path(sf.path).name},
     )
     solve_s = time.perf_counter() - t0
@@ -124,8 +141,19 @@ def run_scenario_file(
 
     t1 = time.perf_counter()
     products: dict[str, Any] = {"envelope": None, "differences": [], "skipped": []}
+    reciprocal_sites: dict[str, Any] | None = None
+    if plan.method == "reciprocal":
+        rec_env, reciprocal_sites, rec_info = run_reciprocal_products(
+            sf, spec, out, plan, fronts=fronts, executor=ex, n_workers=nw,
+            overwrite=derived_overwrite, progress=progress, progress_offset=len(tasks),
+        )
+        if rec_env["files"] is not None:
+            products["envelope"] = _product_paths(rec_env["files"])
+            products["envelope_method"] = "one solve (union of starts, labels carried)"
+            rec_info["envelope"] = rec_env["info"]
+        products["reciprocal"] = rec_info
     if sf.outputs.envelope or sf.outputs.compare:
-        if sf.outputs.envelope:
+        if sf.outputs.envelope and not plan.envelope_one_solve:
             if len(fronts) >= 2:
                 names = list(fronts)
                 env = write_envelope(
@@ -146,7 +174,13 @@ def run_scenario_file(
             diff = write_difference(str(out), fronts[a], fronts[b], a, b, derived_overwrite)
             products["differences"].append({"a": a, "b": b, "files": _product_paths(diff)})
     sites_summary: dict[str, Any] | None = None
-    if sf.sites_path is not None:
+    if reciprocal_sites is not None:
+        sites_summary = reciprocal_sites
+        if sites_summary.get("files"):
+            products["sites"] = sites_summary["files"]
+        else:
+            products["skipped"].append(f"sites by scenarios: {sites_summary.get('skipped')}")
+    elif sf.sites_path is not None:
         sites_summary = _write_sites_x_scenarios(sf, out, fronts, by_name, derived_overwrite)
         if sites_summary.get("files"):
             products["sites"] = sites_summary["files"]
@@ -168,6 +202,10 @@ def run_scenario_file(
             "overwrite": overwrite,
             "resume": resume,
             "out_dir": str(out),
+            "table_method": plan.method,
+            "table_method_reason": plan.reason,
+            "scenario_rasters": sf.outputs.scenario_rasters,
+            "table_method_setting": "direct" if direct else sf.outputs.table_method,
         },
         timings_s={
             **({"validate_s": validate_s} if validate_s is not None else {}),

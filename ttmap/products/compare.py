@@ -51,6 +51,7 @@ __all__ = [
     "check_scenario_names",
     "comparison_tags",
     "sites_by_scenarios",
+    "sites_by_scenarios_from_values",
     "sites_by_scenarios_notes",
     "earliest_by_site",
     "render_sites_by_scenarios",
@@ -354,7 +355,64 @@ def sites_by_scenarios(
     energy_at: dict[tuple[str, float], list[float]] = {}
     for (sc, t), field in energy_by.items():
         energy_at[(sc, t)] = _values(field, f"energy of {sc}, T = {t:g} s")
+    return sites_by_scenarios_from_values(
+        sites, snapped, front_at, energy_at, notification_delay_min=notification_delay_min,
+        preparation_min=preparation_min, walking_speed_m_s=walking_speed_m_s,
+        little_margin_min=little_margin_min,
+    )
 
+
+def sites_by_scenarios_from_values(
+    sites: Any,
+    snapped: Sequence[Any],
+    front_at: Mapping[str, Sequence[float]],
+    energy_at: Mapping[tuple[str, float], Sequence[float]] | None = None,
+    *,
+    notification_delay_min: float | None = None,
+    preparation_min: float | None = None,
+    walking_speed_m_s: float | None = None,
+    little_margin_min: float | None = None,
+) -> dict[str, list[Any]]:
+    """The rows of :func:`sites_by_scenarios` from values already read at the sites.
+
+    Parameters
+    ----------
+    sites : SiteList
+    snapped : sequence of SnappedSite
+        One per site (:func:`ttmap.products.sites.snap_sites`), in site order.
+    front_at : mapping of scenario name to sequence of float, minutes
+        Front arrival of each scenario at each site (NaN: no arrival), in
+        site order; e.g. read from rasters at the snapped cells, or a row of
+        the reciprocal table (:mod:`ttmap.reciprocal`).
+    energy_at : mapping of (scenario, period_s) to sequence of float, optional
+        Energy arrivals, minutes, in site order.
+    notification_delay_min, preparation_min, walking_speed_m_s, little_margin_min
+        As for :func:`sites_by_scenarios`.
+
+    Returns
+    -------
+    dict of str to list
+        The columns of :func:`sites_by_scenarios`.
+    """
+    from ttmap.products import budget as _budget
+    from ttmap.products.sites import period_label
+
+    names = check_scenario_names(list(front_at), "scenario")
+    if len(snapped) != len(sites):
+        raise InputDataError(f"{len(snapped)} snapped cells for {len(sites)} sites; give one per site")
+    for n in names:
+        if len(front_at[n]) != len(sites):
+            raise InputDataError(
+                f"{len(front_at[n])} front values for scenario {n!r} but {len(sites)} sites"
+            )
+    energy_at = {(str(sc), float(t)): v for (sc, t), v in (energy_at or {}).items()}
+    periods = sorted({t for _, t in energy_at})
+    defaults = _budget_defaults(notification_delay_min, preparation_min, walking_speed_m_s)
+    little = LITTLE_MARGIN_MIN if little_margin_min is None else float(little_margin_min)
+    _budget.warning_budget(
+        None, defaults["notification_delay_min"], defaults["preparation_min"], None,
+        defaults["walking_speed_m_s"], little_margin_min=little,
+    )
     labels = [period_label(t) for t in periods]
     cols: dict[str, list[Any]] = {k: [] for k in ("site", "scenario", "status", "moved_m", "front_min")}
     for lab in labels:
@@ -362,7 +420,7 @@ def sites_by_scenarios(
     for k in ("minutes_left", "minutes_needed", "margin_min", "budget_status", "earliest_for_site"):
         cols[k] = []
     for i, (site, snap) in enumerate(zip(sites, snapped, strict=True)):
-        fronts_here = [front_at[n][i] for n in names]
+        fronts_here = [float(front_at[n][i]) for n in names]
         finite = [f for f in fronts_here if math.isfinite(f)]
         first = min(finite) if finite else math.nan
         values = {
@@ -385,7 +443,7 @@ def sites_by_scenarios(
             cols["front_min"].append(front)
             for lab, t in zip(labels, periods, strict=True):
                 got = energy_at.get((n, t))
-                cols[f"energy_T{lab}s_min"].append(got[i] if got is not None else math.nan)
+                cols[f"energy_T{lab}s_min"].append(float(got[i]) if got is not None else math.nan)
             cols["minutes_left"].append(b.minutes_left)
             cols["minutes_needed"].append(b.minutes_needed)
             cols["margin_min"].append(b.margin_min)

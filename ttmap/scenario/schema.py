@@ -52,6 +52,8 @@ of arrays are counted from 1 in messages)::
     compare = [["a", "b"]]          # difference rasters: arrival of a minus arrival of b
     executor = "local"              # "serial", "local" or a scheduler address
     workers = 4
+    table_method = "auto"           # sites x scenarios and envelope: "auto", "reciprocal", "direct"
+    scenario_rasters = true         # false: no raster per scenario (table and envelope only)
 
 The rectangles of a ``[[trench]]`` are centred on the polyline, each
 ``spacing_km`` (geodesic, WGS84) from the one before, as many as fit, with
@@ -77,6 +79,7 @@ __all__ = [
     "RUPTURE_KEYS",
     "SECTION_KEYS",
     "SOURCE_FORMS",
+    "TABLE_METHODS",
     "BathymetrySettings",
     "GridInfo",
     "OutputSettings",
@@ -111,8 +114,12 @@ SECTION_KEYS: Mapping[str, tuple[str, ...]] = {
         "snap_radius_km",
     ),
     "sites": ("path",),
-    "outputs": ("folder", "compare", "envelope", "executor", "workers"),
+    "outputs": (
+        "folder", "compare", "envelope", "executor", "workers", "table_method", "scenario_rasters",
+    ),
 }
+#: Values of ``[outputs] table_method`` (docs/reciprocal.md).
+TABLE_METHODS: tuple[str, ...] = ("auto", "reciprocal", "direct")
 #: Keys of a scenario's ``rupture`` table.
 RUPTURE_KEYS: tuple[str, ...] = (
     "centre",
@@ -262,6 +269,11 @@ class OutputSettings:
     envelope: bool = True
     executor: str | None = None
     workers: int | None = None
+    #: "auto", "reciprocal" or "direct": how the sites x scenarios table and the
+    #: envelope are computed (docs/reciprocal.md).
+    table_method: str = "auto"
+    #: Write one arrival raster per scenario (and period).
+    scenario_rasters: bool = True
 
 
 @dataclass(frozen=True)

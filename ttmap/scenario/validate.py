@@ -37,6 +37,7 @@ from ttmap.scenario.schema import (
     RUPTURE_KEYS,
     SECTION_KEYS,
     SOURCE_FORMS,
+    TABLE_METHODS,
     BathymetrySettings,
     GridInfo,
     OutputSettings,
@@ -892,6 +893,17 @@ class _Loader:
                     f"{folder!r} exists and is not a folder; choose another output folder",
                 )
         envelope = self.boolean(tbl, "envelope", path, True)
+        scenario_rasters = self.boolean(tbl, "scenario_rasters", path, True)
+        table_method = "auto"
+        if "table_method" in tbl:
+            tm = tbl["table_method"]
+            if tm not in TABLE_METHODS:
+                self.err(
+                    path + ("table_method",),
+                    f"must be one of {', '.join(repr(m) for m in TABLE_METHODS)}, got {_describe(tm)}",
+                )
+            else:
+                table_method = tm
         executor = None
         if "executor" in tbl:
             problem = check_executor(tbl["executor"])
@@ -946,6 +958,8 @@ class _Loader:
             envelope=envelope,
             executor=executor,
             workers=None if workers is None else int(workers),
+            table_method=table_method,
+            scenario_rasters=scenario_rasters,
         )
 
 
