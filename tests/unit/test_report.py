@@ -169,6 +169,11 @@ def test_comparison_shown_when_present(run_dir: Path) -> None:
     (run_dir / "earliest_by_site.csv").write_text(
         "# caution\nsite,earliest_scenario,front_min\nBeta,north,12.0\nAlpha,south,40.0\n", encoding="utf-8"
     )
+    # files in the folder that the record does not list (left by another run) are not shown
+    assert report_context_from_run(run_dir).comparison == ()
+    record = json.loads((run_dir / "run.json").read_text(encoding="utf-8"))
+    record["products"] += ["sites_x_scenarios.png", "earliest_by_site.csv"]
+    (run_dir / "run.json").write_text(json.dumps(record), encoding="utf-8")
     ctx = report_context_from_run(run_dir)
     assert len(ctx.comparison) == 1 and ctx.comparison_table is not None
     assert ctx.comparison_table.numeric == (False, False, True)

@@ -134,6 +134,7 @@ class _Progress:
     help="Keep rasters finished by an earlier run and skip their solves. The envelope, "
     "differences and run.json are rebuilt from the rasters on every run.",
 )
+@click.option("--no-report", is_flag=True, help="Skip report.html (the run on one self-contained page).")
 @verbosity_options
 @click.pass_context
 def run_command(
@@ -144,6 +145,7 @@ def run_command(
     out_dir: str | None,
     overwrite: bool,
     resume: bool,
+    no_report: bool,
 ) -> None:
     """Solve every scenario of FILE, then write the envelope and difference rasters.
 
@@ -179,6 +181,7 @@ def run_command(
                 progress=progress,
                 validate_s=validate_s,
                 command_line=shlex.join(["ttmap", *sys.argv[1:]]),
+                report=not no_report,
             )
         finally:
             progress.close()

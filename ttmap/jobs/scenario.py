@@ -42,6 +42,7 @@ def run_scenario_file(
     progress: Any = None,
     command_line: str = "",
     validate_s: float | None = None,
+    report: bool = True,
 ) -> dict[str, Any]:
     """Solve every scenario of a file, then write the comparisons and ``run.json``.
 
@@ -65,6 +66,8 @@ def run_scenario_file(
         Passed to :func:`ttmap.jobs.batch.run_tasks`.
     command_line : str
         Recorded in ``run.json``.
+    report : bool
+        Write ``report.html`` (rebuilt on every run, like the comparisons).
 
     Returns
     -------
@@ -101,6 +104,12 @@ def run_scenario_file(
     check_writable([run_json], derived_overwrite)
 
     spec, tasks = scenario_tasks(sf)
+    from ttmap.jobs.batch import task_output_paths
+    from ttmap.jobs.plan import REPORT_NAME, style_files
+
+    # the styles beside the task rasters and the report are derived like run.json
+    check_writable([*style_files(task_output_paths(t.name, out)[0] for t in tasks),
+                    *([out / REPORT_NAME] if report else [])], derived_overwrite)
     t0 = time.perf_counter()
     summaries = run_tasks(
         tasks,
@@ -124,6 +133,7 @@ def run_scenario_file(
 
     t1 = time.perf_counter()
     products: dict[str, Any] = {"envelope": None, "differences": [], "skipped": []}
+    names: list[str] = []
     if sf.outputs.envelope or sf.outputs.compare:
         if sf.outputs.envelope:
             if len(fronts) >= 2:
@@ -152,6 +162,10 @@ def run_scenario_file(
             products["sites"] = sites_summary["files"]
         else:
             products["skipped"].append(f"sites by scenarios: {sites_summary.get('skipped')}")
+    from ttmap.jobs.styling import style_scenario_run
+
+    styles = style_scenario_run(summaries, envelope=products["envelope"], envelope_names=names,
+                                overwrite=derived_overwrite)
     compare_s = time.perf_counter() - t1
 
     record = _scenario_record(
@@ -176,7 +190,12 @@ def run_scenario_file(
             "total_s": time.perf_counter() - t_start + (validate_s or 0.0),
         },
         out_dir=out,
+        extra_products=[*map(str, styles), *([str(out / REPORT_NAME)] if report else [])],
     )
+    if report:
+        from ttmap.jobs.styling import write_run_report
+
+        record["timings_s"]["report_s"] = round(write_run_report(record, out, overwrite=derived_overwrite)[1], 4)
     write_run_record(record, run_json, overwrite=True)
     record["run_json"] = str(run_json)
     return record
@@ -194,6 +213,7 @@ def _scenario_record(
     options: Mapping[str, Any],
     timings_s: Mapping[str, float],
     out_dir: Path,
+    extra_products: Sequence[str] = (),
 ) -> dict[str, Any]:
     """The run record of a scenario run, in the one schema (:mod:`ttmap.jobs.record`)."""
     from ttmap.jobs.record import build_run_record, file_entry
@@ -220,7 +240,7 @@ def _scenario_record(
             **options,
         },
         timings_s=timings_s,
-        products=[*rasters, *task_records, *_files_written(products)],
+        products=[*rasters, *task_records, *_files_written(products), *extra_products],
         out_dir=out_dir,
         scenarios=[sc.describe() for sc in sf.scenarios],
         trenches=[
@@ -481,7 +501,8 @@ def write_difference(
     Returns
     -------
     dict
-        ``{"difference": path}``.
+        ``{"difference": path, "style": path}``; the style is the QGIS
+        ``.qml`` beside the raster (a diverging ramp centred on zero).
 
     Raises
     ------
@@ -501,6 +522,8 @@ def write_difference(
     b, _, _ = read_minutes(path_b, grid_a)
     diff = difference(a, b)
     del a, b
+    style = target.with_suffix(".qml")
+    check_writable([style], overwrite)
     write_difference_raster(
         target,
         diff,
@@ -520,7 +543,10 @@ def write_difference(
         band_description=f"arrival of {a_name} minus arrival of {b_name}, minutes",
         overwrite=overwrite,
     )
-    return {"difference": str(target)}
+    from ttmap.jobs.styling import write_difference_style
+
+    write_difference_style(target, diff, a_name, b_name, overwrite=overwrite)
+    return {"difference": str(target), "style": str(style)}
 
 
 def write_sites_by_scenarios(
