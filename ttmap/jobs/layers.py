@@ -85,7 +85,8 @@ def band_classes(bands: Sequence[Any]) -> tuple[list[tuple[float, float | None, 
     """``(min_minutes, max_minutes, label)`` rows and colours of isochrone bands, earliest first."""
     from ttmap.products.palette import arrival_colors_hex
 
-    rows = [(float(b.min_minutes), float(b.max_minutes), str(b.label)) for b in bands]
+    rows: list[tuple[float, float | None, str]] = [
+        (float(b.min_minutes), float(b.max_minutes), str(b.label)) for b in bands]
     return rows, arrival_colors_hex(max(len(bands), 2))[: len(bands)]
 
 
