@@ -1,10 +1,11 @@
 """Report generation time on the demo, beyond the products.
 
-Runs ``ttmap demo`` once into a temporary folder (the products), then times
-building the report's context from the run folder, rendering the template
-and writing ``report.html`` (median of several repeats), and the QGIS styles
-for every demo layer for comparison. Prints figures and the ratio to the goal
-(under 1 s beyond the products); asserts nothing.
+Runs ``ttmap demo`` once into a temporary folder (the products; the jobs
+record their own ``report_s`` in ``run.json``), then times building the
+report's context from the run folder, rendering the template and writing
+``report.html`` (median of several repeats), and compares a demo run with
+and without ``--no-report``. Prints figures and the ratio to the goal (under
+1 s beyond the products); asserts nothing.
 
     python benchmarks/bench_report.py [--repeats N]
 """
@@ -44,15 +45,24 @@ def main() -> None:
             b = time.perf_counter()
             html = render_report(ctx)
             c = time.perf_counter()
-            write_report(out / "report.html", html, overwrite=i > 0)
+            write_report(out / "report.html", html, overwrite=True)
             d = time.perf_counter()
             ctx_s.append(b - a)
             render_s.append(c - b)
             write_s.append(d - c)
             total_s.append(d - a)
             size = len(html.encode("utf-8"))
+        import json
+
+        rec = json.loads((out / "run.json").read_text(encoding="utf-8"))
+        rec_site = json.loads((out / "site_maps" / "run.json").read_text(encoding="utf-8"))
+        t1 = time.perf_counter()
+        result = CliRunner().invoke(cli, ["demo", "--out", str(Path(tmp) / "plain"), "--no-report"])
+        t_plain = time.perf_counter() - t1
         med = statistics.median
-        print(f"demo run (products, in process): {t_demo:.2f} s")
+        print(f"demo run (products, in process): {t_demo:.2f} s; with --no-report: {t_plain:.2f} s")
+        print(f"report_s recorded by the jobs: map {rec['timings_s']['report_s'] * 1000:.1f} ms, "
+              f"site-map {rec_site['timings_s']['report_s'] * 1000:.1f} ms")
         print(f"report, median of {args.repeats}:")
         print(f"  context from run folder (read run.json, CSV, PNG -> base64): {med(ctx_s) * 1000:7.1f} ms")
         print(f"  render template (Jinja2, first call includes template compile): {med(render_s) * 1000:7.1f} ms"

@@ -69,7 +69,9 @@ def test_ogrinfo_reads_the_geopackage(utm_run, tmp_path):
     gpkg = tmp_path / "isochrones_front.gpkg"
     shutil.copyfile(utm_run["out"] / "isochrones_front.gpkg", gpkg)
     layers = _ogrinfo_layers(run_tool("ogrinfo", "-ro", "-so", "-al", gpkg))
-    assert set(layers) == {"isochrone_lines", "isochrone_bands"}
+    # plus QGIS's style table, a plain attributes table (docs/styles.md)
+    assert set(layers) == {"isochrone_lines", "isochrone_bands", "layer_styles"}
+    assert layers.pop("layer_styles")["count"] == 2
     assert {"minutes", "label"} <= set(layers["isochrone_lines"]["fields"])
     assert {"min_minutes", "max_minutes"} <= set(layers["isochrone_bands"]["fields"])
     for name, layer in layers.items():

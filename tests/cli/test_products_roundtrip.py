@@ -134,7 +134,9 @@ def test_overviews_on_a_big_grid(run_cli, spec, tmp_path):
 def test_geopackage_layers_fields_crs(out):
     gpkg = out / "isochrones_front.gpkg"
     layers = {str(name): str(kind) for name, kind in pyogrio.list_layers(gpkg)}
-    assert layers == {"isochrone_lines": "MultiLineString", "isochrone_bands": "MultiPolygon"}
+    # plus QGIS's style table (a plain attributes table, no geometry; docs/styles.md)
+    assert layers == {"isochrone_lines": "MultiLineString", "isochrone_bands": "MultiPolygon",
+                      "layer_styles": "None"}
     lines = pyogrio.read_info(gpkg, layer="isochrone_lines")
     bands = pyogrio.read_info(gpkg, layer="isochrone_bands")
     assert {"minutes", "label"} <= set(lines["fields"])

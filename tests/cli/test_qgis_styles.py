@@ -1,14 +1,21 @@
-"""Layers open styled in QGIS: every product of a ``ttmap demo`` run, opened fresh.
+"""Layers open styled in QGIS: every layer the jobs write, opened fresh.
 
-The demo's products are styled here with the library (QML beside rasters,
-Shapefiles and GeoJSON; ``layer_styles`` rows inside GeoPackages), then each
-layer is opened by QGIS's own Python API in the system Python (Debian's
-``python3-qgis``, headless) exactly as a user would add it: ``QgsRasterLayer``
-/ ``QgsVectorLayer`` with the default layer options, which load the default
-style (the ``.qml`` by name, or the GeoPackage's default ``layer_styles``
-row). The test checks the renderer type and class count QGIS ends up with,
-that every vector feature gets the colour of its class, and that the
-classes' colours are the SLD's (the SLD stays for other clients).
+Three runs write their products with no style added by the test: ``ttmap
+demo`` (a map run and a site-map run, GeoPackage layers), a map run on the
+demo grid with Shapefile and GeoJSON outputs, a site-map run with several
+sites (combined rasters), and a small scenario run on a crop of the demo grid
+(task rasters, envelope, scenario first, difference). Each raster and vector
+layer listed in a run's ``run.json`` is then opened by QGIS's own Python API
+in the system Python (Debian's ``python3-qgis``, headless) exactly as a user
+would add it: ``QgsRasterLayer`` / ``QgsVectorLayer`` with the default layer
+options, which load the default style (the ``.qml`` by base name, or the
+GeoPackage's default ``layer_styles`` row). The test checks the renderer type
+and class count QGIS ends up with against the data (one range per band
+feature, one category per coast class of the SLD plus the unreached coast,
+one palette entry per site or scenario), that every vector feature gets the
+colour of its class, and that the classes' colours are those of the SLD the
+job wrote beside the layer (an independent builder; the SLD stays for other
+clients).
 
 Independent checks: GDAL's own ``gdalinfo`` / ``ogrinfo`` still open every
 file (the GeoPackage with the extra table still validates as one), and every
@@ -23,6 +30,7 @@ from __future__ import annotations
 import json
 import shutil
 import subprocess
+import textwrap
 import xml.etree.ElementTree as ET
 from pathlib import Path
 from typing import Any
@@ -30,21 +38,15 @@ from typing import Any
 import numpy as np
 import pytest
 
-from ttmap.io.styles import qml_path_for, read_gpkg_layer_styles, write_gpkg_layer_style, write_qml_beside
+from ttmap.io.styles import qml_path_for, read_gpkg_layer_styles
+from ttmap.jobs.plan import REPORT_NAME, style_files
 from ttmap.products.coast import COAST_LAYER_NAME
-from ttmap.products.qml import (
-    bands_qml,
-    coast_qml,
-    difference_qml,
-    lines_qml,
-    paletted_qml,
-    qml_renderer_summary,
-    raster_qml,
-    site_status_colors,
-    sites_qml,
-    wave_paths_qml,
-)
+from ttmap.products.qml import qml_renderer_summary, site_status_colors
 from ttmap.products.styles import OGC_NAMESPACE, SLD_NAMESPACE
+
+DEMO_DIR = Path(__file__).resolve().parents[2] / "ttmap" / "demo_data"
+DEMO_TIF = DEMO_DIR / "demo_bathymetry.tif"
+DEMO_SITES = DEMO_DIR / "demo_sites.csv"
 
 SYSTEM_PYTHON = "/usr/bin/python3"
 
@@ -142,8 +144,9 @@ def _open_in_qgis(items: list[dict[str, Any]]) -> dict[str, dict[str, Any]]:
     return {rec["id"]: rec for rec in json.loads(line[len("QGISJSON"):])}
 
 
+
 # ---------------------------------------------------------------------------
-# Inputs of the styles, read back from the demo's own SLD files and layers
+# The SLD files the jobs wrote: the classes and colours QGIS must show too
 # ---------------------------------------------------------------------------
 
 _NS = {"sld": SLD_NAMESPACE, "ogc": OGC_NAMESPACE}
@@ -159,18 +162,6 @@ def _sld_color_map(path: Path) -> tuple[str | None, list[tuple[float, str, float
         for e in cmap.findall("sld:ColorMapEntry", _NS)
     ]
     return cmap.get("type"), entries
-
-
-def _raster_inputs(sld: Path) -> tuple[list[float], list[str], str]:
-    """The levels and colours raster_sld was given, recovered from its output."""
-    kind, entries = _sld_color_map(sld)
-    visible = [e for e in entries if e[2] > 0]
-    if kind == "intervals":
-        # entry i's quantity is the upper bound of colour i; the first lower bound
-        # is the transparent entry's quantity
-        lowers = [entries[0][0], *[e[0] for e in visible[:-1]]]
-        return lowers, [e[1] for e in visible], "intervals"
-    return [e[0] for e in visible], [e[1] for e in visible], "ramp"
 
 
 def _sld_rules(path: Path) -> list[tuple[float | None, str, str]]:
@@ -195,225 +186,296 @@ def _read_columns(path: Path, layer: str | None, names: list[str]) -> dict[str, 
     return {n: list(v) for n, v in zip(names, fields, strict=True)}
 
 
-def _style_demo(out: Path) -> dict[str, Any]:
-    """Write QML / layer_styles for every product of a demo run; return what was expected."""
-    expect: dict[str, Any] = {}
-    tifs = sorted(out.glob("arrival_*.tif")) + sorted((out / "site_maps").glob("*.tif"))
-    for tif in tifs:
-        levels, colors, kind = _raster_inputs(tif.with_suffix(".sld"))
-        write_qml_beside(tif, raster_qml(levels, colors, layer_name=tif.stem, title=tif.stem, color_map_type=kind))
-        expect[tif.stem] = {"kind": "raster", "uri": str(tif), "renderer": "singlebandpseudocolor",
-                            "sld": str(tif.with_suffix(".sld")), "map": kind}
-    for gpkg in sorted(out.glob("isochrones_*.gpkg")) + sorted((out / "site_maps").glob("isochrones_*.gpkg")):
-        stem = gpkg.stem
-        lines_sld = gpkg.with_name(f"{stem}_lines.sld")
-        bands_sld = gpkg.with_name(f"{stem}_bands.sld")
-        write_gpkg_layer_style(gpkg, "isochrone_lines", lines_qml(title=f"Isochrones {stem}"),
-                               sld_text=lines_sld.read_text(encoding="utf-8"), description="caution")
-        cols = _read_columns(gpkg, "isochrone_bands", ["min_minutes", "max_minutes", "label"])
-        rules = _sld_rules(bands_sld)
-        bands = [(lo, hi, lab) for lo, hi, lab in zip(cols["min_minutes"], cols["max_minutes"], cols["label"])]
-        write_gpkg_layer_style(gpkg, "isochrone_bands", bands_qml(bands, [r[2] for r in rules], title=stem),
-                               sld_text=bands_sld.read_text(encoding="utf-8"))
-        expect[f"{stem}_lines"] = {"kind": "vector", "uri": f"{gpkg}|layername=isochrone_lines",
-                                   "renderer": "singleSymbol", "classes": 1, "label_field": "label"}
-        expect[f"{stem}_bands"] = {"kind": "vector", "uri": f"{gpkg}|layername=isochrone_bands",
-                                   "renderer": "graduatedSymbol", "classes": len(bands),
-                                   "colors": [r[2] for r in rules],
-                                   "feature_class": [float(v) for v in cols["min_minutes"]],
-                                   "class_values": [float(r[0]) for r in rules if r[0] is not None]}
-    for gpkg in sorted(out.glob("coast_*.gpkg")):
-        rules = _sld_rules(gpkg.with_suffix(".sld"))
-        classes = [(r[0], None, r[1]) for r in rules if r[0] is not None]
-        colors = [r[2] for r in rules if r[0] is not None]
-        write_gpkg_layer_style(gpkg, COAST_LAYER_NAME, coast_qml(classes, colors, title=gpkg.stem),
-                               sld_text=gpkg.with_suffix(".sld").read_text(encoding="utf-8"))
-        cols = _read_columns(gpkg, COAST_LAYER_NAME, ["class_min"])
-        expect[gpkg.stem] = {"kind": "vector", "uri": f"{gpkg}|layername={COAST_LAYER_NAME}", "renderer": "categorizedSymbol",
-                             "classes": len(classes) + 1, "colors": colors + [rules[-1][2]],
-                             "feature_class": [None if v is None or not np.isfinite(v) else float(v)
-                                               for v in cols["class_min"]],
-                             "class_values": [c[0] for c in classes]}
-    sites = out / "sites.gpkg"
-    write_gpkg_layer_style(sites, "sites", sites_qml(title="Sites"))
-    status = _read_columns(sites, "sites", ["budget_status"])["budget_status"]
-    expect["sites"] = {"kind": "vector", "uri": f"{sites}|layername=sites", "renderer": "categorizedSymbol",
-                       "classes": len(site_status_colors()) + 1, "label_field": "name",
-                       "status": status}
+# ---------------------------------------------------------------------------
+# The runs, and what each of their layers should look like in QGIS
+# ---------------------------------------------------------------------------
+
+#: Two ruptures along the invented trench and a point over the invented
+#: seamount, on a crop of the demo grid (invented data).
+_SCENARIOS = f"""\
+[bathymetry]
+path = "{DEMO_TIF.as_posix()}"
+coarsen = 2
+crop_lonlat = [-148.0, -36.0, -141.0, -31.0]
+
+[[trench]]
+name_prefix = "arc"
+polyline = [[-144.30, -33.0], [-144.45, -34.0]]
+spacing_km = 70
+mw = 8.0
+max_time_h = 3
+
+[[scenario]]
+name = "seamount-point"
+point = [-146.90, -33.30]
+max_time_h = 3
+
+[outputs]
+folder = "out"
+envelope = true
+compare = [["arc-01", "seamount-point"]]
+executor = "serial"
+"""
+
+
+def _isochrone_stem(path: Path) -> str:
+    """The isochrone output a Shapefile / GeoJSON layer file belongs to."""
+    return path.stem.rsplit("_isochrone_", 1)[0]
+
+
+def _expect_raster(tif: Path) -> dict[str, Any]:
+    exp: dict[str, Any] = {"kind": "raster", "uri": str(tif)}
+    sld = tif.with_suffix(".sld")
+    stem = tif.stem
+    if stem in ("site_centred_first_site", "envelope_first_scenario"):
+        import rasterio
+
+        with rasterio.open(tif) as src:
+            tags = src.tags()
+        prefix = "SITE_" if stem.startswith("site") else "SCENARIO_"
+        count = int(tags["SITE_COUNT"] if prefix == "SITE_" else tags["SCENARIOS"])
+        exp.update(renderer="paletted", labels=[tags[f"{prefix}{i}"] for i in range(count)])
+        if sld.is_file():
+            _, entries = _sld_color_map(sld)
+            exp["colors"] = [e[1] for e in entries if e[2] > 0]
+    elif stem.startswith("difference_"):
+        exp.update(renderer="singlebandpseudocolor", ramp="INTERPOLATED", diverging=True)
+    else:
+        exp.update(renderer="singlebandpseudocolor", ramp="INTERPOLATED")
+        if sld.is_file():
+            kind, entries = _sld_color_map(sld)
+            visible = [e for e in entries if e[2] > 0]
+            if kind == "intervals":
+                exp.update(ramp="DISCRETE", colors=[e[1] for e in visible])
+            else:
+                exp.update(levels=[e[0] for e in visible], colors=[e[1] for e in visible])
+    return exp
+
+
+def _expect_bands(uri: str, path: Path, layer: str | None, sld: Path, attr: str) -> dict[str, Any]:
+    cols = _read_columns(path, layer, [attr])
+    rules = _sld_rules(sld)
+    # the SLD's rules are one per band, earliest first, each filtering on its lower bound
+    lowers = [r[0] for r in rules]
+    values = [float(v) for v in cols[attr]]
+    if attr == "minutes":  # the upper bound: class i holds (lower_i, upper_i]
+        mins = _read_columns(path, layer, ["label"])["label"]
+        assert len(mins) == len(values)
+    return {"kind": "vector", "uri": uri, "renderer": "graduatedSymbol", "classes": len(rules),
+            "colors": [r[2] for r in rules], "band_bound": attr, "lowers": lowers, "feature_values": values}
+
+
+def _expect_vectors(path: Path) -> dict[str, dict[str, Any]]:
+    import pyogrio
+
+    out: dict[str, dict[str, Any]] = {}
+    if path.suffix == ".gpkg":
+        layers = [str(n) for n, _ in pyogrio.list_layers(path) if str(n) != "layer_styles"]
+        for layer in layers:
+            out[f"{path.name}|{layer}"] = _expect_layer(f"{path}|layername={layer}", path, layer,
+                                                         stem=path.stem)
+    else:
+        stem = _isochrone_stem(path) if "_isochrone_" in path.stem else path.stem
+        layer = ("isochrone_bands" if path.stem.endswith("_isochrone_bands") else
+                 "isochrone_lines" if path.stem.endswith("_isochrone_lines") else
+                 "sites" if path.stem == "sites" else COAST_LAYER_NAME)
+        out[path.name] = _expect_layer(str(path), path, None, stem=stem, layer_kind=layer)
+    return out
+
+
+def _expect_layer(uri: str, path: Path, layer: str | None, *, stem: str, layer_kind: str | None = None) -> dict[str, Any]:
+    kind = layer_kind or layer
+    folder = path.parent
+    if kind == "isochrone_lines":
+        return {"kind": "vector", "uri": uri, "renderer": "singleSymbol", "classes": 1, "label_field": "label"}
+    if kind == "isochrone_bands":
+        sld = folder / f"{stem}_bands.sld"
+        attr = "min_minutes" if path.suffix == ".gpkg" else "minutes"
+        return _expect_bands(uri, path, layer, sld, attr)
+    if kind == COAST_LAYER_NAME:
+        rules = _sld_rules(folder / f"{stem}.sld")
+        classes = [r for r in rules if r[0] is not None]
+        cols = _read_columns(path, layer, ["class_min"])
+        return {"kind": "vector", "uri": uri, "renderer": "categorizedSymbol", "classes": len(rules),
+                "colors": [r[2] for r in classes] + [r[2] for r in rules if r[0] is None],
+                "class_values": [r[0] for r in classes],
+                "feature_class": [None if v is None or not np.isfinite(v) else float(v) for v in cols["class_min"]]}
+    if kind == "sites":
+        status = _read_columns(path, layer, ["budget_status"])["budget_status"]
+        return {"kind": "vector", "uri": uri, "renderer": "categorizedSymbol",
+                "classes": len(site_status_colors()) + 1, "label_field": "name", "status": status}
+    raise AssertionError(f"unexpected layer {uri}")
+
+
+def _expectations(folder: Path) -> dict[str, dict[str, Any]]:
+    """Every raster and vector layer the run's record lists, with what QGIS should show."""
+    record = json.loads((folder / "run.json").read_text(encoding="utf-8"))
+    products = [folder / p for p in record["products"]]
+    expect: dict[str, dict[str, Any]] = {}
+    for p in products:
+        key = f"{folder.name}/{p.name}"
+        if p.suffix == ".tif":
+            expect[key] = _expect_raster(p)
+        elif p.suffix in (".gpkg", ".shp", ".geojson"):
+            for k, v in _expect_vectors(p).items():
+                expect[f"{folder.name}/{k}"] = v
+    # every style file beside a layer is listed in the record too (and so in the plan)
+    listed = {p.name for p in products}
+    for qml in style_files(products):
+        assert qml.is_file() and qml.name in listed, qml
+    assert REPORT_NAME in listed
     return expect
 
 
 @pytest.fixture(scope="module")
-def styled_demo(tmp_path_factory: pytest.TempPathFactory) -> tuple[Path, dict[str, Any]]:
+def runs(tmp_path_factory: pytest.TempPathFactory) -> dict[str, Path]:
     from click.testing import CliRunner
 
     from ttmap.cli.main import cli
 
-    out = tmp_path_factory.mktemp("qgis") / "demo"
-    result = CliRunner().invoke(cli, ["demo", "--out", str(out)])
-    assert result.exit_code == 0, result.output
-    expect = _style_demo(out)
-    # the comparison products: envelope, first scenario, difference of the demo's two sets
-    from ttmap.jobs.scenario import write_difference, write_envelope
-    from ttmap.products.palette import arrival_colors_hex
+    base = tmp_path_factory.mktemp("qgis")
+    runner = CliRunner()
 
-    cmp_dir = out / "compare"
-    cmp_dir.mkdir()
-    names = ["front", "energy300"]
-    paths = [out / "arrival_front.tif", out / "arrival_group_T300s.tif"]
-    env = write_envelope(cmp_dir, paths, names)
-    diff = write_difference(cmp_dir, paths[1], paths[0], "energy300", "front")["difference"]
-    levels, colors, _ = _raster_inputs(out / "arrival_front.sld")
-    write_qml_beside(env["envelope_min"], raster_qml(levels, colors, layer_name="envelope_min", title="Envelope"))
-    write_qml_beside(env["first_scenario"], paletted_qml([0, 1], names, layer_name="first", title="First"))
-    write_qml_beside(diff, difference_qml(10, name_a="energy300", name_b="front", layer_name="difference",
-                                          title="Difference"))
-    expect["envelope_min"] = {"kind": "raster", "uri": env["envelope_min"], "renderer": "singlebandpseudocolor",
-                              "sld": str(out / "arrival_front.sld"), "map": "ramp"}
-    expect["first_scenario"] = {"kind": "raster", "uri": env["first_scenario"], "renderer": "paletted",
-                                "n_items": 2, "labels": names}
-    expect["difference"] = {"kind": "raster", "uri": diff, "renderer": "singlebandpseudocolor", "n_items": 9,
-                            "zero_color": arrival_colors_hex(9, "PuOr_r")[4]}
-    # Shapefile and GeoJSON copies of the isochrones and a wave-path layer: .qml beside each
-    from ttmap.io.vector import VectorLayer, shapefile_field_name, write_vector_layers
-    import shapely
+    def run(*args: str) -> None:
+        result = runner.invoke(cli, [*args, "-q"])
+        assert result.exit_code == 0, result.output
 
-    alt = out / "alt"
-    alt.mkdir()
-    cols = _read_columns(out / "isochrones_front.gpkg", "isochrone_bands", ["min_minutes", "max_minutes", "label"])
-    import pyogrio
+    run("demo", "--out", str(base / "demo"))
+    run("map", str(DEMO_TIF), "--source", "-144.9,-34.2", "--sites", str(DEMO_SITES), "--coarsen", "2",
+        "--vector-format", "shp", "--vector-format", "geojson", "--no-map", "--out", str(base / "formats"))
+    run("site-map", str(DEMO_TIF), "--sites", str(DEMO_SITES), "--coarsen", "3", "--no-map",
+        "--out", str(base / "sitemap"))
+    toml = base / "scenarios.toml"
+    toml.write_text(textwrap.dedent(_SCENARIOS), encoding="utf-8")
+    run("scenario", "run", str(toml), "--executor", "serial", "--out", str(base / "scenario"))
+    return {"demo": base / "demo", "site_maps": base / "demo" / "site_maps", "formats": base / "formats",
+            "sitemap": base / "sitemap", "scenario": base / "scenario"}
 
-    _, _, wkb, _ = pyogrio.raw.read(out / "isochrones_front.gpkg", layer="isochrone_bands", columns=[])
-    band_cols = {k: np.asarray(v, dtype=object if k == "label" else float) for k, v in cols.items()}
-    band_cols["minutes"] = band_cols["max_minutes"]  # as the map job writes it
-    band_layer = VectorLayer("isochrone_bands", list(shapely.from_wkb(wkb)), band_cols, "MultiPolygon")
-    path_layer = VectorLayer("wave_paths", [shapely.LineString([(-144.9, -34.2), (-143.5, -33.6), (-142.7, -33.4)])],
-                             {"site": ["Tarnquill Harbour"], "minutes": [90.3]}, "LineString")
-    rules = _sld_rules(out / "isochrones_front_bands.sld")
-    bands = list(zip(cols["min_minutes"], cols["max_minutes"], cols["label"]))
-    for suffix in (".shp", ".geojson"):
-        written = write_vector_layers(alt / f"iso{suffix}", [band_layer, path_layer], crs="EPSG:4326")
-        for p in written:
-            if p.suffix != suffix:
-                continue
-            if "bands" in p.stem:
-                # one .qml serves the .shp and the .geojson of the same base name: classify on
-                # "minutes" (the upper bound), a field name both formats keep
-                assert shapefile_field_name("min_minutes") != "min_minutes"
-                write_qml_beside(p, bands_qml(bands, [r[2] for r in rules], title="bands", attribute="minutes",
-                                              bound="upper"), overwrite=True)
-                expect[p.name] = {"kind": "vector", "uri": str(p), "renderer": "graduatedSymbol",
-                                  "classes": len(bands), "colors": [r[2] for r in rules],
-                                  "feature_class": [float(v) for v in cols["max_minutes"]],
-                                  "class_values": [float(b[1]) for b in sorted(bands)]}
-            else:
-                write_qml_beside(p, wave_paths_qml(title="Wave paths", label_attribute="site"), overwrite=True)
-                expect[p.name] = {"kind": "vector", "uri": str(p), "renderer": "singleSymbol", "classes": 1,
-                                  "label_field": "site"}
-    gp = write_vector_layers(alt / "paths.gpkg", [path_layer], crs="EPSG:4326")[0]
-    write_gpkg_layer_style(gp, "wave_paths", wave_paths_qml(title="Wave paths", label_attribute="site"))
-    expect["paths_gpkg"] = {"kind": "vector", "uri": f"{gp}|layername=wave_paths", "renderer": "singleSymbol",
-                            "classes": 1, "label_field": "site"}
-    return out, expect
+
+@pytest.fixture(scope="module")
+def expected(runs: dict[str, Path]) -> dict[str, dict[str, Any]]:
+    expect: dict[str, dict[str, Any]] = {}
+    for folder in runs.values():
+        expect.update(_expectations(folder))
+    return expect
 
 
 @requires_qgis
-def test_every_demo_layer_opens_styled_in_qgis(styled_demo: tuple[Path, dict[str, Any]]) -> None:
-    out, expect = styled_demo
-    items = [{"id": k, "kind": v["kind"], "uri": v["uri"]} for k, v in expect.items()]
+def test_every_layer_the_jobs_write_opens_styled_in_qgis(expected: dict[str, dict[str, Any]]) -> None:
+    items = [{"id": k, "kind": v["kind"], "uri": v["uri"]} for k, v in expected.items()]
     got = _open_in_qgis(items)
-    # every product of the demo run is among them
-    assert {"arrival_front", "arrival_group_T300s", "site_centred_Tarnquill_Harbour",
-            "minutes_left_Tarnquill_Harbour", "coast_front", "coast_group_T300s", "isochrones_front_bands",
-            "isochrones_site_Tarnquill_Harbour_lines", "sites"} <= set(got)
+    assert set(got) == set(expected)
+    kinds = sorted({(k.split("/")[0], v["renderer"]) for k, v in got.items()})
+    print(f"{len(got)} layers opened in QGIS; (run, renderer) pairs: {kinds}")
+    names = {k.split("/", 1)[1] for k in got}
+    # every kind of layer is among them
+    assert {"arrival_front.tif", "arrival_group_T300s.tif", "site_centred_Tarnquill_Harbour.tif",
+            "minutes_left_Tarnquill_Harbour.tif", "coast_front.gpkg|coastal_arrival",
+            "isochrones_front.gpkg|isochrone_bands", "isochrones_front.gpkg|isochrone_lines", "sites.gpkg|sites",
+            "sites.geojson", "coast_front.shp", "coast_front.geojson", "isochrones_front_isochrone_bands.shp",
+            "isochrones_front_isochrone_bands.geojson", "isochrones_front_isochrone_lines.shp",
+            "site_centred_min.tif", "site_centred_first_site.tif", "arrival_arc-01_front.tif",
+            "envelope_min.tif", "envelope_first_scenario.tif",
+            "difference_arc-01_minus_seamount-point.tif"} <= names, sorted(names)
     status_colors = site_status_colors()
-    for key, exp in expect.items():
+    for key, exp in expected.items():
         rec = got[key]
         assert rec["valid"], key
         assert rec["renderer"] == exp["renderer"], (key, rec["renderer"])
-        if exp["kind"] == "raster" and "sld" in exp:
-            # same classes and colours as the SLD beside it (visible entries)
-            levels, colors, kind = _raster_inputs(Path(exp["sld"]))
+        if exp["kind"] == "raster":
             items_ = rec["items"]
-            if kind == "ramp":
-                assert rec["ramp"] == "INTERPOLATED"
-                assert [round(i[0], 6) for i in items_] == [round(v, 6) for v in levels]
-                assert [i[1] for i in items_] == colors
+            if exp["renderer"] == "paletted":
+                assert [i[3] for i in items_] == exp["labels"], key
+                if "colors" in exp:
+                    assert [i[1] for i in items_] == exp["colors"], key
+            elif exp.get("diverging"):
+                vals = [i[0] for i in items_]
+                assert rec["ramp"] == "INTERPOLATED" and len(vals) % 2 == 1, key
+                mid = len(vals) // 2
+                assert vals[mid] == 0.0 and vals[0] == -vals[-1] < 0, (key, vals)
             else:
-                assert rec["ramp"] == "DISCRETE"
-                # first item transparent (below the first level), then one per colour
-                assert items_[0][2] == 0 and len(items_) == len(colors) + 1
-                assert [i[1] for i in items_[1:]] == colors
-        elif exp["renderer"] == "paletted":
-            assert len(rec["items"]) == exp["n_items"]
-            assert [i[3] for i in rec["items"]] == exp["labels"]
-        elif key == "difference":
-            vals = [i[0] for i in rec["items"]]
-            assert len(vals) == exp["n_items"] and vals[4] == 0.0 and vals[0] == -vals[-1]
-            assert rec["items"][4][1] == exp["zero_color"]
-        if exp["kind"] == "vector":
-            assert rec["classes"] == exp["classes"], (key, rec["classes"])
-            assert rec["features_without_symbol"] == 0, key
-            if "label_field" in exp:
-                assert rec["labels"] and rec["label_field"] == exp["label_field"], key
-            if "colors" in exp:
-                assert rec["class_colors"] == exp["colors"], key
-                # each feature is drawn in its own class's colour
-                by_value = dict(zip(exp["class_values"], exp["colors"]))
-                for value, color in zip(exp["feature_class"], rec["feature_colors"], strict=True):
-                    assert color == by_value.get(value, exp["colors"][-1]), (key, value, color)
-            if key == "sites":
-                for status, color in zip(exp["status"], rec["feature_colors"], strict=True):
-                    assert color == status_colors[status]
+                assert rec["ramp"] == exp["ramp"], key
+                if exp["ramp"] == "DISCRETE":
+                    # first item transparent (below the first level), then one per SLD colour
+                    assert items_[0][2] == 0 and [i[1] for i in items_[1:]] == exp["colors"], key
+                elif "levels" in exp:
+                    assert [round(i[0], 6) for i in items_] == [round(v, 6) for v in exp["levels"]], key
+                    assert [i[1] for i in items_] == exp["colors"], key
+                else:  # scenario rasters (no SLD): a ramp from 0, increasing
+                    vals = [i[0] for i in items_]
+                    assert vals[0] == 0.0 and len(vals) >= 2 and vals == sorted(vals), (key, vals)
+            continue
+        assert rec["classes"] == exp["classes"], (key, rec["classes"], exp["classes"])
+        assert rec["features_without_symbol"] == 0, key
+        if "label_field" in exp:
+            assert rec["labels"] and rec["label_field"] == exp["label_field"], key
+        if "colors" in exp:
+            assert rec["class_colors"] == exp["colors"], key
+        if "band_bound" in exp:
+            # each band is drawn in the colour of the SLD rule of its lower bound
+            lowers, colors = exp["lowers"], exp["colors"]
+            if exp["band_bound"] == "min_minutes":
+                want = [colors[lowers.index(v)] for v in exp["feature_values"]]
+            else:  # classified on the upper bound: the band whose lower bound is the largest below it
+                want = [colors[max(i for i, lo in enumerate(lowers) if lo < v)] for v in exp["feature_values"]]
+            assert rec["feature_colors"] == want, key
+        if "class_values" in exp:
+            by_value = dict(zip(exp["class_values"], exp["colors"]))
+            for value, color in zip(exp["feature_class"], rec["feature_colors"], strict=True):
+                assert color == by_value.get(value, exp["colors"][-1]), (key, value, color)
+        if "status" in exp:
+            for status, color in zip(exp["status"], rec["feature_colors"], strict=True):
+                assert color == status_colors[status], key
 
 
 @requires_qgis
-def test_unstyled_layers_open_plain(tmp_path: Path) -> None:
-    """Without the styles QGIS opens the same files plain: the styles are what changed."""
-    from click.testing import CliRunner
+def test_the_styles_are_what_changed(runs: dict[str, Path], tmp_path: Path) -> None:
+    """The same data without the styles beside or inside it opens plain in QGIS."""
+    import pyogrio
 
-    from ttmap.cli.main import cli
-
-    out = tmp_path / "demo"
-    assert CliRunner().invoke(cli, ["demo", "--out", str(out)]).exit_code == 0
+    demo = runs["demo"]
+    shutil.copy(demo / "arrival_front.tif", tmp_path / "arrival_front.tif")
+    meta, _, wkb, fields = pyogrio.raw.read(demo / "isochrones_front.gpkg", layer="isochrone_bands")
+    pyogrio.raw.write(tmp_path / "bands.gpkg", wkb, fields, fields=meta["fields"], layer="isochrone_bands",
+                      crs=meta["crs"], geometry_type=meta["geometry_type"], driver="GPKG")
     got = _open_in_qgis([
-        {"id": "r", "kind": "raster", "uri": str(out / "arrival_front.tif")},
-        {"id": "b", "kind": "vector", "uri": f"{out / 'isochrones_front.gpkg'}|layername=isochrone_bands"},
+        {"id": "r", "kind": "raster", "uri": str(tmp_path / "arrival_front.tif")},
+        {"id": "b", "kind": "vector", "uri": f"{tmp_path / 'bands.gpkg'}|layername=isochrone_bands"},
     ])
-    assert got["r"]["renderer"] == "singlebandgray"
-    assert got["b"]["renderer"] == "singleSymbol"
+    assert got["r"]["valid"] and got["r"]["renderer"] == "singlebandgray"
+    assert got["b"]["valid"] and got["b"]["renderer"] == "singleSymbol"
 
 
-def test_styles_are_stored_where_clients_look(styled_demo: tuple[Path, dict[str, Any]]) -> None:
-    out, _ = styled_demo
-    assert qml_path_for(out / "arrival_front.tif").is_file()
-    rows = read_gpkg_layer_styles(out / "isochrones_front.gpkg")
+def test_styles_are_stored_where_clients_look(runs: dict[str, Path]) -> None:
+    demo = runs["demo"]
+    assert qml_path_for(demo / "arrival_front.tif").is_file()
+    rows = read_gpkg_layer_styles(demo / "isochrones_front.gpkg")
     assert sorted(r["f_table_name"] for r in rows) == ["isochrone_bands", "isochrone_lines"]
     assert all(r["useAsDefault"] == 1 and r["f_geometry_column"] == "geom" for r in rows)
+    assert all(r["styleSLD"].lstrip().startswith("<?xml") or "StyledLayerDescriptor" in r["styleSLD"] for r in rows)
     summary = qml_renderer_summary(next(r["styleQML"] for r in rows if r["f_table_name"] == "isochrone_bands"))
     assert summary["renderer"] == "graduatedSymbol"
     # every SLD (raster, bands, lines, coast) still parses and is an SLD
-    slds = list(out.rglob("*.sld"))
+    slds = [p for folder in runs.values() for p in folder.glob("*.sld")]
     assert len(slds) >= 10
     for sld in slds:
         assert ET.parse(sld).getroot().tag == f"{{{SLD_NAMESPACE}}}StyledLayerDescriptor", sld
 
 
 @requires_gdal_tools
-def test_gdal_still_opens_every_styled_file(styled_demo: tuple[Path, dict[str, Any]]) -> None:
-    out, _ = styled_demo
-    for tif in out.rglob("*.tif"):
-        done = subprocess.run(["gdalinfo", str(tif)], capture_output=True, text=True)
-        assert done.returncode == 0 and "ERROR" not in done.stderr, (tif, done.stderr)
-    vectors = [*out.rglob("*.gpkg"), *out.rglob("*.shp"), *out.rglob("*.geojson")]
-    assert vectors
-    for vec in vectors:
-        done = subprocess.run(["ogrinfo", "-so", "-al", str(vec)], capture_output=True, text=True)
-        assert done.returncode == 0 and "ERROR" not in done.stderr, (vec, done.stderr)
-        if vec.suffix == ".gpkg":
-            # the layer_styles table is a plain attributes table, listed with its row count
-            done = subprocess.run(["ogrinfo", "-so", str(vec), "layer_styles"], capture_output=True, text=True)
-            assert done.returncode == 0, done.stderr
-            assert "Geometry: None" in done.stdout
-            rows = len(read_gpkg_layer_styles(vec))
-            assert f"Feature Count: {rows}" in done.stdout
+def test_gdal_still_opens_every_styled_file(runs: dict[str, Path]) -> None:
+    for folder in runs.values():
+        for tif in folder.glob("*.tif"):
+            done = subprocess.run(["gdalinfo", str(tif)], capture_output=True, text=True)
+            assert done.returncode == 0 and "ERROR" not in done.stderr, (tif, done.stderr)
+        vectors = [*folder.glob("*.gpkg"), *folder.glob("*.shp"), *folder.glob("*.geojson")]
+        for vec in vectors:
+            done = subprocess.run(["ogrinfo", "-so", "-al", str(vec)], capture_output=True, text=True)
+            assert done.returncode == 0 and "ERROR" not in done.stderr, (vec, done.stderr)
+            if vec.suffix == ".gpkg":
+                # the layer_styles table is a plain attributes table, listed with its row count
+                done = subprocess.run(["ogrinfo", "-so", str(vec), "layer_styles"], capture_output=True, text=True)
+                assert done.returncode == 0, done.stderr
+                assert "Geometry: None" in done.stdout
+                rows = len(read_gpkg_layer_styles(vec))
+                assert f"Feature Count: {rows}" in done.stdout

@@ -1,11 +1,13 @@
-"""The report in a real browser: headless Chromium loads it offline, cleanly.
+"""The reports the jobs write, in a real browser: headless Chromium loads them offline, cleanly.
 
-On the products of a ``ttmap demo`` run: the report is written into the run's
-folder, then Debian's ``chromium`` (headless, network disabled by pointing
-every proxy at a closed port) loads it from ``file://``. Checks: no console
-error or uncaught exception in Chromium's log, the inline script ran (it
-marks the page ready, seen in the dumped DOM), and the screenshot is not
-blank (many distinct colours; the maps alone hold hundreds).
+The reports of the three job kinds, as the jobs wrote them: ``ttmap demo``
+(a map run, and a site-map run in ``site_maps/``) and a small scenario run
+on a crop of the demo grid (invented data). Debian's ``chromium`` (headless,
+network disabled by pointing every proxy at a closed port) loads each from
+``file://``. Checks: no console error or uncaught exception in Chromium's
+log, the inline script ran (it marks the page ready, seen in the dumped DOM),
+the page holds its job's sections, and the screenshot is not blank (many
+distinct colours; maps and charts hold hundreds).
 
 Skips where Chromium is absent.
 """
@@ -14,13 +16,13 @@ from __future__ import annotations
 
 import shutil
 import subprocess
+import textwrap
 import zlib
 from pathlib import Path
 
 import pytest
 
-from ttmap.io.report import REPORT_NAME, write_report
-from ttmap.products.report import render_report, report_context_from_run
+from ttmap.io.report import REPORT_NAME
 
 CHROMIUM = shutil.which("chromium") or shutil.which("chromium-browser")
 pytestmark = pytest.mark.skipif(CHROMIUM is None, reason="headless chromium not found")
@@ -86,31 +88,86 @@ def _png_distinct_colours(path: Path) -> int:
     return len(colours)
 
 
+DEMO_DIR = Path(__file__).resolve().parents[2] / "ttmap" / "demo_data"
+
+#: Two ruptures along the invented trench and a point over the invented
+#: seamount, on a crop of the demo grid, with the invented towns.
+_SCENARIOS = f"""\
+[bathymetry]
+path = "{(DEMO_DIR / 'demo_bathymetry.tif').as_posix()}"
+coarsen = 2
+crop_lonlat = [-148.0, -38.0, -141.0, -31.0]
+
+[speed]
+periods_s = [600]
+
+[[trench]]
+name_prefix = "arc"
+polyline = [[-144.30, -33.0], [-144.45, -34.0]]
+spacing_km = 70
+mw = 8.0
+
+[[scenario]]
+name = "seamount-point"
+point = [-146.90, -33.30]
+
+[sites]
+path = "{(DEMO_DIR / 'demo_sites.csv').as_posix()}"
+
+[outputs]
+folder = "out"
+envelope = true
+compare = [["arc-01", "seamount-point"]]
+executor = "serial"
+"""
+
+#: Sections each job's report must show (besides caution, run, record, products).
+_SECTIONS = {
+    "map": ["maps", "sites", "timeline"],
+    "site-map": ["maps", "sites"],
+    "scenario": ["sites", "comparison"],
+}
+
+
 @pytest.fixture(scope="module")
-def demo_report(tmp_path_factory: pytest.TempPathFactory) -> Path:
+def reports(tmp_path_factory: pytest.TempPathFactory) -> dict[str, Path]:
     from click.testing import CliRunner
 
     from ttmap.cli.main import cli
 
-    out = tmp_path_factory.mktemp("report") / "demo"
-    result = CliRunner().invoke(cli, ["demo", "--out", str(out)])
+    base = tmp_path_factory.mktemp("report")
+    runner = CliRunner()
+    result = runner.invoke(cli, ["demo", "--out", str(base / "demo"), "-q"])
     assert result.exit_code == 0, result.output
-    return write_report(out / REPORT_NAME, render_report(report_context_from_run(out)))
+    toml = base / "scenarios.toml"
+    toml.write_text(textwrap.dedent(_SCENARIOS), encoding="utf-8")
+    result = runner.invoke(cli, ["scenario", "run", str(toml), "--out", str(base / "scenario"), "-q"])
+    assert result.exit_code == 0, result.output
+    return {"map": base / "demo" / REPORT_NAME, "site-map": base / "demo" / "site_maps" / REPORT_NAME,
+            "scenario": base / "scenario" / REPORT_NAME}
 
 
-def test_report_loads_offline_without_console_errors(demo_report: Path) -> None:
-    done = _chromium("--enable-logging=stderr", "--v=0", "--dump-dom", demo_report.as_uri(), cwd=demo_report.parent)
+@pytest.mark.parametrize("job", ["map", "site-map", "scenario"])
+def test_report_loads_offline_without_console_errors(reports: dict[str, Path], job: str) -> None:
+    report = reports[job]
+    done = _chromium("--enable-logging=stderr", "--v=0", "--dump-dom", report.as_uri(), cwd=report.parent)
     assert done.returncode == 0, done.stderr[-2000:]
     console = [ln for ln in done.stderr.splitlines() if "CONSOLE" in ln or "Uncaught" in ln]
     assert console == [], console
     # the inline script ran to its end
     assert 'data-report-ready="1"' in done.stdout
     assert "Caution: read before using these results" in done.stdout
+    for section in ["caution", "run", *_SECTIONS[job], "record", "products"]:
+        assert f'<section id="{section}"' in done.stdout, (job, section)
+    # nothing is fetched from anywhere: no http(s) reference in the page
+    assert "http://" not in done.stdout.replace("http://www.w3.org", "") and "https://" not in done.stdout
 
 
-def test_report_screenshot_is_not_blank(demo_report: Path) -> None:
-    shot = demo_report.parent / "report_screenshot.png"
-    done = _chromium(f"--screenshot={shot}", "--window-size=1200,2000", demo_report.as_uri(), cwd=demo_report.parent)
+@pytest.mark.parametrize("job", ["map", "site-map", "scenario"])
+def test_report_screenshot_is_not_blank(reports: dict[str, Path], job: str) -> None:
+    report = reports[job]
+    shot = report.parent / "report_screenshot.png"
+    done = _chromium(f"--screenshot={shot}", "--window-size=1200,2000", report.as_uri(), cwd=report.parent)
     assert done.returncode == 0 and shot.is_file(), done.stderr[-2000:]
-    # a blank page has 1 colour, a text-only page a few dozen (anti-aliasing); maps add hundreds
+    # a blank page has 1 colour, a text-only page a few dozen (anti-aliasing); maps and charts add hundreds
     assert _png_distinct_colours(shot) > 300

@@ -169,6 +169,11 @@ def test_comparison_shown_when_present(run_dir: Path) -> None:
     (run_dir / "earliest_by_site.csv").write_text(
         "# caution\nsite,earliest_scenario,front_min\nBeta,north,12.0\nAlpha,south,40.0\n", encoding="utf-8"
     )
+    # files in the folder that the record does not list (left by another run) are not shown
+    assert report_context_from_run(run_dir).comparison == ()
+    record = json.loads((run_dir / "run.json").read_text(encoding="utf-8"))
+    record["products"] += ["sites_x_scenarios.png", "earliest_by_site.csv"]
+    (run_dir / "run.json").write_text(json.dumps(record), encoding="utf-8")
     ctx = report_context_from_run(run_dir)
     assert len(ctx.comparison) == 1 and ctx.comparison_table is not None
     assert ctx.comparison_table.numeric == (False, False, True)
@@ -202,3 +207,29 @@ def test_write_report_atomic_and_refuses(run_dir: Path) -> None:
         write_report(run_dir / "other.html", "<p>half</p>")
     assert not (run_dir / "other.html").exists()
     assert [p.name for p in run_dir.iterdir() if p.name.startswith(".")] == []
+
+
+def test_context_from_a_site_map_record_in_memory(run_dir: Path) -> None:
+    from ttmap.products.report import report_context_from_record
+
+    record = json.loads((run_dir / "run.json").read_text(encoding="utf-8"))
+    _png(run_dir / "map_site_Bay_A.png", (0.1, 0.6, 0.4))
+    record.update(job="site-map", products=["map_site_Bay_A.png", "report.html"],
+                  parameters={"speed_mode": "long-wave", "speed": {"floor_depth_m": 5.0}},
+                  sites=[{"name": "Bay A", "moved_m": 120.0, "notification_delay_min": 10.0,
+                          "notification_delay_from": "default", "cells_reached": 150,
+                          "minutes_range": [0.5, 42.25]}],
+                  sites_skipped=[{"name": "Inland", "reason": "no open water within 5 km"}],
+                  combined_written=False, reciprocity="times hold both ways")
+    (run_dir / "run.json").unlink()  # written after the report
+    ctx = report_context_from_record(record, run_dir)
+    assert [f.title for f in ctx.maps] == ["Minutes from a source here to Bay A"]
+    assert ctx.sites is not None and ctx.sites.level_column == -1
+    assert ctx.sites.rows[0].cells == ("Bay A", "120", "10.0", "default", "0.5", "42.2", "150")
+    assert "Inland: no open water within 5 km" in ctx.sites.note
+    # the report does not link itself; run.json is linked, to be written last
+    assert [p.name for p in ctx.products] == ["map_site_Bay_A.png", "run.json"]
+    html = render_report(ctx)
+    assert "Margin colours" not in html and 'id="sites"' in html
+    with pytest.raises(InputDataError, match="job 'batch' is unknown"):
+        report_context_from_record({**record, "job": "batch"}, run_dir)

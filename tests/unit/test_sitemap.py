@@ -27,7 +27,7 @@ from numpy.testing import assert_allclose, assert_array_equal
 from ttmap import Grid, Source, prepare_medium
 from ttmap.errors import InputDataError, OutputExistsError, SourceError
 from ttmap.products.cautions import CAUTION_SHORT
-from ttmap.jobs.plan import combined_names, site_file_stem, site_names
+from ttmap.jobs.plan import combined_names, site_file_stem, site_names, style_files
 from ttmap.jobs.sitemap import write_combined_products, write_site_products
 from ttmap.products.site_maps import render_site_map
 from ttmap.sitemap import (
@@ -241,9 +241,13 @@ def test_site_products_are_written_and_read_back(tmp_path, medium, harbour):
         vector_formats=("gpkg", "geojson"),
         map_formats=("png", "pdf"),
     )
-    assert files == site_names(
-        tmp_path, "Harbour", vector_formats=("gpkg", "geojson"), map_formats=("png", "pdf")
-    ).files()
+    plan = site_names(tmp_path, "Harbour", vector_formats=("gpkg", "geojson"), map_formats=("png", "pdf")).files()
+    # the plan's files, then the QGIS style beside each raster and GeoJSON layer
+    assert files == plan + style_files(plan)
+    assert [p.name for p in style_files(plan)] == [
+        "site_centred_Harbour.qml", "minutes_left_Harbour.qml",
+        "isochrones_site_Harbour_isochrone_lines.qml", "isochrones_site_Harbour_isochrone_bands.qml",
+    ]
     assert all(p.is_file() for p in files)
     assert sorted(p.name for p in tmp_path.iterdir()) == sorted(p.name for p in files)
 
@@ -352,7 +356,9 @@ def test_combined_products_are_written_and_read_back(tmp_path, medium, harbour):
     cove = site_centred_times(medium, Source.point_xy(x, y), name="Cove")
     t, idx, names = combine_sites({"Harbour": harbour, "Cove": cove})
     files = write_combined_products(tmp_path, t, idx, names, GRID, settings_from=harbour)
-    assert files == combined_names(tmp_path).files()
+    plan = combined_names(tmp_path).files()
+    assert files == plan + style_files(plan)
+    assert [p.name for p in style_files(plan)] == ["site_centred_min.qml", "site_centred_first_site.qml"]
     assert sorted(p.name for p in tmp_path.iterdir()) == sorted(p.name for p in files)
 
     tmin, tags, nodata, _, dtype = read(tmp_path / "site_centred_min.tif")

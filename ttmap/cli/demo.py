@@ -15,14 +15,16 @@ __all__ = ["demo"]
 @click.option("--out", "out_dir", type=click.Path(file_okay=False), default="ttmap_demo", show_default=True,
               help="Output folder.")
 @click.option("--overwrite", is_flag=True, help="Replace existing outputs.")
+@click.option("--no-report", is_flag=True, help="Skip report.html in the demo folder and in site_maps/.")
 @verbosity_options
 @click.pass_context
-def demo(ctx: click.Context, out_dir: str, overwrite: bool) -> None:
+def demo(ctx: click.Context, out_dir: str, overwrite: bool, no_report: bool) -> None:
     """Run the main job on the bundled demo bathymetry of an invented coast.
 
     Writes the arrival products of an invented earthquake, the site table
     and timeline chart of the invented towns, the coastal arrival layer, and
-    the site-centred map of the first town (in site_maps/). The region, its
+    the site-centred map of the first town (in site_maps/), each with its
+    report.html and layers that open styled in QGIS. The region, its
     towns and the earthquake are invented for demonstration; do not use any
     of it for planning.
     """
@@ -39,7 +41,8 @@ def demo(ctx: click.Context, out_dir: str, overwrite: bool) -> None:
     command_line = shlex.join(["ttmap", *sys.argv[1:]])
     with reporter(ctx) as rep:
         rep.stage("demo on an INVENTED coast (not a real place): earthquake near the invented trench")
-        job, site_job = demo_jobs(out_dir, overwrite=overwrite, command_line=command_line)
+        job, site_job = demo_jobs(out_dir, overwrite=overwrite, command_line=command_line,
+                                  report=not no_report)
         # Refuse existing site-map outputs before the main job writes anything.
         if Path(site_job.out_dir).is_dir():
             check_writable(planned_site_map_outputs(site_job), overwrite)

@@ -294,6 +294,7 @@ def period_speed_option(f: Any) -> Any:
 
 def product_options(f: Any) -> Any:
     """Options of the raster, isochrone and map products shared by the solving commands."""
+    f = click.option("--no-report", is_flag=True, help="Skip report.html (the run on one self-contained page).")(f)
     f = click.option("--no-map", is_flag=True, help="Skip the map pictures.")(f)
     f = click.option("--map-format", type=click.Choice(MAP_FORMATS), multiple=True,
                      help=f"Map format; repeat for several (default {MAP_FORMATS[0]}).")(f)
@@ -420,6 +421,7 @@ def products_from_options(opts: dict[str, Any]) -> ProductOptions:
             opts.get("map_format") or field_default(ProductOptions, "map_formats")),
         coast=bool(_given(opts, "coast")),
         coast_interval_min=_given(opts, "coast_interval_min"),
+        report=not opts.get("no_report"),
     )
 
 

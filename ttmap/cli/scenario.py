@@ -141,6 +141,7 @@ class _Progress:
     "(one raster each), instead of the reciprocal path (one solve per site; one union solve "
     "for the envelope) that is used when it is cheaper. See the file's outputs.table_method.",
 )
+@click.option("--no-report", is_flag=True, help="Skip report.html (the run on one self-contained page).")
 @verbosity_options
 @click.pass_context
 def run_command(
@@ -152,6 +153,7 @@ def run_command(
     overwrite: bool,
     resume: bool,
     direct: bool,
+    no_report: bool,
 ) -> None:
     """Solve every scenario of FILE, then write the envelope and difference rasters.
 
@@ -200,6 +202,7 @@ def run_command(
                 validate_s=validate_s,
                 command_line=shlex.join(["ttmap", *sys.argv[1:]]),
                 direct=direct,
+                report=not no_report,
             )
         finally:
             progress.close()

@@ -14,7 +14,7 @@ from pathlib import Path
 
 from ttmap.errors import InputDataError
 from ttmap.jobs.map import MapJob
-from ttmap.jobs.options import ReadingOptions, SiteOptions, SpeedOptions
+from ttmap.jobs.options import ProductOptions, ReadingOptions, SiteOptions, SpeedOptions
 from ttmap.jobs.sitemap import SiteMapJob
 
 __all__ = [
@@ -72,10 +72,12 @@ def demo_paths() -> DemoPaths:
     return DemoPaths(folder, folder / "demo_bathymetry.tif", folder / "demo_sites.csv")
 
 
-def demo_jobs(out_dir: str, *, overwrite: bool = False, command_line: str = "") -> tuple[MapJob, SiteMapJob]:
+def demo_jobs(out_dir: str, *, overwrite: bool = False, command_line: str = "",
+              report: bool = True) -> tuple[MapJob, SiteMapJob]:
     """The demo's map job (front and 300 s energy, site table) and site-map job (first town).
 
-    The site-map job writes into ``<out_dir>/site_maps``.
+    The site-map job writes into ``<out_dir>/site_maps``. Each writes its
+    ``report.html`` unless ``report`` is False.
     """
     from ttmap.io.sites import SiteList, read_sites
     from ttmap.sources import Source
@@ -87,6 +89,7 @@ def demo_jobs(out_dir: str, *, overwrite: bool = False, command_line: str = "") 
         source=Source.point(*DEMO_SOURCE_LONLAT, label="invented demo earthquake near the trench"),
         out_dir=out_dir,
         speed=SpeedOptions(periods_s=DEMO_PERIODS_S),
+        products=ProductOptions(report=report),
         sites=SiteOptions(path=str(paths.sites)),
         overwrite=overwrite,
         command_line=command_line,
@@ -98,6 +101,7 @@ def demo_jobs(out_dir: str, *, overwrite: bool = False, command_line: str = "") 
         out_dir=str(Path(out_dir) / DEMO_SITE_MAP_DIR),
         sites=SiteOptions(path=str(paths.sites)),
         site_list=SiteList(towns.sites[:1], towns.crs, towns.path),
+        products=ProductOptions(report=report),
         combined=False,
         overwrite=overwrite,
         title_prefix="INVENTED demo: ",

@@ -19,6 +19,8 @@ from ttmap.jobs.plan import ISOCHRONE_LAYERS
 
 __all__ = [
     "arrival_levels",
+    "arrival_ramp",
+    "band_classes",
     "latest_min",
     "minutes_range",
     "isochrone_layers",
@@ -63,15 +65,38 @@ def arrival_levels(time_min: np.ndarray, interval_min: float | None) -> np.ndarr
     return default_levels_min(tmax)
 
 
+def arrival_ramp(levels: Sequence[float] | np.ndarray) -> tuple[list[float], list[str]]:
+    """Stops (minutes, from 0 over ``levels``) and colours of an arrival raster's style.
+
+    The SLD and the QGIS style of every arrival-like raster use these.
+
+    >>> arrival_ramp([10.0, 20.0])[0]
+    [0.0, 10.0, 20.0]
+    >>> arrival_ramp([])[0]
+    [0.0, 60.0]
+    """
+    from ttmap.products.palette import arrival_colors_hex
+
+    ramp = [0.0, *[float(v) for v in levels]] if len(levels) else [0.0, 60.0]
+    return ramp, arrival_colors_hex(len(ramp))
+
+
+def band_classes(bands: Sequence[Any]) -> tuple[list[tuple[float, float | None, str]], list[str]]:
+    """``(min_minutes, max_minutes, label)`` rows and colours of isochrone bands, earliest first."""
+    from ttmap.products.palette import arrival_colors_hex
+
+    rows: list[tuple[float, float | None, str]] = [
+        (float(b.min_minutes), float(b.max_minutes), str(b.label)) for b in bands]
+    return rows, arrival_colors_hex(max(len(bands), 2))[: len(bands)]
+
+
 def write_arrival_style(path: Path, levels: np.ndarray, *, layer_name: str, title: str,
                         overwrite: bool = False) -> Path:
     """The raster SLD of an arrival-time GeoTIFF: a colour ramp from 0 over ``levels``."""
-    from ttmap.products.palette import arrival_colors_hex
     from ttmap.products.styles import raster_sld, write_sld
 
-    ramp = [0.0, *[float(v) for v in levels]] if len(levels) else [0.0, 60.0]
-    write_sld(path, raster_sld(ramp, arrival_colors_hex(len(ramp)), layer_name=layer_name, title=title),
-              overwrite=overwrite)
+    ramp, colors = arrival_ramp(levels)
+    write_sld(path, raster_sld(ramp, colors, layer_name=layer_name, title=title), overwrite=overwrite)
     return path
 
 
@@ -129,7 +154,6 @@ def write_isochrones(names: Any, layers: tuple[Any, Any], bands: Sequence[Any], 
     the Shapefile style filters on the 10-character field name.
     """
     from ttmap.io.vector import shapefile_field_name, write_vector_layers
-    from ttmap.products.palette import arrival_colors_hex
     from ttmap.products.styles import bands_sld, lines_sld, write_sld
 
     written: list[Path] = []
@@ -137,8 +161,7 @@ def write_isochrones(names: Any, layers: tuple[Any, Any], bands: Sequence[Any], 
         # The caution travels in each layer's description (dataset metadata makes
         # readers with newer GDAL write .aux.xml side files next to the GeoPackage).
         written += write_vector_layers(target, list(layers), crs=crs, overwrite=overwrite)
-    rows = [(b.min_minutes, b.max_minutes, b.label) for b in bands]
-    colors = arrival_colors_hex(max(len(bands), 2))[: len(bands)]
+    rows, colors = band_classes(bands)
     write_sld(names.lines_sld, lines_sld(layer_name=ISOCHRONE_LAYERS[0], title=lines_title), overwrite=overwrite)
     write_sld(names.bands_sld, bands_sld(rows, colors, layer_name=ISOCHRONE_LAYERS[1], title=bands_title),
               overwrite=overwrite)

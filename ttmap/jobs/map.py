@@ -46,11 +46,13 @@ import numpy as np
 from ttmap.errors import InputDataError, SourceError, TtmapWarning
 from ttmap.jobs.options import ProductOptions, ReadingOptions, SiteOptions, SpeedOptions, options_record
 from ttmap.jobs.plan import (
+    REPORT_NAME,
     RUN_RECORD_NAME,
     ProductSetNames,
     product_set_names,
     refuse_outputs_up_front,
     site_table_names,
+    style_files,
 )
 
 if TYPE_CHECKING:
@@ -193,6 +195,9 @@ def planned_outputs(job: MapJob) -> list[Path]:
     if job.sites is not None:
         paths += site_table_names(job.out_dir, vector_formats=job.products.vector_formats,
                                   map_formats=job.products.map_formats).files()
+    paths += style_files(paths)
+    if job.products.report:
+        paths.append(Path(job.out_dir) / REPORT_NAME)
     paths.append(Path(job.out_dir) / RUN_RECORD_NAME)
     return paths
 
@@ -332,6 +337,8 @@ def run_map_job(job: MapJob, *, progress: Callable[[str], None] | None = None) -
         inputs["sites"] = file_entry(job.sites.path, layer=job.sites.layer, name_field=job.sites.name_field,
                                      crs=sites.crs.to_string(), count=len(sites))
     timings["total_s"] = time.perf_counter() - t0
+    if job.products.report:
+        written.append(out / REPORT_NAME)  # written from the record, just before run.json
     blocks: dict[str, Any] = {"product_sets": summaries}
     if site_block is not None:
         blocks["sites"] = site_block
@@ -348,6 +355,11 @@ def run_map_job(job: MapJob, *, progress: Callable[[str], None] | None = None) -
         notes=notes,
         **blocks,
     )
+    if job.products.report:
+        from ttmap.jobs.styling import write_run_report
+
+        say("writing report.html")
+        record["timings_s"]["report_s"] = round(write_run_report(record, out, overwrite=job.overwrite)[1], 4)
     run_json = write_run_record(record, out / RUN_RECORD_NAME, overwrite=job.overwrite)
     return MapJobResult(out_dir=out, record_path=run_json, products=(*written, run_json),
                         product_sets=summaries, sites=site_block, record=record)
@@ -435,6 +447,9 @@ def _write_site_table(
     layer = site_table_layer(table, name="sites")
     for target in names.layers:
         written.append(write_one_layer(target, layer, "EPSG:4326", job.overwrite))
+    from ttmap.jobs.styling import style_map_sites
+
+    written += style_map_sites(names, little_margin_min=opts.little_margin_min, overwrite=job.overwrite)
 
     fig = render_timeline(table, title=job.timeline_title or f"Time budget per site: {job.source.label}")
     try:
@@ -548,6 +563,9 @@ def _write_products(job: MapJob, pset: ProductSet, result: TravelTimeResult, wat
     written += write_isochrones(names.isochrones, layers, bands, grid.crs,
                                 lines_title=f"Isochrones: {pset.title}",
                                 bands_title=f"Arrival bands: {pset.title}", overwrite=job.overwrite)
+    from ttmap.jobs.styling import style_map_set
+
+    written += style_map_set(names, title=pset.title, levels=levels, bands=bands, overwrite=job.overwrite)
 
     if coast is not None:
         written += _write_coast(job, pset, names, coast, time_min, grid)
@@ -613,4 +631,7 @@ def _write_coast(job: MapJob, pset: ProductSet, names: ProductSetNames, segments
     write_sld(names.coast_sld, coast_sld(classes, colors, title=f"Coastal arrival: {pset.title}"),
               overwrite=job.overwrite)
     written.append(names.coast_sld)
+    from ttmap.jobs.styling import style_map_coast
+
+    written += style_map_coast(names, classes, colors, title=pset.title, overwrite=job.overwrite)
     return written

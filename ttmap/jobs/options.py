@@ -200,6 +200,8 @@ class ProductOptions:
         Write the coastal arrival layer (map job only).
     coast_interval_min : float
         Width of the coastal arrival classes.
+    report : bool
+        Write ``report.html``, the run on one self-contained page.
     """
 
     isochrone_interval_min: float | None = None
@@ -207,6 +209,7 @@ class ProductOptions:
     map_formats: tuple[str, ...] = (MAP_FORMAT,)
     coast: bool = True
     coast_interval_min: float = COAST_CLASS_INTERVAL_MIN
+    report: bool = True
 
     def __post_init__(self) -> None:
         object.__setattr__(self, "vector_formats", tuple(self.vector_formats))

@@ -10,7 +10,10 @@ from the same plan, so the two can never disagree.
 - :func:`site_table_names` - the map job's site table and timeline;
 - :func:`site_names` - one site of the site-map job;
 - :func:`combined_names` - the site-map job's several-site products;
-- :data:`RUN_RECORD_NAME` - the run record every job writes last.
+- :data:`RUN_RECORD_NAME` - the run record every job writes last;
+- :data:`REPORT_NAME` - the HTML report, written just before the run record;
+- :func:`style_files` - the QGIS style files (``.qml``) beside the rasters,
+  Shapefiles and GeoJSON files of a plan.
 
 The module imports nothing heavy.
 """
@@ -29,6 +32,8 @@ from ttmap.errors import InputDataError
 
 __all__ = [
     "RUN_RECORD_NAME",
+    "REPORT_NAME",
+    "STYLED_SUFFIXES",
     "ISOCHRONE_LAYERS",
     "ProductSetNames",
     "SiteNames",
@@ -41,10 +46,18 @@ __all__ = [
     "site_file_stem",
     "check_site_stems",
     "refuse_outputs_up_front",
+    "style_files",
 ]
 
 #: File name of the run record, written last in the output folder.
 RUN_RECORD_NAME: str = "run.json"
+
+#: File name of the HTML report, written in the output folder just before the run record.
+REPORT_NAME: str = "report.html"
+
+#: Layer files that get a QGIS style file (``.qml``) of the same base name
+#: beside them; GeoPackage layers keep their styles inside the file.
+STYLED_SUFFIXES: tuple[str, ...] = (".tif", ".shp", ".geojson")
 
 #: Layer names of every isochrone file (GeoPackage layers; Shapefile and
 #: GeoJSON outputs get one file per layer, named ``<stem>_<layer>``).
@@ -281,6 +294,25 @@ def combined_names(out_dir: str | os.PathLike[str]) -> CombinedNames:
         first_sld=out / "site_centred_first_site.sld",
         first_json=out / "site_centred_first_site.json",
     )
+
+
+def style_files(paths: Iterable[str | os.PathLike[str]]) -> list[Path]:
+    """The ``.qml`` style file beside each raster, Shapefile and GeoJSON file of ``paths``.
+
+    QGIS loads ``<base name>.qml`` beside a layer file when it opens it; a
+    Shapefile and a GeoJSON file of the same base name share one. Each name
+    appears once, in the order of ``paths``.
+
+    >>> [p.name for p in style_files(["out/arrival_front.tif", "out/a_lines.shp",
+    ...                               "out/a_lines.geojson", "out/a.gpkg", "out/map.png"])]
+    ['arrival_front.qml', 'a_lines.qml']
+    """
+    out: dict[Path, None] = {}
+    for p in paths:
+        path = Path(p)
+        if path.suffix.lower() in STYLED_SUFFIXES:
+            out.setdefault(path.with_suffix(".qml"), None)
+    return list(out)
 
 
 def refuse_outputs_up_front(out_dir: str | os.PathLike[str], planned: Sequence[Path], overwrite: bool) -> Path:

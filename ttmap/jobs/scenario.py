@@ -43,6 +43,7 @@ def run_scenario_file(
     command_line: str = "",
     validate_s: float | None = None,
     direct: bool = False,
+    report: bool = True,
 ) -> dict[str, Any]:
     """Solve every scenario of a file, then write the comparisons and ``run.json``.
 
@@ -70,6 +71,8 @@ def run_scenario_file(
         Solve every scenario directly for the table and the envelope, whatever
         ``[outputs] table_method`` says (see
         :func:`ttmap.jobs.scenario_reciprocal.plan_table_method`).
+    report : bool
+        Write ``report.html`` (rebuilt on every run, like the comparisons).
 
     Returns
     -------
@@ -118,6 +121,12 @@ def run_scenario_file(
         if progress is not None:
             progress(done, plan.total_solves, name)
 
+    from ttmap.jobs.batch import task_output_paths
+    from ttmap.jobs.plan import REPORT_NAME, style_files
+
+    # the styles beside the task rasters and the report are derived like run.json
+    check_writable([*style_files(task_output_paths(t.name, out)[0] for t in tasks),
+                    *([out / REPORT_NAME] if report else [])], derived_overwrite)
     t0 = time.perf_counter()
     summaries = run_tasks(
         tasks,
@@ -152,6 +161,8 @@ def run_scenario_file(
             products["envelope_method"] = "one solve (union of starts, labels carried)"
             rec_info["envelope"] = rec_env["info"]
         products["reciprocal"] = rec_info
+    # scenario names in the order the envelope's first-scenario index uses
+    names: list[str] = [sc.name for sc in sf.scenarios] if plan.envelope_one_solve else []
     if sf.outputs.envelope or sf.outputs.compare:
         if sf.outputs.envelope and not plan.envelope_one_solve:
             if len(fronts) >= 2:
@@ -186,6 +197,10 @@ def run_scenario_file(
             products["sites"] = sites_summary["files"]
         else:
             products["skipped"].append(f"sites by scenarios: {sites_summary.get('skipped')}")
+    from ttmap.jobs.styling import style_scenario_run
+
+    styles = style_scenario_run(summaries, envelope=products["envelope"], envelope_names=names,
+                                overwrite=derived_overwrite)
     compare_s = time.perf_counter() - t1
 
     record = _scenario_record(
@@ -214,7 +229,12 @@ def run_scenario_file(
             "total_s": time.perf_counter() - t_start + (validate_s or 0.0),
         },
         out_dir=out,
+        extra_products=[*map(str, styles), *([str(out / REPORT_NAME)] if report else [])],
     )
+    if report:
+        from ttmap.jobs.styling import write_run_report
+
+        record["timings_s"]["report_s"] = round(write_run_report(record, out, overwrite=derived_overwrite)[1], 4)
     write_run_record(record, run_json, overwrite=True)
     record["run_json"] = str(run_json)
     return record
@@ -232,6 +252,7 @@ def _scenario_record(
     options: Mapping[str, Any],
     timings_s: Mapping[str, float],
     out_dir: Path,
+    extra_products: Sequence[str] = (),
 ) -> dict[str, Any]:
     """The run record of a scenario run, in the one schema (:mod:`ttmap.jobs.record`)."""
     from ttmap.jobs.record import build_run_record, file_entry
@@ -258,7 +279,7 @@ def _scenario_record(
             **options,
         },
         timings_s=timings_s,
-        products=[*rasters, *task_records, *_files_written(products)],
+        products=[*rasters, *task_records, *_files_written(products), *extra_products],
         out_dir=out_dir,
         scenarios=[sc.describe() for sc in sf.scenarios],
         trenches=[
@@ -519,7 +540,8 @@ def write_difference(
     Returns
     -------
     dict
-        ``{"difference": path}``.
+        ``{"difference": path, "style": path}``; the style is the QGIS
+        ``.qml`` beside the raster (a diverging ramp centred on zero).
 
     Raises
     ------
@@ -539,6 +561,8 @@ def write_difference(
     b, _, _ = read_minutes(path_b, grid_a)
     diff = difference(a, b)
     del a, b
+    style = target.with_suffix(".qml")
+    check_writable([style], overwrite)
     write_difference_raster(
         target,
         diff,
@@ -558,7 +582,10 @@ def write_difference(
         band_description=f"arrival of {a_name} minus arrival of {b_name}, minutes",
         overwrite=overwrite,
     )
-    return {"difference": str(target)}
+    from ttmap.jobs.styling import write_difference_style
+
+    write_difference_style(target, diff, a_name, b_name, overwrite=overwrite)
+    return {"difference": str(target), "style": str(style)}
 
 
 def write_sites_by_scenarios(

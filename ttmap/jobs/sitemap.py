@@ -37,12 +37,14 @@ from ttmap.jobs.options import (
     options_record,
 )
 from ttmap.jobs.plan import (
+    REPORT_NAME,
     RUN_RECORD_NAME,
     SiteNames,
     check_site_stems,
     combined_names,
     refuse_outputs_up_front,
     site_names,
+    style_files,
 )
 
 if TYPE_CHECKING:
@@ -166,6 +168,9 @@ def planned_site_map_outputs(job: SiteMapJob, site_list: Any = None) -> list[Pat
                             map_formats=job.products.map_formats).files()
     if job.combined and len(sites) >= 2:
         paths += combined_names(job.out_dir).files()
+    paths += style_files(paths)
+    if job.products.report:
+        paths.append(Path(job.out_dir) / REPORT_NAME)
     paths.append(Path(job.out_dir) / RUN_RECORD_NAME)
     return paths
 
@@ -310,6 +315,8 @@ def run_site_map_job(job: SiteMapJob, *, progress: Callable[[str], None] | None 
         combined_written = True
         timings["combine_s"] = time.perf_counter() - t5
     timings["total_s"] = time.perf_counter() - t0
+    if job.products.report:
+        written.append(out / REPORT_NAME)  # written from the record, just before run.json
 
     inputs: dict[str, Any] = {"bathymetry": file_entry(job.reading.path, sha256=bathy.sha256,
                                                         band=bathy.band, notes=list(bathy.notes))}
@@ -331,6 +338,11 @@ def run_site_map_job(job: SiteMapJob, *, progress: Callable[[str], None] | None 
         combined_written=combined_written,
         reciprocity=RECIPROCITY_NOTE,
     )
+    if job.products.report:
+        from ttmap.jobs.styling import write_run_report
+
+        say("writing report.html")
+        record["timings_s"]["report_s"] = round(write_run_report(record, out, overwrite=job.overwrite)[1], 4)
     run_json = write_run_record(record, out / RUN_RECORD_NAME, overwrite=job.overwrite)
     return SiteMapJobResult(out_dir=out, record_path=run_json, products=(*written, run_json), sites=per_site,
                             skipped=skipped, combined_written=combined_written, record=record)
@@ -437,6 +449,7 @@ def write_site_products(
     delay = check_notification_delay(notification_delay_min)
     check_formats(vector_formats, map_formats)
     planned = site_names(out_dir, name, vector_formats=vector_formats, map_formats=map_formats).files()
+    planned += style_files(planned)
     companions = [p.with_suffix(s) for p in planned if p.suffix == ".shp" for s in SHAPEFILE_SUFFIXES]
     check_writable([*planned, *companions], overwrite)
     with atomic_output_set(planned, overwrite=overwrite) as staged:
@@ -512,6 +525,9 @@ def _write_site_set(
     )
     write_isochrones(names.isochrones, layers, bands, grid.crs, lines_title=f"Minutes to reach {name}",
                      bands_title=f"Minutes from a source here to {name}")
+    from ttmap.jobs.styling import style_site_set
+
+    style_site_set(names, name=name, levels=levels, bands=bands, left_min=left, delay_min=delay)
 
     if names.maps:
         from ttmap.products.maps import save_figure
@@ -605,6 +621,7 @@ def write_combined_products(
             "arrays from one combine_sites call"
         )
     planned = combined_names(out_dir).files()
+    planned += style_files(planned)
     check_writable(planned, overwrite)
     common = (
         _common_tags(settings_from)
@@ -661,6 +678,9 @@ def write_combined_products(
             resampling="mode",
         )
         write_sld(names_.first_sld, first_site_sld(names))
+        from ttmap.jobs.styling import style_site_combined
+
+        style_site_combined(names_, levels=arrival_levels(t, None), site_names=names)
         with atomic_output(names_.first_json, overwrite=False) as tmp:
             tmp.write_text(lookup_text, encoding="utf-8")
     return planned

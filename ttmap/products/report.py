@@ -4,8 +4,10 @@
   what was run, the maps and charts (PNG as ``data:`` URIs), the site table
   with each margin's colour level, the scenario comparison when there is one,
   the run record in short and relative links to every product.
-- :func:`report_context_from_run` - builds it from a finished map run's
-  folder (``run.json`` and the products it lists).
+- :func:`report_context_from_record` - builds it from a run record
+  (schema v2, jobs ``map``, ``site-map`` and ``scenario``) and the products
+  it lists; the jobs call it just before they write ``run.json``.
+- :func:`report_context_from_run` - the same from a finished run's folder.
 - :func:`render_report` - the HTML text, from the Jinja2 template
   ``ttmap/templates/report.html.j2`` with autoescaping on.
 
@@ -39,6 +41,7 @@ __all__ = [
     "ReportTable",
     "ReportLink",
     "ReportContext",
+    "report_context_from_record",
     "report_context_from_run",
     "render_report",
     "png_data_uri",
@@ -338,7 +341,7 @@ def _bathymetry_text(inputs: Mapping[str, Any]) -> str:
 
 
 def report_context_from_run(out_dir: str | os.PathLike[str], *, title: str | None = None) -> ReportContext:
-    """Build the report's content from a finished map run's folder.
+    """Build the report's content from a finished run's folder (its ``run.json``).
 
     Parameters
     ----------
@@ -346,7 +349,7 @@ def report_context_from_run(out_dir: str | os.PathLike[str], *, title: str | Non
         The run's output folder, holding ``run.json`` and the products it
         lists under ``products``.
     title : str, optional
-        Page title; by default from the source's label.
+        Page title; by default from the run (source, sites or scenario file).
 
     Returns
     -------
@@ -357,18 +360,7 @@ def report_context_from_run(out_dir: str | os.PathLike[str], *, title: str | Non
     InputDataError
         No ``run.json``, a record that is not a ttmap run record, or a listed
         picture that is missing or not a PNG.
-
-    Notes
-    -----
-    Maps are the ``map_*.png`` files of the record; the timeline is
-    ``timeline.png``; the site table is ``sites.csv``; a scenario comparison
-    is shown when ``sites_x_scenarios.png`` (and ``earliest_by_site.csv``)
-    are in the folder. Product links are relative to ``out_dir``, where the
-    report belongs.
     """
-    from ttmap.products.cautions import CAUTION_LINES, CAUTION_SHORT
-    from ttmap.products.timeline import MARGIN_LEVEL_COLORS
-
     out = Path(out_dir)
     run_json = out / "run.json"
     try:
@@ -379,17 +371,72 @@ def report_context_from_run(out_dir: str | os.PathLike[str], *, title: str | Non
         ) from err
     except (OSError, ValueError) as err:
         raise InputDataError(f"{str(run_json)!r} cannot be read as JSON ({err}); re-run the job") from err
-    if not isinstance(record, dict) or record.get("schema") != "ttmap-run-record":
+    return report_context_from_record(record, out, title=title)
+
+
+def report_context_from_record(record: Mapping[str, Any], out_dir: str | os.PathLike[str], *,
+                               title: str | None = None) -> ReportContext:
+    """Build the report's content from a run record (schema v2) and the products in ``out_dir``.
+
+    The jobs call this with the record they are about to write, so the report
+    is written before ``run.json``; :func:`report_context_from_run` reads the
+    record from a finished folder.
+
+    Parameters
+    ----------
+    record : mapping
+        A run record (``docs/run-record.md``) of job ``"map"``, ``"site-map"``
+        or ``"scenario"``.
+    out_dir : path-like
+        The run's output folder; product paths in the record are relative to it.
+    title : str, optional
+        Page title.
+
+    Returns
+    -------
+    ReportContext
+
+    Raises
+    ------
+    InputDataError
+        Not a ttmap run record, an unknown job kind, or a listed picture that
+        is missing or not a PNG.
+
+    Notes
+    -----
+    - map: maps are the ``map_*.png`` files, the timeline ``timeline.png``,
+      the site table ``sites.csv`` (margins coloured as in the timeline chart);
+    - site-map: maps are the ``map_site_*.png`` files, the site table lists
+      each site's solve (where it was solved from, notification delay, range
+      of minutes from a source to it), skipped sites in its note;
+    - scenario: maps are any ``map_*.png`` files; the site table is
+      ``sites_x_scenarios.csv`` (one row per site and scenario, margins
+      coloured); the comparison shows ``sites_x_scenarios.png`` and
+      ``earliest_by_site.csv``; the record in short counts finished and
+      failed solves and what the comparison skipped.
+
+    Product links are relative to ``out_dir``, where the report belongs;
+    files listed but absent (the report itself, while it is being written)
+    are left out.
+    """
+    from ttmap.products.cautions import CAUTION_LINES, CAUTION_SHORT
+    from ttmap.products.timeline import MARGIN_LEVEL_COLORS
+
+    out = Path(out_dir)
+    if not isinstance(record, Mapping) or record.get("schema") != "ttmap-run-record":
         raise InputDataError(
-            f"{str(run_json)!r} is not a ttmap run record (no 'schema': 'ttmap-run-record'); "
+            f"the record for {str(out)!r} is not a ttmap run record (no 'schema': 'ttmap-run-record'); "
             "give the output folder of a finished run"
         )
+    job = str(record.get("job", "map"))
+    if job not in _JOB_BUILDERS:
+        raise InputDataError(f"run record job {job!r} is unknown; the report knows {', '.join(_JOB_BUILDERS)}")
 
     files: list[Path] = []
     for f in record.get("products") or []:
         p = Path(f)
         p = p if p.is_absolute() else out / p
-        if p.name != "run.json" and p.exists():
+        if p.name not in ("run.json", _REPORT_NAME) and p.exists() and p not in files:
             files.append(p)
 
     def rel(p: Path) -> str:
@@ -398,57 +445,125 @@ def report_context_from_run(out_dir: str | os.PathLike[str], *, title: str | Non
         except ValueError:
             return os.path.relpath(p, out).replace(os.sep, "/")
 
+    parts = _JOB_BUILDERS[job](record, out, files, rel)
+    versions = tuple((str(k), str(v)) for k, v in (record.get("versions") or {}).items() if k != "platform")
+
+    timings = record.get("timings_s") or {}
+    summary: list[tuple[str, str]] = [
+        ("Job", _JOB_TITLES[job]),
+        ("Started (UTC)", str(record.get("started_utc", ""))),
+        ("Finished (UTC)", str(record.get("finished_utc", ""))),
+    ]
+    if "total_s" in timings:
+        summary.append(("Wall time", f"{float(timings['total_s']):.2f} s"))
+    summary += parts.record
+    for note in record.get("notes") or []:
+        summary.append(("Note", str(note)))
+    summary.append(("Files written", str(len(record.get("products") or []))))
+    summary.append(("Run record", "run.json (inputs with SHA-256, every parameter, versions, timings)"))
+
+    links = [
+        ReportLink(href=rel(p), name=rel(p), kind=_KINDS.get(p.suffix.lower(), p.suffix.lstrip(".")),
+                   size=_size_text(p.stat().st_size))
+        for p in files
+    ]
+    run_json = out / "run.json"
+    links.append(ReportLink(href="run.json", name="run.json", kind=_KINDS[".json"],
+                            size=_size_text(run_json.stat().st_size) if run_json.is_file() else "written last"))
+
+    return ReportContext(
+        title=title or parts.title,
+        cautions=tuple(CAUTION_LINES),
+        caution_short=CAUTION_SHORT,
+        generated_utc=_dt.datetime.now(_dt.timezone.utc).strftime("%Y-%m-%d %H:%M UTC"),
+        run_facts=tuple(parts.facts),
+        versions=versions,
+        maps=tuple(parts.maps),
+        timeline=parts.timeline,
+        sites=parts.sites,
+        comparison=tuple(parts.comparison),
+        comparison_table=parts.comparison_table,
+        record=tuple(summary),
+        products=tuple(links),
+        margin_colors=dict(MARGIN_LEVEL_COLORS),
+    )
+
+
+_REPORT_NAME = "report.html"
+
+_JOB_TITLES = {
+    "map": "map run (arrival times from one source)",
+    "site-map": "site-map run (minutes from any source location to each site)",
+    "scenario": "scenario run (many sources, compared)",
+}
+
+
+@dataclass
+class _Parts:
+    """What differs between job kinds."""
+
+    title: str
+    facts: list[tuple[str, str]]
+    record: list[tuple[str, str]] = field(default_factory=list)
+    maps: list[ReportFigure] = field(default_factory=list)
+    timeline: ReportFigure | None = None
+    sites: ReportTable | None = None
+    comparison: list[ReportFigure] = field(default_factory=list)
+    comparison_table: ReportTable | None = None
+
+
+def _common_facts(record: Mapping[str, Any]) -> list[tuple[str, str]]:
+    facts = [("Bathymetry", _bathymetry_text(record.get("inputs") or {}))]
+    grid = record.get("grid")
+    if grid:
+        facts.append(("Grid", _grid_text(grid)))
+    site_in = (record.get("inputs") or {}).get("sites")
+    if site_in:
+        facts.append(("Sites", f"{os.path.basename(str(site_in.get('path', '?')))} "
+                               f"({site_in.get('count', '?')} sites)"))
+    return facts
+
+
+def _command_fact(record: Mapping[str, Any]) -> list[tuple[str, str]]:
+    return [("Command", str(record["command_line"]))] if record.get("command_line") else []
+
+
+def _timeline_figure(out: Path, rel: Any) -> ReportFigure | None:
+    timeline_png = out / "timeline.png"
+    if not timeline_png.is_file():
+        return None
+    return ReportFigure(
+        title="Time budget per site", data_uri=png_data_uri(timeline_png), href=rel(timeline_png),
+        caption="Bars: waiting for the official message, preparation, walking to safe ground; "
+                "tick: front arrival with its speed-uncertainty band.",
+    )
+
+
+def _comparison_parts(out: Path, rel: Any, files: list[Path]) -> tuple[list[ReportFigure], ReportTable | None]:
+    listed = {p.name for p in files}
+    figs = [
+        ReportFigure(title="Front arrival per site in each scenario", data_uri=png_data_uri(p), href=rel(p))
+        for p in [out / "sites_x_scenarios.png"] if p.is_file() and p.name in listed
+    ]
+    earliest_csv = out / "earliest_by_site.csv"
+    table = _comparison_table(earliest_csv) if earliest_csv.is_file() and earliest_csv.name in listed else None
+    return figs, table
+
+
+def _map_parts(record: Mapping[str, Any], out: Path, files: list[Path], rel: Any) -> _Parts:
     params = record.get("parameters") or {}
     src = params.get("source") or {}
     sets = record.get("product_sets") or {}
-
     maps = []
     for p in files:
         if p.suffix == ".png" and p.name.startswith("map_"):
             key = p.stem[len("map_"):]
             set_title = str((sets.get(key) or {}).get("title", key)) if isinstance(sets, Mapping) else key
             maps.append(ReportFigure(title=f"Arrival time: {set_title}", data_uri=png_data_uri(p), href=rel(p)))
-
-    timeline_png = out / "timeline.png"
-    timeline = (
-        ReportFigure(
-            title="Time budget per site", data_uri=png_data_uri(timeline_png), href=rel(timeline_png),
-            caption="Bars: waiting for the official message, preparation, walking to safe ground; "
-                    "tick: front arrival with its speed-uncertainty band.",
-        )
-        if timeline_png.is_file() else None
-    )
     sites_csv = out / "sites.csv"
-    sites = _site_table(sites_csv) if sites_csv.is_file() else None
-
-    comparison = tuple(
-        ReportFigure(title="Front arrival per site in each scenario", data_uri=png_data_uri(p), href=rel(p))
-        for p in [out / "sites_x_scenarios.png"] if p.is_file()
-    )
-    earliest_csv = out / "earliest_by_site.csv"
-    comparison_table = _comparison_table(earliest_csv) if earliest_csv.is_file() else None
-
-    facts: list[tuple[str, str]] = [
-        ("Source", _source_text(src)),
-        ("Bathymetry", _bathymetry_text(record.get("inputs") or {})),
-        ("Speed models", _speed_text(record)),
-        ("Grid", _grid_text(record.get("grid") or {})),
-    ]
-    site_in = (record.get("inputs") or {}).get("sites")
-    if site_in:
-        facts.append(("Sites", f"{os.path.basename(str(site_in.get('path', '?')))} "
-                               f"({site_in.get('count', '?')} sites)"))
-    if record.get("command_line"):
-        facts.append(("Command", str(record["command_line"])))
-    versions = tuple((str(k), str(v)) for k, v in (record.get("versions") or {}).items() if k != "platform")
-
-    timings = record.get("timings_s") or {}
-    summary: list[tuple[str, str]] = [
-        ("Started (UTC)", str(record.get("started_utc", ""))),
-        ("Finished (UTC)", str(record.get("finished_utc", ""))),
-    ]
-    if "total_s" in timings:
-        summary.append(("Wall time", f"{float(timings['total_s']):.2f} s"))
+    facts = [("Source", _source_text(src)), ("Speed models", _speed_text(record)), *_common_facts(record),
+             *_command_fact(record)]
+    summary: list[tuple[str, str]] = []
     if isinstance(sets, Mapping):
         for key, s in sets.items():
             rng = s.get("arrival_min_range") or []
@@ -458,34 +573,171 @@ def report_context_from_run(out_dir: str | os.PathLike[str], *, title: str | Non
             if len(rng) == 2:
                 text += f"; arrivals {rng[0]:.1f} to {rng[1]:.1f} min"
             summary.append((f"Product set {key}", text))
-    summary.append(("Files written", str(len(record.get("products") or []))))
-    summary.append(("Run record", "run.json (inputs with SHA-256, every parameter, versions, timings)"))
-
-    links = [
-        ReportLink(href=rel(p), name=rel(p), kind=_KINDS.get(p.suffix.lower(), p.suffix.lstrip(".")),
-                   size=_size_text(p.stat().st_size))
-        for p in files
-    ]
-    if run_json.is_file():
-        links.append(ReportLink(href="run.json", name="run.json", kind=_KINDS[".json"],
-                                size=_size_text(run_json.stat().st_size)))
-
-    return ReportContext(
-        title=title or f"Tsunami arrival times: {src.get('label') or 'map run'}",
-        cautions=tuple(CAUTION_LINES),
-        caution_short=CAUTION_SHORT,
-        generated_utc=_dt.datetime.now(_dt.timezone.utc).strftime("%Y-%m-%d %H:%M UTC"),
-        run_facts=tuple(facts),
-        versions=versions,
-        maps=tuple(maps),
-        timeline=timeline,
-        sites=sites,
-        comparison=comparison,
-        comparison_table=comparison_table,
-        record=tuple(summary),
-        products=tuple(links),
-        margin_colors=dict(MARGIN_LEVEL_COLORS),
+    comparison, comparison_table = _comparison_parts(out, rel, files)
+    return _Parts(
+        title=f"Tsunami arrival times: {src.get('label') or 'map run'}",
+        facts=facts, record=summary, maps=maps, timeline=_timeline_figure(out, rel),
+        sites=_site_table(sites_csv) if sites_csv.is_file() else None,
+        comparison=comparison, comparison_table=comparison_table,
     )
+
+
+def _site_map_parts(record: Mapping[str, Any], out: Path, files: list[Path], rel: Any) -> _Parts:
+    params = record.get("parameters") or {}
+    solved = [s for s in (record.get("sites") or []) if isinstance(s, Mapping)]
+    skipped = [s for s in (record.get("sites_skipped") or []) if isinstance(s, Mapping)]
+    speed = params.get("speed") or {}
+    mode = str(params.get("speed_mode", "long-wave"))
+    periods = speed.get("periods_s") or []
+    speed_text = ("long-wave speed (front, earliest arrival)" if mode == "long-wave"
+                  else f"{mode} speed of {float(periods[0]):g} s waves" if periods else f"{mode} speed")
+    extra = []
+    if speed.get("far_field"):
+        extra.append("far-field slowdown on")
+    if speed.get("floor_depth_m") is not None:
+        extra.append(f"floor depth {float(speed['floor_depth_m']):g} m")
+    names = [str(s.get("name", "")) for s in solved]
+    facts = [
+        ("Sites solved from", ", ".join(names) or "none"),
+        ("Method", str(record.get("reciprocity") or "site-centred solves (reciprocity)")),
+        ("Speed model", speed_text + (f" ({', '.join(extra)})" if extra else "")),
+        *_common_facts(record),
+        *_command_fact(record),
+    ]
+    maps = []
+    for p in files:
+        if p.suffix == ".png" and p.name.startswith("map_site_"):
+            label = p.stem[len("map_site_"):].replace("_", " ")
+            maps.append(ReportFigure(title=f"Minutes from a source here to {label}", data_uri=png_data_uri(p),
+                                     href=rel(p)))
+    headers = ("Site", "Moved to water", "Message delay", "Delay from", "Earliest", "Latest", "Cells reached")
+    units = ("", "m", "min", "", "min", "min", "")
+    numeric = (False, True, True, False, True, True, True)
+    rows = []
+    for s in solved:
+        rng = s.get("minutes_range") or [math.nan, math.nan]
+        values: list[str | float] = [
+            str(s.get("name", "")), _float(s.get("moved_m")), _float(s.get("notification_delay_min")),
+            str(s.get("notification_delay_from", "")), _float(rng[0]), _float(rng[1]),
+            _float(s.get("cells_reached")),
+        ]
+        cells = tuple(v if isinstance(v, str) else _fmt(v, 0 if i in (1, 6) else 1) for i, v in enumerate(values))
+        keys = tuple(v.lower() if isinstance(v, str) else _key(v) for v in values)
+        rows.append(ReportTableRow(cells=cells, sort_keys=keys))
+    note = ("Earliest and latest: minutes from a source anywhere on the grid to the site (by reciprocity). "
+            "Click a column heading to sort.")
+    if skipped:
+        note += " Not placed (no map): " + "; ".join(f"{s.get('name')}: {s.get('reason')}" for s in skipped)
+    table = ReportTable(headers=headers, units=units, rows=tuple(rows), numeric=numeric, note=note) if rows else None
+    summary = [("Sites solved", f"{len(solved)} ({len(skipped)} not placed)"),
+               ("Several-site products", "written" if record.get("combined_written") else "not written")]
+    for s in solved:
+        rng = s.get("minutes_range") or []
+        if len(rng) == 2:
+            summary.append((f"Site {s.get('name')}", f"{s.get('cells_reached')} cells reached; "
+                                                      f"{rng[0]:.1f} to {rng[1]:.1f} min"))
+    first = out / "site_centred_min.tif"
+    if first.is_file():
+        summary.append(("Earliest over sites", rel(first)))
+    return _Parts(
+        title="Minutes from a source anywhere to "
+              + (names[0] if len(names) == 1 else f"{len(names)} sites"),
+        facts=facts, record=summary, maps=maps, sites=table,
+    )
+
+
+def _scenario_parts(record: Mapping[str, Any], out: Path, files: list[Path], rel: Any) -> _Parts:
+    params = record.get("parameters") or {}
+    inputs = record.get("inputs") or {}
+    scenarios = [s for s in (record.get("scenarios") or []) if isinstance(s, Mapping)]
+    tasks = [t for t in (record.get("tasks") or []) if isinstance(t, Mapping)]
+    failed = [t for t in (record.get("failed") or []) if isinstance(t, Mapping)]
+    comparisons = record.get("comparisons") or {}
+    medium = params.get("medium") or {}
+    sf_name = os.path.basename(str((inputs.get("scenario_file") or {}).get("path", "scenario file")))
+    names = [str(s.get("name", "")) for s in scenarios]
+    shown = ", ".join(names[:12]) + (f" and {len(names) - 12} more" if len(names) > 12 else "")
+    periods = params.get("periods_s") or []
+    speed = "front (long-wave speed)"
+    if periods:
+        speed += f"; {params.get('period_speed', 'group')} speed of " + ", ".join(f"{float(p):g}" for p in periods) + " s waves"
+    extra = []
+    if medium.get("far_field"):
+        extra.append("far-field slowdown on")
+    if medium.get("floor_depth_m") is not None:
+        extra.append(f"floor depth {float(medium['floor_depth_m']):g} m")
+    facts = [
+        ("Scenario file", sf_name),
+        ("Scenarios", f"{len(names)}: {shown}" if names else "none"),
+        ("Speed models", speed + (f" ({', '.join(extra)})" if extra else "")),
+        *_common_facts(record),
+        ("Executor", f"{params.get('executor', '?')} ({params.get('workers') or 'default'} workers)"),
+        *_command_fact(record),
+    ]
+    maps = []
+    for p in files:
+        if p.suffix == ".png" and p.name.startswith("map_"):
+            maps.append(ReportFigure(title=p.stem[len("map_"):].replace("_", " "), data_uri=png_data_uri(p),
+                                     href=rel(p)))
+    sites_csv = out / "sites_x_scenarios.csv"
+    sites = _scenario_site_table(sites_csv) if sites_csv.is_file() and sites_csv in files else None
+    comparison, comparison_table = _comparison_parts(out, rel, files)
+    ok = sum(1 for t in tasks if t.get("ok"))
+    summary: list[tuple[str, str]] = [
+        ("Solves", f"{ok} of {len(tasks)} finished ({sum(1 for t in tasks if t.get('skipped'))} kept from "
+                   f"an earlier run), {len(failed)} failed"),
+    ]
+    for t in failed[:10]:
+        summary.append(("Failed", str(t.get("error") or t.get("name"))))
+    env = comparisons.get("envelope") if isinstance(comparisons, Mapping) else None
+    if env:
+        summary.append(("Envelope", "earliest arrival over the scenarios and the scenario arriving first"))
+    for d in (comparisons.get("differences") or []) if isinstance(comparisons, Mapping) else []:
+        summary.append(("Difference", f"{d.get('a')} minus {d.get('b')}"))
+    for text in (comparisons.get("skipped") or []) if isinstance(comparisons, Mapping) else []:
+        summary.append(("Skipped", str(text)))
+    return _Parts(
+        title=f"Tsunami arrival times: {len(names)} scenarios ({sf_name})",
+        facts=facts, record=summary, maps=maps, sites=sites,
+        comparison=comparison, comparison_table=comparison_table,
+    )
+
+
+def _scenario_site_table(path: Path) -> ReportTable:
+    """Sites by scenarios: one row per site and scenario, margins coloured as in the timeline chart."""
+    from ttmap.products.timeline import margin_note
+
+    rows_in = _read_csv(path)
+    headers = ("Site", "Scenario", "Front arrival", "Minutes left", "Minutes needed", "Margin", "Status",
+               "First here")
+    units = ("", "", "min", "min", "min", "min", "", "")
+    numeric = (False, False, True, True, True, True, False, False)
+    rows: list[ReportTableRow] = []
+    for r in rows_in:
+        front = _float(r.get("front_min"))
+        left = _float(r.get("minutes_left"))
+        needed = _float(r.get("minutes_needed"))
+        margin = _float(r.get("margin_min"))
+        status = r.get("budget_status", "") or ""
+        note, level = margin_note(margin, left, front, needed, status.startswith("little margin"))
+        first = str(r.get("earliest_for_site", "")).strip().lower() in ("true", "1", "yes")
+        values: list[str | float] = [r.get("site", "") or "", r.get("scenario", "") or "", front, left, needed,
+                                     margin, status, "yes" if first else ""]
+        cells = tuple(
+            v if isinstance(v, str) else f"{v:+.1f}" if i == 5 and math.isfinite(v) else _fmt(v, 1)
+            for i, v in enumerate(values)
+        )
+        keys = tuple(v.lower() if isinstance(v, str) else _key(v) for v in values)
+        rows.append(ReportTableRow(cells=cells, sort_keys=keys, level=level, note=note))
+    return ReportTable(
+        headers=headers, units=units, rows=tuple(rows), level_column=5, numeric=numeric,
+        note=("Margin = minutes left after the official message minus the minutes needed to reach safe "
+              "ground, for each scenario. Margins are planning figures, not promises. Click a column "
+              "heading to sort."),
+    )
+
+
+_JOB_BUILDERS = {"map": _map_parts, "site-map": _site_map_parts, "scenario": _scenario_parts}
 
 
 def render_report(context: ReportContext) -> str:

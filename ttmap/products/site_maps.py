@@ -30,7 +30,9 @@ __all__ = [
     "INDEX_NODATA",
     "MINUTES_LEFT_NODATA",
     "first_site_sld",
+    "minutes_left_classes",
     "minutes_left_sld",
+    "minutes_left_title",
     "render_site_map",
     "speed_text",
 ]
@@ -105,11 +107,16 @@ def render_site_map(
     return fig
 
 
-def minutes_left_sld(left_min: FloatArray, delay_min: float, name: str, stem: str) -> str:
-    """Style of the minutes-left raster ``minutes_left_<stem>``: classes from 0, dark red below 0."""
+def minutes_left_classes(left_min: FloatArray, delay_min: float) -> tuple[list[float], list[str]]:
+    """Class lower bounds (minutes) and colours of the minutes-left raster.
+
+    Classes from 0 at the default isochrone spacing up to the largest value,
+    and, with a notification delay, a dark red class from ``-ceil(delay)``
+    to 0 (the wave comes before the message). The SLD
+    (:func:`minutes_left_sld`) and the QGIS style use the same classes.
+    """
     from ttmap.products.isochrones import default_levels_min
     from ttmap.products.palette import arrival_colors_hex
-    from ttmap.products.styles import raster_sld
 
     finite = left_min[np.isfinite(left_min)]
     top = float(finite.max()) if finite.size else 60.0
@@ -119,12 +126,25 @@ def minutes_left_sld(left_min: FloatArray, delay_min: float, name: str, stem: st
     if delay_min > 0.0:
         levels = [-float(math.ceil(delay_min)), *levels]
         colors = [_BEFORE_MESSAGE_COLOR, *colors]
+    return levels, colors
+
+
+def minutes_left_title(name: str, delay_min: float) -> str:
+    """Title of the minutes-left raster's style."""
+    return (f"Minutes left at {name} after a {delay_min:g}-min notification delay "
+            "(below 0: the wave comes first)")
+
+
+def minutes_left_sld(left_min: FloatArray, delay_min: float, name: str, stem: str) -> str:
+    """Style of the minutes-left raster ``minutes_left_<stem>``: classes from 0, dark red below 0."""
+    from ttmap.products.styles import raster_sld
+
+    levels, colors = minutes_left_classes(left_min, delay_min)
     return raster_sld(
         levels,
         colors,
         layer_name=f"minutes_left_{stem}",
-        title=f"Minutes left at {name} after a {delay_min:g}-min notification delay "
-        "(below 0: the wave comes first)",
+        title=minutes_left_title(name, delay_min),
         color_map_type="intervals",
         nodata=MINUTES_LEFT_NODATA,
     )
