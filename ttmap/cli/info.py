@@ -17,9 +17,12 @@ __all__ = ["info"]
 def info(bathymetry: str, **opts: Any) -> None:
     """Summarise a bathymetry raster as ttmap sees it."""
     from ttmap.io.raster import describe_bathymetry
+    from ttmap.jobs.checks import check_bathymetry
     from ttmap.memory import estimate_solve
 
-    b = reading_from_options(bathymetry, opts).read()
+    reading = reading_from_options(bathymetry, opts)
+    check_bathymetry(reading, solve=False)  # refuse a header claiming more than memory before reading it
+    b = reading.read()
     d = describe_bathymetry(b)
     est = estimate_solve(b.grid)
     left, bottom, right, top = d["bounds"]

@@ -65,7 +65,10 @@ def parse_pair(value: str, names: tuple[str, str] = ("LON", "LAT")) -> tuple[flo
     except ValueError:
         raise ValueError(f"{value!r} is not {names[0]},{names[1]} (two numbers)") from None
     if not all(map(lambda v: v == v and abs(v) != float("inf"), (a, b))):
-        raise ValueError(f"{value!r} has a value that is not a finite number")
+        raise ValueError(
+            f"{value!r} has a value that is not a finite number; give two finite numbers, "
+            f"e.g. {names[0]},{names[1]} = -70.5,-33.2"
+        )
     return a, b
 
 
@@ -317,6 +320,8 @@ def bathymetry_options(f: Any) -> Any:
     f = click.option("--depth-positive", is_flag=True, default=option_default("depth_positive"),
                      help="Values are depths (positive down), not elevations.")(f)
     f = click.option("--band", type=click.IntRange(min=1), help="Band to read from a multi-band raster.")(f)
+    f = click.option("--nodata", type=float, callback=finite_callback, metavar="VALUE",
+                     help="A fill value the raster does not declare (e.g. 99999 or -32768): treat as nodata.")(f)
     return f
 
 
@@ -396,6 +401,7 @@ def reading_from_options(bathymetry: str, opts: dict[str, Any]) -> ReadingOption
         window=opts.get("crop_lonlat") or opts.get("crop_xy"),
         window_crs=None if opts.get("crop_xy") else LONLAT_CRS,
         coarsen=int(_given(opts, "coarsen")),
+        nodata=opts.get("nodata"),
     )
 
 
