@@ -56,6 +56,7 @@ __all__ = [
     "FILL_SHARE",
     "PLAUSIBLE_LIMIT_M",
     "check_fill_values",
+    "sample_fill_values",
     "window_offsets",
 ]
 
@@ -510,6 +511,9 @@ def read_bathymetry(
             shape = (row1 - row0, col1 - col0)
             notes.append(note)
 
+        from ttmap.memory import check_read_memory
+
+        check_read_memory(name, shape, int(np.dtype(src.dtypes[chosen - 1]).itemsize))  # before allocating it
         try:
             data = src.read(chosen, window=win)
             invalid = _invalid_mask(src, chosen, data, win)
@@ -643,7 +647,7 @@ FILL_SHARE: float = 0.01
 _FILL_SENTINELS = frozenset({-9999.0, 9999.0, -999.0, 999.0, -99999.0, 99999.0, -32767.0, -32768.0, 32767.0})
 
 
-def check_fill_values(values: np.ndarray, valid: np.ndarray, name: str) -> str | None:
+def check_fill_values(values: np.ndarray, valid: np.ndarray, name: str, *, warn: bool = True) -> str | None:
     """Refuse or flag values that read as an undeclared fill value.
 
     Parameters
@@ -653,6 +657,8 @@ def check_fill_values(values: np.ndarray, valid: np.ndarray, name: str) -> str |
         Cells not already nodata.
     name : str
         The raster, for messages.
+    warn : bool
+        Issue the note as a warning too.
 
     Returns
     -------
@@ -700,9 +706,54 @@ def check_fill_values(values: np.ndarray, valid: np.ndarray, name: str) -> str |
                 f"{k} cell(s) ({100.0 * k / n:.1f} %) of bathymetry {name!r} hold {edge:g}, a common fill value, "
                 f"at the edge of its range; if they are not real, pass --nodata {edge:g}"
             )
-            warnings.warn(note, TtmapWarning, stacklevel=3)
+            if warn:
+                warnings.warn(note, TtmapWarning, stacklevel=3)
             return note
     return None
+
+
+def sample_fill_values(path: str, band: int | None = None, *, nodata: float | None = None,
+                       max_cells: int = 1_000_000) -> str | None:
+    """:func:`check_fill_values` on a decimated read of at most about ``max_cells`` cells.
+
+    For checks that must not read the whole raster (``ttmap scenario
+    check``): a fill value covering more than a small share of the grid
+    shows up in any regular sample of it. Problems opening or reading the
+    raster are left to the full read.
+
+    Returns
+    -------
+    str or None
+        The note of a suspicious value (not warned).
+
+    Raises
+    ------
+    InputDataError
+        A value beyond :data:`PLAUSIBLE_LIMIT_M` in the sample.
+    """
+    try:
+        src = _open_raster(path)
+    except TtmapError:
+        return None
+    with src:
+        try:
+            chosen = _choose_band(src, path, band)
+        except TtmapError:
+            return None
+        step = max(1, math.ceil(math.sqrt(src.height * src.width / max_cells)))
+        shape = (max(1, src.height // step), max(1, src.width // step))
+        try:
+            data = src.read(chosen, out_shape=shape, resampling=Resampling.nearest)
+            invalid = np.asarray(src.read_masks(chosen, out_shape=shape, resampling=Resampling.nearest) == 0)
+        except (RasterioError, MemoryError, ValueError):
+            return None
+        scale, offset = src.scales[chosen - 1], src.offsets[chosen - 1]
+        unit = (src.units[chosen - 1] or "").strip().lower()
+    if nodata is not None:
+        invalid |= _equals_value(data, nodata)
+    values = data.astype(np.float64) * float(scale) + float(offset)
+    values *= _FOOT_UNITS.get(unit, 1.0)
+    return check_fill_values(values, ~invalid, path, warn=False)
 
 
 # ---------------------------------------------------------------------------

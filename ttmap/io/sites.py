@@ -352,10 +352,10 @@ def _read_csv(path: str, name_field: str | None, crs: Any) -> SiteList:
         raise InputDataError(
             f"site file {path!r} cannot be read ({err.strerror}); check the path"
         ) from err
-    for number, line in zip(numbers, lines, strict=True):
-        if "\x00" in line or any(ord(ch) < 32 and ch not in "\t\r\n" for ch in line):
+    for line_no, text in zip(numbers, lines, strict=True):
+        if "\x00" in text or any(ord(ch) < 32 and ch not in "\t\r\n" for ch in text):
             raise InputDataError(
-                f"site file {path!r} has binary content at line {number} (a control byte such as NUL); "
+                f"site file {path!r} has binary content at line {line_no} (a control byte such as NUL); "
                 "save it as UTF-8 CSV text"
             )
     if not lines:

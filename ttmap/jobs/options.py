@@ -40,6 +40,9 @@ from ttmap.defaults import (
     EARTH_MODELS,
     FLOOR_DEPTH_M,
     LITTLE_MARGIN_MIN,
+    MAX_PERIOD_S,
+    MAX_TIME_LIMIT_S,
+    MIN_PERIOD_S,
     MAP_FORMAT,
     MAP_FORMATS,
     MAX_NOTIFICATION_DELAY_MIN,
@@ -71,18 +74,6 @@ __all__ = [
 #: CRS of a crop window given in longitude/latitude degrees.
 LONLAT_CRS: str = "EPSG:4326"
 
-#: Shortest wave period accepted, s. Below about 10 s the waves are wind sea
-#: and swell, not long waves: their deep-water group speed g T / (4 pi) is
-#: under 8 m/s, so "arrival" maps take days and say nothing about a tsunami.
-#: (Tsunami periods run from minutes to about an hour: common practice, no source.)
-MIN_PERIOD_S: float = 10.0
-#: Longest wave period accepted, s (3 h). Beyond it the wave is tidal: its
-#: group speed equals the long-wave speed almost everywhere, so a period set
-#: would only repeat the front.
-MAX_PERIOD_S: float = 10_800.0
-#: Longest solve time accepted, s (7 days). A tsunami crosses the widest
-#: ocean in about a day (from memory); a longer limit is a slip of the unit.
-MAX_TIME_LIMIT_S: float = 7 * 86_400.0
 
 
 def check_formats(vector_formats: Sequence[str], map_formats: Sequence[str]) -> None:

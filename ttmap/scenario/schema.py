@@ -90,7 +90,7 @@ __all__ = [
 
 #: Keys allowed in each top-level table (``scenario`` and ``trench`` are arrays of tables).
 SECTION_KEYS: Mapping[str, tuple[str, ...]] = {
-    "bathymetry": ("path", "band", "depth_positive", "crop_lonlat", "crop_xy", "coarsen"),
+    "bathymetry": ("path", "band", "depth_positive", "crop_lonlat", "crop_xy", "coarsen", "nodata"),
     "speed": ("floor_depth_m", "far_field", "earth", "periods_s", "period_speed"),
     "scenario": (
         "name",
@@ -173,6 +173,7 @@ class BathymetrySettings:
     crop_lonlat: tuple[float, float, float, float] | None = None
     crop_xy: tuple[float, float, float, float] | None = None
     coarsen: int = 1
+    nodata: float | None = None
 
 
 @dataclass(frozen=True)
