@@ -313,7 +313,8 @@ def check_read_memory(
     >>> check_read_memory("a.tif", (10**6, 10**6), 4, limit_bytes=2**30)
     Traceback (most recent call last):
     ...
-    ttmap.errors.InputDataError: reading bathymetry 'a.tif' (1000000 x 1000000 cells as its header says) needs about 11823.07 GiB of memory, more than the limit of 1.00 GiB; crop with --crop-lonlat or coarsen with --coarsen N before the run (e.g. gdal_translate -outsize 1% 1%), or check the header
+    ttmap.errors.InputDataError: reading bathymetry 'a.tif' (1000000 x 1000000 cells as its header says) needs about 12107.19 GiB of memory, more than the limit of 1.00 GiB; crop with --crop-lonlat, or make a coarser copy \
+first (e.g. gdal_translate -r average -outsize 1% 1%), or check the header
     """
     rows, cols = _shape(shape, "raster shape")
     need = int(float(rows) * float(cols) * (int(itemsize) + 9))
