@@ -6,13 +6,13 @@ from typing import Any
 
 import click
 
-from ttmap.cli.options import bathymetry_options, reading_from_options
+from ttmap.cli.options import InputFile, bathymetry_options, reading_from_options
 
 __all__ = ["info"]
 
 
 @click.command("info")
-@click.argument("bathymetry", type=click.Path(dir_okay=False))
+@click.argument("bathymetry", type=InputFile())
 @bathymetry_options
 def info(bathymetry: str, **opts: Any) -> None:
     """Summarise a bathymetry raster as ttmap sees it."""

@@ -745,7 +745,11 @@ def sample_fill_values(path: str, band: int | None = None, *, nodata: float | No
         try:
             data = src.read(chosen, out_shape=shape, resampling=Resampling.nearest)
             invalid = np.asarray(src.read_masks(chosen, out_shape=shape, resampling=Resampling.nearest) == 0)
-        except (RasterioError, MemoryError, ValueError):
+        except RasterioError as err:
+            raise InputDataError(
+                f"reading band {chosen} of bathymetry {path!r} failed ({err}); check that the file is complete"
+            ) from err
+        except (MemoryError, ValueError):
             return None
         scale, offset = src.scales[chosen - 1], src.offsets[chosen - 1]
         unit = (src.units[chosen - 1] or "").strip().lower()

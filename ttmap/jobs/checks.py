@@ -97,6 +97,14 @@ def check_out_dir(out_dir: Any, *, flag: str = "--out") -> None:
         raise InputDataError(f"output folder {text!r} is empty; give a folder name, e.g. {flag} run1")
     if os.path.exists(text) and not os.path.isdir(text):
         raise InputDataError(f"output folder {text!r} is a file; give a folder name, e.g. {flag} run1")
+    parent = os.path.dirname(os.path.abspath(text))
+    while parent and not os.path.exists(parent) and parent != os.path.dirname(parent):
+        parent = os.path.dirname(parent)
+    if os.path.exists(parent) and not os.path.isdir(parent):
+        raise InputDataError(
+            f"output folder {text!r} cannot be made: {parent!r} is a file; give a folder name elsewhere, "
+            f"e.g. {flag} run1"
+        )
 
 
 def check_bathymetry(reading: Any, *, earth: str = "wgs84", workers: int = 1, solve: bool = True) -> CheckedGrid:

@@ -18,6 +18,7 @@ of arrays are counted from 1 in messages)::
     crop_lonlat = [W, S, E, N]      # optional window in degrees ...
     crop_xy = [W, S, E, N]          # ... or in the raster's own map units
     coarsen = 1                     # block-average N x N cells first
+    nodata = -32768                 # optional; a fill value the raster does not declare
 
     [speed]                         # optional
     floor_depth_m = 5.0

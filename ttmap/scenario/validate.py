@@ -375,7 +375,8 @@ class _Loader:
         try:  # an undeclared fill value, on a decimated read (at most about a million cells)
             sample_fill_values(file, None if band is None else int(band), nodata=nodata)
         except TtmapError as err:
-            self.err(path + ("nodata",), re.sub(r"with --nodata (\S+) \(nodata = \S+ in a scenario file\)",
+            key = "nodata" if "beyond the deepest" in str(err) else "path"
+            self.err(path + (key,), re.sub(r"with --nodata (\S+) \(nodata = \S+ in a scenario file\)",
                                                  r"with nodata = \1 in [bathymetry]", str(err)))
         grid, count = header.grid, header.band_count
         shape = (grid.rows, grid.cols)
