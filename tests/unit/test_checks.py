@@ -67,7 +67,7 @@ def test_radius_larger_than_the_grid_is_refused():
 def test_out_dir_empty_file_and_below_file(tmp_path):
     f = tmp_path / "a.txt"
     f.write_text("x")
-    for bad, match in (("", "is empty"), (str(f), "is a file"), (str(f / "run"), "cannot be made")):
+    for bad, match in (("", "is empty"), (str(f), "is a file"), (str(f / "run"), "cannot be created")):
         with pytest.raises(InputDataError, match=match):
             check_out_dir(bad)
     check_out_dir(str(tmp_path / "new" / "run"))

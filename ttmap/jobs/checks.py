@@ -102,7 +102,7 @@ def check_out_dir(out_dir: Any, *, flag: str = "--out") -> None:
         parent = os.path.dirname(parent)
     if os.path.exists(parent) and not os.path.isdir(parent):
         raise InputDataError(
-            f"output folder {text!r} cannot be made: {parent!r} is a file; give a folder name elsewhere, "
+            f"output folder {text!r} cannot be created: {parent!r} is a file; give a folder name elsewhere, "
             f"e.g. {flag} run1"
         )
 
