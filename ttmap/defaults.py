@@ -12,6 +12,9 @@ it; the physics behind each is in ``docs/method.md`` and the sources in
 from __future__ import annotations
 
 __all__ = [
+    "MIN_PERIOD_S",
+    "MAX_PERIOD_S",
+    "MAX_TIME_LIMIT_S",
     "FLOOR_DEPTH_M",
     "SCALING_RELATION",
     "MIN_BASIN_SHARE",
@@ -133,3 +136,16 @@ MEDIA_PER_WORKER: int = 1
 
 #: Most ruptures one trench line of a scenario file may generate.
 MAX_TRENCH_RUPTURES: int = 99
+
+#: Shortest wave period accepted, s. Below about 10 s the waves are wind sea
+#: and swell, not long waves: their deep-water group speed g T / (4 pi) is
+#: under 8 m/s, so "arrival" maps take days and say nothing about a tsunami.
+#: (Tsunami periods run from minutes to about an hour: common practice, no source.)
+MIN_PERIOD_S: float = 10.0
+#: Longest wave period accepted, s (3 h). Beyond it the wave is tidal: its
+#: group speed equals the long-wave speed almost everywhere, so a period set
+#: would only repeat the front.
+MAX_PERIOD_S: float = 10_800.0
+#: Longest solve time accepted, s (7 days). A tsunami crosses the widest
+#: ocean in about a day (from memory); a longer limit is a slip of the unit.
+MAX_TIME_LIMIT_S: float = 7 * 86_400.0

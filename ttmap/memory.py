@@ -45,6 +45,8 @@ __all__ = [
     "estimate_peak_bytes",
     "total_memory_bytes",
     "check_memory",
+    "check_read_memory",
+    "memory_limit_bytes",
     "measure_peak_bytes",
     "NS_PER_CELL",
     "SolveEstimate",
@@ -256,6 +258,80 @@ def check_memory(
         f"needs about {who}{_gib(per_solve)} = {_gib(need)} of memory (estimate), more than the "
         f"limit of {limit_text}; {_FIX} (e.g. --coarsen {factor})"
         + ("; or run fewer workers" if workers > 1 else "")
+    )
+
+
+def memory_limit_bytes(share: float = MEMORY_SHARE) -> tuple[int, str] | None:
+    """The memory a run may use (``share`` of :func:`total_memory_bytes`) and its description."""
+    total = total_memory_bytes()
+    if total is None:
+        return None
+    limit = int(total * float(share))
+    return limit, f"{_gib(limit)} ({100 * float(share):.0f} % of {_gib(total)} of memory)"
+
+
+def check_read_memory(
+    name: str,
+    shape: Sequence[int],
+    itemsize: int,
+    *,
+    limit_bytes: int | None = None,
+    share: float = MEMORY_SHARE,
+) -> int:
+    """Refuse a raster read that would not fit in memory, before it is read.
+
+    Reading one band holds the stored values (``itemsize`` bytes per cell),
+    their float64 copy and a nodata mask (1 byte): ``cells * (itemsize + 9)``
+    bytes. :func:`check_memory` covers the solve; this covers the read, which
+    happens at full resolution before any coarsening.
+
+    Parameters
+    ----------
+    name : str
+        The raster, for messages.
+    shape : (rows, cols)
+        Cells read (the crop window, or the whole raster).
+    itemsize : int
+        Bytes per stored cell.
+    limit_bytes : int, optional
+        Default ``share`` of the machine's memory.
+
+    Returns
+    -------
+    int
+        The estimate, bytes.
+
+    Raises
+    ------
+    InputDataError
+        The estimate exceeds the limit.
+
+    Examples
+    --------
+    >>> check_read_memory("a.tif", (1000, 1000), 4, limit_bytes=2**30)
+    13000000
+    >>> check_read_memory("a.tif", (10**6, 10**6), 4, limit_bytes=2**30)
+    Traceback (most recent call last):
+    ...
+    ttmap.errors.InputDataError: reading bathymetry 'a.tif' (1000000 x 1000000 cells as its header says) needs about 12107.19 GiB of memory, more than the limit of 1.00 GiB; crop with --crop-lonlat, or make a coarser copy \
+first (e.g. gdal_translate -r average -outsize 1% 1%), or check the header
+    """
+    rows, cols = _shape(shape, "raster shape")
+    need = int(float(rows) * float(cols) * (int(itemsize) + 9))
+    if limit_bytes is None:
+        got = memory_limit_bytes(share)
+        if got is None:
+            return need
+        limit, limit_text = got
+    else:
+        limit, limit_text = int(limit_bytes), _gib(int(limit_bytes))
+    if need <= limit:
+        return need
+    pct = max(1, math.floor(100.0 * math.sqrt(limit / need)))
+    raise InputDataError(
+        f"reading bathymetry {name!r} ({rows} x {cols} cells as its header says) needs about {_gib(need)} "
+        f"of memory, more than the limit of {limit_text}; crop with --crop-lonlat, or make a coarser copy "
+        f"first (e.g. gdal_translate -r average -outsize {pct}% {pct}%), or check the header"
     )
 
 

@@ -30,7 +30,7 @@ class MediumSpec:
     ----------
     bathymetry : str
         Path of the raster (every worker must be able to read it).
-    band, depth_positive, window, window_crs, coarsen
+    band, depth_positive, window, window_crs, coarsen, nodata
         Passed to :func:`ttmap.io.raster.read_bathymetry`.
     floor_depth_m, far_field, earth
         Passed to :func:`ttmap.traveltime.prepare_medium`.
@@ -42,6 +42,7 @@ class MediumSpec:
     window: tuple[float, float, float, float] | None = None
     window_crs: str | None = "EPSG:4326"
     coarsen: int = 1
+    nodata: float | None = None
     floor_depth_m: float = FLOOR_DEPTH_M
     far_field: bool = False
     earth: str = "wgs84"

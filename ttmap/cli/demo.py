@@ -6,13 +6,13 @@ from pathlib import Path
 
 import click
 
-from ttmap.cli.options import reporter, verbosity_options
+from ttmap.cli.options import OutputFolder, reporter, verbosity_options
 
 __all__ = ["demo"]
 
 
 @click.command("demo")
-@click.option("--out", "out_dir", type=click.Path(file_okay=False), default="ttmap_demo", show_default=True,
+@click.option("--out", "out_dir", type=OutputFolder(), default="ttmap_demo", show_default=True,
               help="Output folder.")
 @click.option("--overwrite", is_flag=True, help="Replace existing outputs.")
 @click.option("--no-report", is_flag=True, help="Skip report.html in the demo folder and in site_maps/.")

@@ -6,20 +6,23 @@ from typing import Any
 
 import click
 
-from ttmap.cli.options import bathymetry_options, reading_from_options
+from ttmap.cli.options import InputFile, bathymetry_options, reading_from_options
 
 __all__ = ["info"]
 
 
 @click.command("info")
-@click.argument("bathymetry", type=click.Path(dir_okay=False))
+@click.argument("bathymetry", type=InputFile())
 @bathymetry_options
 def info(bathymetry: str, **opts: Any) -> None:
     """Summarise a bathymetry raster as ttmap sees it."""
     from ttmap.io.raster import describe_bathymetry
+    from ttmap.jobs.checks import check_bathymetry
     from ttmap.memory import estimate_solve
 
-    b = reading_from_options(bathymetry, opts).read()
+    reading = reading_from_options(bathymetry, opts)
+    check_bathymetry(reading, solve=False)  # refuse a header claiming more than memory before reading it
+    b = reading.read()
     d = describe_bathymetry(b)
     est = estimate_solve(b.grid)
     left, bottom, right, top = d["bounds"]

@@ -9,6 +9,8 @@ from typing import Any
 import click
 
 from ttmap.cli.options import (
+    InputFile,
+    OutputFolder,
     LazyChoice,
     bathymetry_options,
     option_default,
@@ -82,12 +84,12 @@ def _scaling_keys() -> list[str]:
 
 
 @click.command("map")
-@click.argument("bathymetry", type=click.Path(dir_okay=False))
+@click.argument("bathymetry", type=InputFile())
 @click.option("--source", metavar="LON,LAT", callback=pair_callback(("LON", "LAT")),
               help="Point source, longitude,latitude in degrees (negative values welcome).")
 @click.option("--source-xy", metavar="X,Y", callback=pair_callback(("X", "Y")),
               help="Point source in the raster's map coordinates.")
-@click.option("--source-file", type=click.Path(exists=True, dir_okay=False),
+@click.option("--source-file", type=InputFile(exists=True),
               help="Source area or line from a vector file (GeoPackage, GeoJSON, Shapefile...).")
 @click.option("--rupture-centre", metavar="LON,LAT", callback=pair_callback(("LON", "LAT")),
               help="Centre of a rupture rectangle (with --strike-deg and a size).")
@@ -113,7 +115,7 @@ def _scaling_keys() -> list[str]:
               callback=positive_callback, help="Width of the coastal arrival classes, minutes.")
 @site_table_options
 @bathymetry_options
-@click.option("--out", "out_dir", type=click.Path(file_okay=False), default="ttmap_out", show_default=True,
+@click.option("--out", "out_dir", type=OutputFolder(), default="ttmap_out", show_default=True,
               help="Output folder.")
 @click.option("--overwrite", is_flag=True, help="Replace existing outputs.")
 @verbosity_options

@@ -26,9 +26,12 @@ from ttmap.jobs.options import LONLAT_CRS, ProductOptions, ReadingOptions, SiteO
 __all__ = [
     "OPTION_FIELDS",
     "LazyChoice",
+    "InputFile",
+    "OutputFolder",
     "field_default",
     "option_default",
     "finite_callback",
+    "nodata_callback",
     "parse_origin_time",
     "origin_time_callback",
     "bathymetry_options",
@@ -59,13 +62,16 @@ def parse_pair(value: str, names: tuple[str, str] = ("LON", "LAT")) -> tuple[flo
     """
     parts = [p.strip() for p in str(value).replace(" ", ",").split(",") if p.strip()]
     if len(parts) != 2:
-        raise ValueError(f"{value!r} is not {names[0]},{names[1]} (two numbers separated by a comma)")
+        raise ValueError(f"{value!r} is not {names[0]},{names[1]} (two numbers separated by a comma); give e.g. -70.5,-33.2")
     try:
         a, b = float(parts[0]), float(parts[1])
     except ValueError:
-        raise ValueError(f"{value!r} is not {names[0]},{names[1]} (two numbers)") from None
+        raise ValueError(f"{value!r} is not {names[0]},{names[1]} (two numbers); give e.g. -70.5,-33.2") from None
     if not all(map(lambda v: v == v and abs(v) != float("inf"), (a, b))):
-        raise ValueError(f"{value!r} has a value that is not a finite number")
+        raise ValueError(
+            f"{value!r} has a value that is not a finite number; give two finite numbers, "
+            f"e.g. {names[0]},{names[1]} = -70.5,-33.2"
+        )
     return a, b
 
 
@@ -112,7 +118,8 @@ def positive_callback(ctx: click.Context, param: click.Parameter, value: Any) ->
     vals = value if isinstance(value, tuple) else (value,)
     for v in vals:
         if not (v > 0 and v != float("inf")):
-            raise click.BadParameter(f"{v!r} must be a positive number", ctx=ctx, param=param)
+            raise click.BadParameter(f"{v!r} must be a positive number; give a finite number above 0",
+                                     ctx=ctx, param=param)
     return value
 
 
@@ -165,6 +172,39 @@ def verbosity_options(f: Any) -> Any:
     f = click.option("-v", "--verbose", is_flag=True, expose_value=False, callback=_set_flag("verbose"),
                      help="More detail, and tracebacks on errors.")(f)
     return f
+
+
+class InputFile(click.Path):
+    """A path to an input file; click's refusals (a folder, an empty name) get the fix added."""
+
+    def __init__(self, *, exists: bool = False) -> None:
+        super().__init__(exists=exists, dir_okay=False)
+
+    def convert(self, value: Any, param: click.Parameter | None, ctx: click.Context | None) -> Any:
+        if isinstance(value, str) and not value.strip():
+            self.fail(f"{value!r} is empty; give the path of a file", param, ctx)
+        return super().convert(value, param, ctx)
+
+    def fail(self, message: str, param: click.Parameter | None = None, ctx: click.Context | None = None) -> Any:
+        super().fail(f"{message.rstrip('.')}; give the path of a file, not a folder", param, ctx)
+
+
+class OutputFolder(click.Path):
+    """An output folder; an empty name and an existing file are refused with the fix."""
+
+    def __init__(self) -> None:
+        super().__init__(file_okay=False)
+
+    def convert(self, value: Any, param: click.Parameter | None, ctx: click.Context | None) -> Any:
+        if isinstance(value, str) and not value.strip():
+            self.fail(f"{value!r} is empty; give a folder name, e.g. --out run1", param, ctx)
+        return super().convert(value, param, ctx)
+
+    def fail(self, message: str, param: click.Parameter | None = None, ctx: click.Context | None = None) -> Any:
+        if "is empty" in message:
+            super().fail(message, param, ctx)
+        super().fail(f"{message.rstrip('.')}; give the name of a folder (new or existing), e.g. --out run1",
+                     param, ctx)
 
 
 class LazyChoice(click.Choice):
@@ -238,8 +278,23 @@ def finite_callback(ctx: click.Context, param: click.Parameter, value: Any) -> A
         return None
     for v in value if isinstance(value, tuple) else (value,):
         if not math.isfinite(v):
-            raise click.BadParameter(f"{v!r} is not a finite number", ctx=ctx, param=param)
+            raise click.BadParameter(f"{v!r} is not a finite number; give a finite number", ctx=ctx, param=param)
     return value
+
+
+def nodata_callback(ctx: click.Context, param: click.Parameter, value: Any) -> Any:
+    """``--nodata VALUE``: a finite number."""
+    if value is None:
+        return None
+    try:
+        v = float(value)
+    except ValueError:
+        raise click.BadParameter(f"{value!r} is not a number; give the fill value, e.g. --nodata -32768",
+                                 ctx=ctx, param=param) from None
+    if not math.isfinite(v):
+        raise click.BadParameter(f"{value!r} is not a finite number; give the fill value, e.g. --nodata -32768",
+                                 ctx=ctx, param=param)
+    return v
 
 
 def parse_origin_time(value: str) -> _dt.datetime:
@@ -318,6 +373,8 @@ def bathymetry_options(f: Any) -> Any:
     f = click.option("--depth-positive", is_flag=True, default=option_default("depth_positive"),
                      help="Values are depths (positive down), not elevations.")(f)
     f = click.option("--band", type=click.IntRange(min=1), help="Band to read from a multi-band raster.")(f)
+    f = click.option("--nodata", callback=nodata_callback, metavar="VALUE",
+                     help="A fill value the raster does not declare (e.g. 99999 or -32768): treat as nodata.")(f)
     return f
 
 
@@ -329,7 +386,7 @@ def site_file_options(f: Any) -> Any:
     f = click.option("--name-field", metavar="COLUMN",
                      help="Column holding the site names (default: name).")(f)
     f = click.option("--sites-layer", metavar="LAYER", help="Layer of a multi-layer vector site file.")(f)
-    f = click.option("--sites", "sites_file", type=click.Path(dir_okay=False), metavar="FILE",
+    f = click.option("--sites", "sites_file", type=InputFile(), metavar="FILE",
                      help="Coastal sites: CSV with name,lon,lat and optional safe_ground_distance_m, "
                           "walking_speed_m_s, preparation_min, notification_delay_min; or a point "
                           "vector file with those attributes.")(f)
@@ -397,6 +454,7 @@ def reading_from_options(bathymetry: str, opts: dict[str, Any]) -> ReadingOption
         window=opts.get("crop_lonlat") or opts.get("crop_xy"),
         window_crs=None if opts.get("crop_xy") else LONLAT_CRS,
         coarsen=int(_given(opts, "coarsen")),
+        nodata=opts.get("nodata"),
     )
 
 

@@ -9,7 +9,7 @@ from typing import Any
 
 import click
 
-from ttmap.cli.options import reporter, verbosity_options
+from ttmap.cli.options import InputFile, OutputFolder, reporter, verbosity_options
 
 __all__ = ["check_command", "executor_callback", "run_command", "scenario"]
 
@@ -53,7 +53,7 @@ def scenario() -> None:
 
 
 @scenario.command("check")
-@click.argument("file", type=click.Path(dir_okay=False))
+@click.argument("file", type=InputFile())
 @verbosity_options
 @click.pass_context
 def check_command(ctx: click.Context, file: str) -> None:
@@ -100,7 +100,7 @@ class _Progress:
 
 
 @scenario.command("run")
-@click.argument("file", type=click.Path(dir_okay=False))
+@click.argument("file", type=InputFile())
 @click.option(
     "--executor",
     callback=executor_callback,
@@ -118,7 +118,7 @@ class _Progress:
 @click.option(
     "--out",
     "out_dir",
-    type=click.Path(file_okay=False),
+    type=OutputFolder(),
     help="Output folder (default: the file's outputs.folder).",
 )
 @click.option(

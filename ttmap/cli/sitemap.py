@@ -9,6 +9,8 @@ from typing import Any
 import click
 
 from ttmap.cli.options import (
+    InputFile,
+    OutputFolder,
     bathymetry_options,
     notification_delay_option,
     parse_pair,
@@ -87,7 +89,7 @@ def _snap_alias_callback(ctx: click.Context, param: click.Parameter, value: Any)
 
 
 @click.command("site-map")
-@click.argument("bathymetry", type=click.Path(dir_okay=False))
+@click.argument("bathymetry", type=InputFile())
 @click.option("--site", "site_specs", metavar="NAME=LON,LAT", multiple=True, callback=_site_specs_callback,
               help="A site, WGS84 degrees (negative values welcome); repeat for several.")
 @site_file_options
@@ -105,7 +107,7 @@ def _snap_alias_callback(ctx: click.Context, param: click.Parameter, value: Any)
               help="With two or more sites, also write the earliest time over all sites and which "
                    "site a source reaches first.")
 @bathymetry_options
-@click.option("--out", "out_dir", type=click.Path(file_okay=False), default="ttmap_site_maps",
+@click.option("--out", "out_dir", type=OutputFolder(), default="ttmap_site_maps",
               show_default=True, help="Output folder.")
 @click.option("--overwrite", is_flag=True, help="Replace existing outputs.")
 @verbosity_options

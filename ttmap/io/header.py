@@ -20,7 +20,7 @@ from typing import Any
 from ttmap.errors import GridError, InputDataError
 from ttmap.grid import Grid
 
-__all__ = ["BathymetryHeader", "choose_band", "read_bathymetry_header"]
+__all__ = ["BathymetryHeader", "check_raster_path", "choose_band", "normalise_crs", "read_bathymetry_header"]
 
 # A GDAL dataset name rather than a file: /vsi... paths and DRIVER:"file":subdataset.
 _CONNECTION_RE = re.compile(r"^(/vsi|[A-Za-z][A-Za-z0-9_]+:)")
@@ -40,12 +40,73 @@ class BathymetryHeader:
         Number of bands (at least 1).
     nodata : float or None
         Nodata value of the first band.
+    dtype : str
+        Data type of the first band (e.g. ``"float32"``).
     """
 
     path: str
     grid: Grid
     band_count: int
     nodata: float | None
+    dtype: str = "float64"
+
+    @property
+    def itemsize(self) -> int:
+        """Bytes per cell of the stored band."""
+        import numpy as np
+
+        return int(np.dtype(self.dtype).itemsize)
+
+
+# Spellings of the degree seen in .prj files ("Degree", "Degrees", "DEG", ...).
+_DEGREE_UNIT_RE = re.compile(r'((?:ANGLE)?UNIT)\["(?:degrees?|deg|dd)"', re.IGNORECASE)
+_DEGREE_RAD = 0.017453292519943295
+
+
+def normalise_crs(crs: Any) -> Any:
+    """A pyproj CRS with the degree spelled as PROJ spells it.
+
+    ESRI ``.prj`` files (beside ASCII grids and Shapefiles) often spell the
+    angular unit ``Degree``; it is plain degrees (its factor is pi/180), so
+    the WKT is rewritten with ``degree`` and matched to an EPSG code where
+    one fits. Anything else is returned unchanged.
+
+    Parameters
+    ----------
+    crs : pyproj.CRS
+
+    Returns
+    -------
+    pyproj.CRS
+
+    Examples
+    --------
+    >>> from pyproj import CRS
+    >>> wkt = ('GEOGCS["GCS_WGS_1984",DATUM["D_WGS_1984",SPHEROID["WGS_1984",6378137.0,'
+    ...        '298.257223563]],PRIMEM["Greenwich",0.0],UNIT["Degree",0.0174532925199433]]')
+    >>> c = normalise_crs(CRS.from_wkt(wkt))
+    >>> c.axis_info[0].unit_name, c.to_epsg()
+    ('degree', 4326)
+    """
+    from pyproj import CRS
+    from pyproj.exceptions import CRSError
+
+    if not getattr(crs, "is_geographic", False) or not crs.axis_info:
+        return crs
+    info = crs.axis_info[0]
+    if info.unit_name == "degree" or abs(float(info.unit_conversion_factor) - _DEGREE_RAD) > 1e-12:
+        return crs
+    wkt = _DEGREE_UNIT_RE.sub(lambda m: f'{m.group(1)}["degree"', crs.to_wkt())
+    try:
+        fixed = CRS.from_wkt(wkt)
+    except CRSError:
+        return crs
+    code = fixed.to_epsg(min_confidence=20)  # accepted only when equal (below)
+    if code is not None:
+        candidate = CRS.from_epsg(code)
+        if candidate.equals(fixed, ignore_axis_order=True):
+            return candidate
+    return fixed
 
 
 def choose_band(count: int, band: Any, name: str, *, hint: str = "--band N") -> int:
@@ -121,8 +182,7 @@ def read_bathymetry_header(path: str | os.PathLike[str]) -> BathymetryHeader:
     from rasterio.errors import NotGeoreferencedWarning, RasterioError
 
     name = os.fspath(path)
-    if not _CONNECTION_RE.match(name) and not os.path.exists(name):
-        raise InputDataError(f"bathymetry {name!r} does not exist; check the path")
+    check_raster_path(name)
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", NotGeoreferencedWarning)
@@ -146,16 +206,40 @@ def read_bathymetry_header(path: str | os.PathLike[str]) -> BathymetryHeader:
                 f"bathymetry {name!r} has no CRS; assign one (e.g. gdal_edit.py -a_srs EPSG:4326)"
             )
         try:
-            crs = CRS.from_user_input(src.crs.to_wkt())
+            crs = normalise_crs(CRS.from_user_input(src.crs.to_wkt()))
             grid = Grid((int(src.height), int(src.width)), src.transform, crs)
         except GridError as err:
             raise GridError(f"bathymetry {name!r}: {err}") from err
         except CRSError as err:
             raise GridError(f"bathymetry {name!r} has a CRS pyproj cannot read: {err}") from err
         nodata = src.nodatavals[0]
+        dtype = str(src.dtypes[0])
     return BathymetryHeader(
         path=name,
         grid=grid,
         band_count=count,
         nodata=None if nodata is None else float(nodata),
+        dtype=dtype,
     )
+
+
+def check_raster_path(name: str) -> None:
+    """Refuse an empty path, a missing file or a folder given as the bathymetry raster.
+
+    GDAL dataset names (``/vsi...``, ``DRIVER:"file":sub``) are left to GDAL.
+
+    Raises
+    ------
+    InputDataError
+    """
+    if not name.strip():
+        raise InputDataError("bathymetry path '' is empty; give a raster file, e.g. bathy.tif")
+    if _CONNECTION_RE.match(name):
+        return
+    if not os.path.exists(name):
+        raise InputDataError(f"bathymetry {name!r} does not exist; check the path")
+    if os.path.isdir(name):
+        raise InputDataError(
+            f"bathymetry {name!r} is a folder, not a raster file; give the raster inside it, e.g. "
+            f"{os.path.join(name, 'bathy.tif')!r}"
+        )

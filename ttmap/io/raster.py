@@ -37,9 +37,10 @@ from rasterio.errors import NotGeoreferencedWarning, RasterioError
 from rasterio.windows import Window
 
 from ttmap._typing import FloatArray
-from ttmap.errors import GridError, InputDataError, TtmapError
+from ttmap.errors import GridError, InputDataError, TtmapError, TtmapWarning
 from ttmap.grid import Grid
 from ttmap.io.atomic import atomic_output
+from ttmap.io.header import normalise_crs
 
 __all__ = [
     "Bathymetry",
@@ -52,6 +53,11 @@ __all__ = [
     "describe_bathymetry",
     "RASTER_DTYPES",
     "BLOCK_SIZE",
+    "FILL_SHARE",
+    "PLAUSIBLE_LIMIT_M",
+    "check_fill_values",
+    "sample_fill_values",
+    "window_offsets",
 ]
 
 #: Data types :func:`write_raster` accepts.
@@ -165,8 +171,9 @@ def _crs_name(crs: CRS) -> str:
 
 def _open_raster(name: str) -> Any:
     """Open a raster with rasterio, turning failures into InputDataError."""
-    if not _CONNECTION_RE.match(name) and not os.path.exists(name):
-        raise InputDataError(f"bathymetry {name!r} does not exist; check the path")
+    from ttmap.io.header import check_raster_path
+
+    check_raster_path(name)
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", NotGeoreferencedWarning)
@@ -205,7 +212,7 @@ def _choose_band(src: Any, name: str, band: int | None) -> int:
     return int(band)
 
 
-def _window_offsets(
+def window_offsets(
     full: Grid,
     name: str,
     window: tuple[float, float, float, float],
@@ -414,6 +421,7 @@ def read_bathymetry(
     window_crs: Any = "EPSG:4326",
     coarsen: int = 1,
     max_land_share: float = 0.98,
+    nodata: float | None = None,
 ) -> Bathymetry:
     """Read one band of a raster as depth in metres, positive down.
 
@@ -439,6 +447,9 @@ def read_bathymetry(
     max_land_share : float
         Refuse the grid when more than this share (0 to 1) of its valid
         cells would be land: the sign convention is then most likely wrong.
+    nodata : float, optional
+        A fill value the file does not declare: cells equal to it are nodata
+        too (besides the band's own nodata value and mask).
 
     Returns
     -------
@@ -463,6 +474,8 @@ def read_bathymetry(
     ``notes``.
     """
     name = os.fspath(path)
+    if nodata is not None and not (isinstance(nodata, (int, float)) and math.isfinite(nodata)):
+        raise InputDataError(f"nodata value {nodata!r} is not a finite number; pass e.g. --nodata -32768")
     if not isinstance(depth_positive, (bool, np.bool_)):
         raise InputDataError(f"depth_positive must be True or False, got {depth_positive!r}")
     share_limit = float(max_land_share)
@@ -480,7 +493,7 @@ def read_bathymetry(
                 f"bathymetry {name!r} has no CRS; assign one (e.g. gdal_edit.py -a_srs EPSG:4326)"
             )
         try:
-            crs = CRS.from_user_input(src.crs.to_wkt())
+            crs = normalise_crs(CRS.from_user_input(src.crs.to_wkt()))
             full = Grid((src.height, src.width), src.transform, crs)
         except GridError as err:
             raise GridError(f"bathymetry {name!r}: {err}") from err
@@ -491,16 +504,21 @@ def read_bathymetry(
         transform = full.transform
         shape = full.shape
         if window is not None:
-            row0, row1, col0, col1, note = _window_offsets(full, name, window, window_crs)
+            row0, row1, col0, col1, note = window_offsets(full, name, window, window_crs)
             win = Window(col0, row0, col1 - col0, row1 - row0)
             t = full.transform
             transform = Affine(t.a, 0.0, t.c + t.a * col0, 0.0, t.e, t.f + t.e * row0)
             shape = (row1 - row0, col1 - col0)
             notes.append(note)
 
+        from ttmap.memory import check_read_memory
+
+        check_read_memory(name, shape, int(np.dtype(src.dtypes[chosen - 1]).itemsize))  # before allocating it
         try:
             data = src.read(chosen, window=win)
             invalid = _invalid_mask(src, chosen, data, win)
+            if nodata is not None:
+                invalid |= _equals_value(data, nodata)
         except RasterioError as err:
             raise InputDataError(
                 f"reading band {chosen} of bathymetry {name!r} failed ({err}); "
@@ -521,7 +539,12 @@ def read_bathymetry(
     elif unit.lower() not in _METRE_UNITS:
         notes.append(f"band units {unit!r} read as metres")
     n_nodata = int(np.count_nonzero(invalid))
+    if nodata is not None:
+        notes.append(f"cells equal to {nodata:g} (--nodata) treated as nodata")
     values[invalid] = np.nan
+    fill_note = check_fill_values(values, ~invalid, name)
+    if fill_note:
+        notes.append(fill_note)
     nonfinite = ~np.isfinite(values) & ~invalid
     n_nonfinite = int(np.count_nonzero(nonfinite))
     if n_nonfinite:
@@ -601,6 +624,140 @@ def read_bathymetry(
     return Bathymetry(
         depth_m=depth, grid=grid, path=name, band=chosen, sha256=digest, notes=tuple(notes)
     )
+
+
+def _equals_value(data: np.ndarray, value: float) -> np.ndarray:
+    """Cells of ``data`` equal to ``value`` (as stored in the band's type)."""
+    if np.issubdtype(data.dtype, np.integer):
+        info = np.iinfo(data.dtype)
+        if float(value) != int(value) or not info.min <= value <= info.max:
+            return np.zeros(data.shape, dtype=bool)
+        return np.asarray(data == np.asarray(int(value), dtype=data.dtype))
+    return np.asarray(data == np.asarray(value, dtype=data.dtype))
+
+
+#: Deepest ocean depth, metres (Challenger Deep, about 10.9 km: from memory),
+#: rounded up. A valid cell beyond it, below or above sea level (the highest
+#: land is under 8.9 km), cannot be a real depth or height.
+PLAUSIBLE_LIMIT_M: float = 11_000.0
+#: Share of valid cells one value at the edge of the range may fill before it
+#: reads as a fill value (common practice, no source).
+FILL_SHARE: float = 0.01
+#: Round values that data producers use as fill besides the declared nodata.
+_FILL_SENTINELS = frozenset({-9999.0, 9999.0, -999.0, 999.0, -99999.0, 99999.0, -32767.0, -32768.0, 32767.0})
+
+
+def check_fill_values(values: np.ndarray, valid: np.ndarray, name: str, *, warn: bool = True) -> str | None:
+    """Refuse or flag values that read as an undeclared fill value.
+
+    Parameters
+    ----------
+    values : ndarray, float, metres as stored (elevation or depth)
+    valid : ndarray of bool, same shape
+        Cells not already nodata.
+    name : str
+        The raster, for messages.
+    warn : bool
+        Issue the note as a warning too.
+
+    Returns
+    -------
+    str or None
+        A note when a round value at the edge of the range fills more than
+        :data:`FILL_SHARE` of the valid cells (also warned as
+        :class:`~ttmap.errors.TtmapWarning`); None otherwise.
+
+    Raises
+    ------
+    InputDataError
+        A valid cell lies beyond :data:`PLAUSIBLE_LIMIT_M` from sea level: the
+        message names the most common such value, its share and the fix
+        (``--nodata VALUE``).
+
+    Examples
+    --------
+    >>> v = np.array([-50.0, -4000.0, 99999.0, 99999.0])
+    >>> check_fill_values(v, np.isfinite(v), "b.tif")
+    Traceback (most recent call last):
+    ...
+    ttmap.errors.InputDataError: bathymetry 'b.tif': 2 cell(s) (50.0 %) hold 99999, beyond the deepest ocean trench and the highest land (11000 m); an undeclared fill value? declare it with --nodata 99999 (nodata = 99999 in a scenario file)
+    """
+    finite = valid & np.isfinite(values)
+    n = int(np.count_nonzero(finite))
+    if n == 0:
+        return None
+    wild = finite & (np.abs(values) > PLAUSIBLE_LIMIT_M)
+    n_wild = int(np.count_nonzero(wild))
+    if n_wild:
+        uniq, counts = np.unique(values[wild], return_counts=True)
+        top = float(uniq[int(np.argmax(counts))])
+        top_n = int(counts.max())
+        raise InputDataError(
+            f"bathymetry {name!r}: {top_n} cell(s) ({100.0 * top_n / n:.1f} %) hold {top:g}, beyond the deepest "
+            f"ocean trench and the highest land ({PLAUSIBLE_LIMIT_M:g} m); an undeclared fill value? declare it "
+            f"with --nodata {top:g} (nodata = {top:g} in a scenario file)"
+        )
+    for edge in (float(np.min(values[finite])), float(np.max(values[finite]))):
+        if edge not in _FILL_SENTINELS:
+            continue
+        k = int(np.count_nonzero(finite & (values == edge)))
+        if k > FILL_SHARE * n:
+            note = (
+                f"{k} cell(s) ({100.0 * k / n:.1f} %) of bathymetry {name!r} hold {edge:g}, a common fill value, "
+                f"at the edge of its range; if they are not real, pass --nodata {edge:g}"
+            )
+            if warn:
+                warnings.warn(note, TtmapWarning, stacklevel=3)
+            return note
+    return None
+
+
+def sample_fill_values(path: str, band: int | None = None, *, nodata: float | None = None,
+                       max_cells: int = 1_000_000) -> str | None:
+    """:func:`check_fill_values` on a decimated read of at most about ``max_cells`` cells.
+
+    For checks that must not read the whole raster (``ttmap scenario
+    check``): a fill value covering more than a small share of the grid
+    shows up in any regular sample of it. Problems opening or reading the
+    raster are left to the full read.
+
+    Returns
+    -------
+    str or None
+        The note of a suspicious value (not warned).
+
+    Raises
+    ------
+    InputDataError
+        A value beyond :data:`PLAUSIBLE_LIMIT_M` in the sample.
+    """
+    try:
+        src = _open_raster(path)
+    except TtmapError:
+        return None
+    with src:
+        try:
+            chosen = _choose_band(src, path, band)
+        except TtmapError:
+            return None
+        step = max(1, math.ceil(math.sqrt(src.height * src.width / max_cells)))
+        shape = (max(1, src.height // step), max(1, src.width // step))
+        try:
+            data = src.read(chosen, out_shape=shape, resampling=Resampling.nearest)
+            invalid = np.asarray(src.read_masks(chosen, out_shape=shape, resampling=Resampling.nearest) == 0)
+        except RasterioError as err:
+            raise InputDataError(
+                f"reading band {chosen} of bathymetry {path!r} failed ({err}); check that the file is complete"
+            ) from err
+        except (MemoryError, ValueError):
+            return None
+        scale, offset = src.scales[chosen - 1], src.offsets[chosen - 1]
+        unit = (src.units[chosen - 1] or "").strip().lower()
+    if nodata is not None:
+        invalid |= _equals_value(data, nodata)
+    values = data.astype(np.float64) * float(scale) + float(offset)
+    values *= _FOOT_UNITS.get(unit, 1.0)
+    return check_fill_values(values, ~invalid, path, warn=False)
 
 
 # ---------------------------------------------------------------------------

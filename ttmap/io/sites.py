@@ -47,7 +47,7 @@ import numpy as np
 from pyproj import CRS, Transformer
 from pyproj.exceptions import CRSError
 
-from ttmap.defaults import SITE_CSV_SUFFIXES
+from ttmap.defaults import MAX_NOTIFICATION_DELAY_MIN, SITE_CSV_SUFFIXES
 from ttmap._typing import FloatArray
 from ttmap.errors import InputDataError
 from ttmap.io.atomic import atomic_output
@@ -242,8 +242,8 @@ def _check_site_values(
         ("preparation_min", lambda v: v >= 0.0, "must not be negative; give minutes, 0 or more"),
         (
             "notification_delay_min",
-            lambda v: v >= 0.0,
-            "must not be negative; give minutes, 0 or more",
+            lambda v: 0.0 <= v <= MAX_NOTIFICATION_DELAY_MIN,
+            f"must lie in 0...{MAX_NOTIFICATION_DELAY_MIN:g} minutes; give minutes, e.g. 10",
         ),
     )
     for key, ok, fix in checks:
@@ -352,6 +352,12 @@ def _read_csv(path: str, name_field: str | None, crs: Any) -> SiteList:
         raise InputDataError(
             f"site file {path!r} cannot be read ({err.strerror}); check the path"
         ) from err
+    for line_no, text in zip(numbers, lines, strict=True):
+        if "\x00" in text or any(ord(ch) < 32 and ch not in "\t\r\n" for ch in text):
+            raise InputDataError(
+                f"site file {path!r} has binary content at line {line_no} (a control byte such as NUL); "
+                "save it as UTF-8 CSV text"
+            )
     if not lines:
         raise InputDataError(
             f"site file {path!r} is empty; give a header line (name,lon,lat,...) "

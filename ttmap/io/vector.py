@@ -618,7 +618,7 @@ def _read(name: str, layer: str, what: str) -> tuple[dict[str, Any], Any, list[n
             f"layer {layer!r} of {what} {name!r} has no geometry column; give a spatial layer"
         )
     if len(wkb) == 0:
-        raise InputDataError(f"layer {layer!r} of {what} {name!r} has no features")
+        raise InputDataError(f"layer {layer!r} of {what} {name!r} has no features; give a file with at least one")
     return meta, wkb, field_data
 
 
@@ -675,6 +675,12 @@ def read_vector_geometries(
         raise InputDataError(
             f"{missing.size} feature(s) of {name!r} (rows {_rows_text(missing)}, counting from 1) "
             "have no geometry; remove them"
+        )
+    bad = [i for i, g in enumerate(geoms) if not np.isfinite(shapely.get_coordinates(g)).all()]
+    if bad:
+        raise InputDataError(
+            f"{len(bad)} feature(s) of {name!r} (rows {', '.join(str(i + 1) for i in bad[:10])}, counting from 1) "
+            "have NaN or infinite coordinates; give finite coordinates or remove them"
         )
     return list(geoms), _crs_of(meta)
 

@@ -222,7 +222,7 @@ def _bathymetry_for(spec: MediumSpec, sha256: str | None) -> Bathymetry:
     _READS[key] += 1
     bathy = read_bathymetry(
         spec.bathymetry, band=spec.band, depth_positive=spec.depth_positive,
-        window=spec.window, window_crs=spec.window_crs, coarsen=spec.coarsen,
+        window=spec.window, window_crs=spec.window_crs, coarsen=spec.coarsen, nodata=spec.nodata,
     )
     if sha256 is not None and bathy.sha256 is not None and bathy.sha256 != sha256:
         raise InputDataError(

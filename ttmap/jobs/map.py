@@ -253,12 +253,15 @@ def run_map_job(job: MapJob, *, progress: Callable[[str], None] | None = None) -
     from ttmap.memory import check_memory
     from ttmap.traveltime import prepare_medium
 
+    from ttmap.jobs.checks import check_map_job
+
     say = progress or (lambda msg: None)
     sets = job.product_sets()
     if job.sites is not None and not job.front:
         raise InputDataError(
             "the site table needs the front (long-wave) arrival; drop --no-front or the sites"
         )
+    check_map_job(job)  # every input, from the raster's header, before any work
     planned = planned_outputs(job)
     out = refuse_outputs_up_front(job.out_dir, planned, job.overwrite)
 

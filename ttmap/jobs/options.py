@@ -40,6 +40,9 @@ from ttmap.defaults import (
     EARTH_MODELS,
     FLOOR_DEPTH_M,
     LITTLE_MARGIN_MIN,
+    MAX_PERIOD_S,
+    MAX_TIME_LIMIT_S,
+    MIN_PERIOD_S,
     MAP_FORMAT,
     MAP_FORMATS,
     MAX_NOTIFICATION_DELAY_MIN,
@@ -57,6 +60,9 @@ from ttmap.errors import InputDataError
 
 __all__ = [
     "LONLAT_CRS",
+    "MIN_PERIOD_S",
+    "MAX_PERIOD_S",
+    "MAX_TIME_LIMIT_S",
     "ReadingOptions",
     "SpeedOptions",
     "ProductOptions",
@@ -67,6 +73,7 @@ __all__ = [
 
 #: CRS of a crop window given in longitude/latitude degrees.
 LONLAT_CRS: str = "EPSG:4326"
+
 
 
 def check_formats(vector_formats: Sequence[str], map_formats: Sequence[str]) -> None:
@@ -119,6 +126,8 @@ class ReadingOptions:
         raster's own map units.
     coarsen : int
         Average depth over ``coarsen`` x ``coarsen`` blocks (1 = off).
+    nodata : float, optional
+        A fill value the file does not declare; cells equal to it are nodata.
     """
 
     path: str
@@ -127,9 +136,17 @@ class ReadingOptions:
     window: tuple[float, float, float, float] | None = None
     window_crs: str | None = LONLAT_CRS
     coarsen: int = 1
+    nodata: float | None = None
 
     def __post_init__(self) -> None:
         object.__setattr__(self, "path", str(self.path))
+        if not self.path.strip():
+            raise InputDataError("bathymetry path '' is empty; give a raster file, e.g. bathy.tif")
+        nd = self.nodata
+        if nd is not None:
+            if isinstance(nd, bool) or not isinstance(nd, (int, float)) or not math.isfinite(nd):
+                raise InputDataError(f"nodata value {nd!r} is not a finite number; give e.g. -32768")
+            object.__setattr__(self, "nodata", float(nd))
         if self.band is not None and not (isinstance(self.band, int) and self.band >= 1):
             raise InputDataError(f"band {self.band!r} must be a whole number from 1")
         if not (isinstance(self.coarsen, int) and self.coarsen >= 1):
@@ -142,7 +159,8 @@ class ReadingOptions:
         from ttmap.io.raster import read_bathymetry
 
         return read_bathymetry(self.path, band=self.band, depth_positive=self.depth_positive,
-                               window=self.window, window_crs=self.window_crs, coarsen=self.coarsen)
+                               window=self.window, window_crs=self.window_crs, coarsen=self.coarsen,
+                               nodata=self.nodata)
 
 
 @dataclass(frozen=True)
@@ -178,9 +196,20 @@ class SpeedOptions:
         _choice("earth model", self.earth, EARTH_MODELS)
         _choice("period speed", self.period_speed, PERIOD_SPEEDS)
         _positive("maximum time", self.max_time_s, "s")
+        if self.max_time_s is not None and self.max_time_s > MAX_TIME_LIMIT_S:
+            raise InputDataError(
+                f"maximum time {self.max_time_s / 3600.0:g} h is longer than {MAX_TIME_LIMIT_S / 3600.0:g} h "
+                "(a tsunami crosses the widest ocean in about a day); give hours, e.g. --max-time-h 24"
+            )
         periods = tuple(float(p) for p in self.periods_s)
         for p in periods:
             _positive("wave period", p, "s")
+            if not MIN_PERIOD_S <= p <= MAX_PERIOD_S:
+                raise InputDataError(
+                    f"wave period {p:g} s is outside {MIN_PERIOD_S:g}...{MAX_PERIOD_S:g} s, the range where "
+                    "an energy-arrival map of long waves makes sense (shorter: wind waves that take days; "
+                    "longer: tides, no different from the front); give seconds, e.g. --period-s 600"
+                )
         object.__setattr__(self, "periods_s", periods)
 
 

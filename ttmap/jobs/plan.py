@@ -197,7 +197,9 @@ def site_file_stem(name: str) -> str:
         raise InputDataError(
             f"site name {name!r} has no letter or digit to name its files by; rename the site"
         )
-    return stem
+    from ttmap.jobs.checks import fit_file_stem  # a name too long for the file system: cut, with a hash
+
+    return fit_file_stem(stem)
 
 
 def check_site_stems(names: Iterable[str]) -> None:

@@ -100,6 +100,9 @@ def run_scenario_file(
     if problem:
         raise InputDataError(problem)
     nw = n_workers if n_workers is not None else sf.outputs.workers
+    from ttmap.jobs.checks import check_out_dir
+
+    check_out_dir(out_dir if out_dir is not None else sf.outputs.folder)
     out = Path(out_dir) if out_dir is not None else Path(sf.outputs.folder)
     if out.exists() and not out.is_dir():
         raise InputDataError(f"output folder {str(out)!r} is a file; give a folder name")

@@ -215,6 +215,9 @@ def run_site_map_job(job: SiteMapJob, *, progress: Callable[[str], None] | None 
                 f"{MAX_NOTIFICATION_DELAY_MIN:g} minutes; give e.g. 10"
             )
         delays[site.name] = float(d)
+    from ttmap.jobs.checks import check_site_map_job
+
+    _, name_notes = check_site_map_job(job, sites.names)  # every input, from the raster's header
     planned = planned_site_map_outputs(job, sites)
     out = refuse_outputs_up_front(job.out_dir, planned, job.overwrite)
 
@@ -333,6 +336,7 @@ def run_site_map_job(job: SiteMapJob, *, progress: Callable[[str], None] | None 
         timings_s=timings,
         products=written,
         out_dir=out,
+        notes=name_notes,
         sites=per_site,
         sites_skipped=skipped,
         combined_written=combined_written,

@@ -18,6 +18,7 @@ of arrays are counted from 1 in messages)::
     crop_lonlat = [W, S, E, N]      # optional window in degrees ...
     crop_xy = [W, S, E, N]          # ... or in the raster's own map units
     coarsen = 1                     # block-average N x N cells first
+    nodata = -32768                 # optional; a fill value the raster does not declare
 
     [speed]                         # optional
     floor_depth_m = 5.0
@@ -93,7 +94,7 @@ __all__ = [
 
 #: Keys allowed in each top-level table (``scenario`` and ``trench`` are arrays of tables).
 SECTION_KEYS: Mapping[str, tuple[str, ...]] = {
-    "bathymetry": ("path", "band", "depth_positive", "crop_lonlat", "crop_xy", "coarsen"),
+    "bathymetry": ("path", "band", "depth_positive", "crop_lonlat", "crop_xy", "coarsen", "nodata"),
     "speed": ("floor_depth_m", "far_field", "earth", "periods_s", "period_speed"),
     "scenario": (
         "name",
@@ -180,6 +181,7 @@ class BathymetrySettings:
     crop_lonlat: tuple[float, float, float, float] | None = None
     crop_xy: tuple[float, float, float, float] | None = None
     coarsen: int = 1
+    nodata: float | None = None
 
 
 @dataclass(frozen=True)

@@ -38,6 +38,7 @@ def scenario_tasks(sf: ScenarioFile) -> tuple[MediumSpec, list[SolveTask]]:
         window=window,
         window_crs=None if b.crop_xy is not None else "EPSG:4326",
         coarsen=b.coarsen,
+        nodata=b.nodata,
         floor_depth_m=s.floor_depth_m,
         far_field=s.far_field,
         earth=s.earth,

@@ -28,7 +28,17 @@ from pathlib import Path
 from typing import Any
 
 from ttmap.tasks import check_executor
-from ttmap.defaults import EARTH_MODELS, EXECUTORS, FLOOR_DEPTH_M, MAX_TRENCH_RUPTURES, PERIOD_SPEEDS, SCALING_RELATION
+from ttmap.defaults import (
+    EARTH_MODELS,
+    EXECUTORS,
+    FLOOR_DEPTH_M,
+    MAX_PERIOD_S,
+    MAX_TIME_LIMIT_S,
+    MAX_TRENCH_RUPTURES,
+    MIN_PERIOD_S,
+    PERIOD_SPEEDS,
+    SCALING_RELATION,
+)
 from ttmap.errors import InputDataError, TtmapError
 from ttmap.physics.scaling import MW_MAX, MW_MIN, SCALING_RELATIONS, rupture_size_km
 from ttmap.scenario.locator import KeyPath, format_key_path, locate_keys
@@ -303,13 +313,14 @@ class _Loader:
         file = self.existing_file(tbl, "path", path, required=True, what="bathymetry raster")
         band = self.number(tbl, "band", path, integer=True, positive=True)
         coarsen = self.number(tbl, "coarsen", path, integer=True, positive=True)
+        nodata = self.number(tbl, "nodata", path)
         depth_positive = self.boolean(tbl, "depth_positive", path, False)
         crop_ll = self.bbox(tbl, "crop_lonlat", path)
         crop_xy = self.bbox(tbl, "crop_xy", path)
         if crop_ll is not None and crop_xy is not None:
             self.err(path + ("crop_xy",), "give crop_lonlat or crop_xy, not both; remove one")
         if file is not None:
-            self._open_raster(file, path, band, coarsen, crop_ll, crop_xy)
+            self._open_raster(file, path, band, coarsen, crop_ll, crop_xy, nodata)
         if file is None:
             return None
         return BathymetrySettings(
@@ -319,6 +330,7 @@ class _Loader:
             crop_lonlat=crop_ll,
             crop_xy=crop_xy if crop_ll is None else None,
             coarsen=1 if coarsen is None else int(coarsen),
+            nodata=None if nodata is None else float(nodata),
         )
 
     def _check_memory(self, path: tuple[Any, ...], grid: Any, coarsen: float | None) -> None:
@@ -348,14 +360,25 @@ class _Loader:
         coarsen: float | None,
         crop_ll: tuple[float, ...] | None,
         crop_xy: tuple[float, ...] | None,
+        nodata: float | None = None,
     ) -> None:
         from ttmap.io.header import choose_band, read_bathymetry_header
+        from ttmap.io.raster import sample_fill_values
+        from ttmap.memory import check_read_memory
 
         try:  # the opening rules of the run's reader, on the metadata only
             header = read_bathymetry_header(file)
+            if crop_ll is None and crop_xy is None:  # a crop window is checked by the run's reader
+                check_read_memory(file, (header.grid.rows, header.grid.cols), header.itemsize)
         except TtmapError as err:
             self.err(path + ("path",), str(err))
             return
+        try:  # an undeclared fill value, on a decimated read (at most about a million cells)
+            sample_fill_values(file, None if band is None else int(band), nodata=nodata)
+        except TtmapError as err:
+            key = "nodata" if "beyond the deepest" in str(err) else "path"
+            self.err(path + (key,), re.sub(r"with --nodata (\S+) \(nodata = \S+ in a scenario file\)",
+                                                 r"with nodata = \1 in [bathymetry]", str(err)))
         grid, count = header.grid, header.band_count
         shape = (grid.rows, grid.cols)
         self._check_memory(path, grid, coarsen)
@@ -482,8 +505,10 @@ class _Loader:
         from rasterio.errors import RasterioError
         from rasterio.windows import Window
 
+        if self.grid is None:  # the raster could not be opened: reported once, at [bathymetry] path
+            return
         xy = self._to_grid(lon, lat)
-        if xy is None or self.grid is None:
+        if xy is None:
             return
         row, col = (int(v) for v in self.grid.rowcol(*xy))
         try:
@@ -543,6 +568,12 @@ class _Loader:
                             f"period {p:g} s must be positive and finite; give the wave period "
                             "in seconds, e.g. 600",
                         )
+                    elif not MIN_PERIOD_S <= p <= MAX_PERIOD_S:
+                        self.err(
+                            pp,
+                            f"period {p:g} s is outside {MIN_PERIOD_S:g}...{MAX_PERIOD_S:g} s, where an "
+                            "energy-arrival map of long waves makes sense; give e.g. 600",
+                        )
                     elif float(p) in periods:
                         self.err(pp, f"period {p:g} s is listed twice; give each period once")
                     else:
@@ -559,6 +590,10 @@ class _Loader:
         self, tbl: Mapping[str, Any], path: KeyPath
     ) -> tuple[float | None, float | None]:
         h = self.number(tbl, "max_time_h", path, positive=True)
+        if h is not None and h * 3600.0 > MAX_TIME_LIMIT_S:
+            self.err(path + ("max_time_h",), f"max_time_h = {h:g} is longer than {MAX_TIME_LIMIT_S / 3600:g} h "
+                     "(a tsunami crosses the widest ocean in about a day); give e.g. 24")
+            h = None
         r = self.number(tbl, "snap_radius_km", path, positive=True)
         return (None if h is None else h * 3600.0), (None if r is None else r * 1000.0)
 
