@@ -25,6 +25,7 @@ if TYPE_CHECKING:
 
 __all__ = [
     "run_scenario_file",
+    "scenario_site_options",
     "write_difference",
     "write_envelope",
     "write_sites_by_scenarios",
@@ -256,6 +257,13 @@ def _scenario_record(
     )
 
 
+def scenario_site_options(sf: ScenarioFile) -> Any:
+    """The scenario file's ``[sites]`` table as the site option group the map job uses."""
+    from ttmap.jobs.options import SiteOptions
+
+    return SiteOptions(path=sf.sites_path, **dict(getattr(sf, "site_options", {}) or {}))
+
+
 def _write_sites_x_scenarios(
     sf: ScenarioFile,
     out: Path,
@@ -264,7 +272,8 @@ def _write_sites_x_scenarios(
     overwrite: bool,
 ) -> dict[str, Any]:
     """Sites by scenarios (CSV tables and chart) from the finished fronts; a summary for run.json."""
-    from ttmap.io.sites import read_sites
+    from ttmap.io.raster import read_bathymetry
+    from ttmap.traveltime import prepare_medium
 
     if sf.sites_path is None or not fronts:
         return {"path": sf.sites_path, "skipped": "no finished front to read the sites from"}
@@ -274,28 +283,49 @@ def _write_sites_x_scenarios(
             s = by_name.get(f"{name}_{sf.speed.period_speed}_T{p:g}s")
             if s is not None and s.ok and s.raster:
                 energy[(name, float(p))] = s.raster
+    opts = scenario_site_options(sf)
     try:
-        sites = read_sites(sf.sites_path)
+        sites = opts.read()
+        spec, _ = scenario_tasks(sf)
+        # The front's medium: depths at the cells read and the water masks behind the
+        # snapping status words, exactly as the map job has them.
+        bathy = read_bathymetry(spec.bathymetry, band=spec.band, depth_positive=spec.depth_positive,
+                                window=spec.window, window_crs=spec.window_crs, coarsen=spec.coarsen)
+        medium = prepare_medium(bathy.depth_m, bathy.grid, floor_depth_m=spec.floor_depth_m,
+                                far_field=spec.far_field, earth=spec.earth)  # type: ignore[arg-type]
+        del bathy
         written = write_sites_by_scenarios(
-            str(out), sites, dict(fronts), energy, overwrite=overwrite
+            str(out), sites, dict(fronts), energy, overwrite=overwrite,
+            search_radius_m=opts.search_radius_m,
+            notification_delay_min=opts.notification_delay_min,
+            preparation_min=opts.preparation_min,
+            walking_speed_m_s=opts.walking_speed_m_s,
+            little_margin_min=opts.little_margin_min,
+            speed_uncertainty=opts.speed_uncertainty,
+            origin_time_utc=opts.origin_time_utc,
+            depth_m=medium.depth_m, water=medium.water, open_water=medium.open_water,
         )
+        del medium
     except InputDataError as err:  # a bad site row must not lose the finished solves
         return {"path": sf.sites_path, "skipped": f"site table not written ({err})"}
     table = written.pop("table")
     first: dict[str, Any] = {}
     statuses: dict[str, str] = {}
     for site, sc, front, is_first, status in zip(
-        table["site"], table["scenario"], table["front_min"], table["earliest_for_site"],
+        table["name"], table["scenario"], table["front_min"], table["earliest_for_site"],
         table["status"], strict=True,
     ):
         statuses[site] = status
         if is_first and site not in first:
             first[site] = {"scenario": sc, "front_min": round(float(front), 3)}
+    from ttmap.jobs.options import options_record
+
     return {
         "path": sf.sites_path,
         "count": len(statuses),
         "scenarios": list(fronts),
         "periods_s": sorted({p for _, p in energy}),
+        "options": {k: v for k, v in options_record(opts).items() if k != "path"},
         "no_arrival": sorted(s for s in statuses if s not in first),
         "snap_status": {k: sum(1 for v in statuses.values() if v == k)
                         for k in dict.fromkeys(statuses.values())},
@@ -591,7 +621,8 @@ def write_sites_by_scenarios(
     first = earliest_by_site(table)
     table_notes, first_notes = sites_by_scenarios_notes(**options)
     decimals = {k: 2 for k in table if k.endswith("_min") or k.startswith("minutes_")}
-    decimals["moved_m"] = 0
+    decimals.update({"lon": 6, "lat": 6, "moved_m": 0, "depth_m": 1, "safe_ground_distance_m": 1,
+                     "walking_speed_m_s": 3})
     fig = render_sites_by_scenarios(table)
     write_sites_tables(
         targets,
