@@ -196,7 +196,10 @@ class _Loader:
             self.err(p, f"{key} = {v:g} must be greater than 0; give a positive value")
             return None
         if (lo is not None and f < lo) or (hi is not None and f > hi):
-            self.err(p, f"{key} = {v:g} is outside {lo:g} to {hi:g}; give a value in that range")
+            rng = (f"below {lo:g}; give {lo:g} or more" if hi is None
+                   else f"above {hi:g}; give {hi:g} or less" if lo is None
+                   else f"outside {lo:g} to {hi:g}; give a value in that range")
+            self.err(p, f"{key} = {v:g} is {rng}")
             return None
         return f
 
