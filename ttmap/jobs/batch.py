@@ -36,9 +36,13 @@ for later runs with the same spec.
 Files and resuming
 ------------------
 Task ``name`` writes ``arrival_<name>.tif`` (float32 minutes) and then, last,
-``<name>.task.json``: the task's *inputs* (task description, medium spec,
-bathymetry SHA-256, ttmap version, extra raster tags), their SHA-256 (also
-stored in the raster's ``TASK_INPUTS_SHA256`` tag), and the summary. Before
+``<name>.task.json``: the task's *inputs* - its content: source geometry,
+speed mode and period, limits, the medium spec with the bathymetry's SHA-256
+in place of its path, the ttmap version; never the scenario file's name, the
+source's label or extra raster tags - their SHA-256 (also stored in the
+raster's ``TASK_INPUTS_SHA256`` tag), and the summary. A renamed copy of a
+scenario file therefore resumes every finished task; when an input differs
+the message names it (:func:`inputs_difference`). Before
 anything runs, every task's existing outputs are classified:
 
 - both files present, recording the same inputs: complete; skipped when
@@ -84,6 +88,7 @@ if TYPE_CHECKING:
 
 __all__ = [
     "TaskSummary",
+    "inputs_difference",
     "run_tasks",
     "task_output_paths",
 ]
@@ -336,7 +341,7 @@ def _run_task(job: _Job) -> TaskSummary:
 
     task = job.task
     t0 = time.perf_counter()
-    base: dict[str, Any] = {"task": job.inputs["task"]}
+    base: dict[str, Any] = {"task": job.task.describe()}
     caught: list[warnings.WarningMessage] = []
     tif, rec_path = task_output_paths(task.name, job.out_dir)
     try:
@@ -378,6 +383,8 @@ def _run_task(job: _Job) -> TaskSummary:
         "ttmap_task_record": _RECORD_VERSION,
         "inputs": job.inputs,
         "inputs_sha256": job.inputs_sha256,
+        "raster_tags": job.extra_tags,
+        "bathymetry": job.spec.bathymetry,
         "raster": tif.name,
         "summary": summary,
         "warnings": list(warns),
@@ -435,15 +442,68 @@ def _absolute_spec(spec: MediumSpec) -> MediumSpec:
 
 
 def _task_inputs(task: SolveTask, spec: MediumSpec, sha: str | None, tags: dict[str, str]) -> dict[str, Any]:
+    """What identifies a finished task: its content, not where it was described.
+
+    The source geometry, speed model, period and limits; the medium spec with
+    the bathymetry's SHA-256 standing for its path; the ttmap version. Not the
+    scenario file's name or path, the source's label, the task's place in the
+    file or the extra raster tags, so a renamed copy of a scenario file resumes.
+    """
     import ttmap
 
+    described = task.describe()
+    described.pop("meta", None)
+    source = dict(described.get("source") or {})
+    source.pop("label", None)
+    described["source"] = source
+    medium = spec.describe()
+    if sha is not None:
+        medium.pop("bathymetry", None)  # the content (sha) identifies it, not the path
     return _canonical({
-        "task": task.describe(),
-        "medium": spec.describe(),
+        "task": described,
+        "medium": medium,
         "bathymetry_sha256": sha,
         "ttmap_version": ttmap.__version__,
-        "raster_tags": tags,
     })
+
+
+def _flatten(value: Any, prefix: str = "") -> dict[str, Any]:
+    if isinstance(value, Mapping):
+        out: dict[str, Any] = {}
+        for k, v in value.items():
+            out.update(_flatten(v, f"{prefix}.{k}" if prefix else str(k)))
+        return out
+    return {prefix: value}
+
+
+def _short(value: Any) -> str:
+    if isinstance(value, str) and re.fullmatch(r"[0-9a-f]{64}", value):
+        return value[:12] + ".."
+    text = json.dumps(value, default=_json_default) if not isinstance(value, str) else value
+    return text if len(text) <= 60 else text[:57] + "..."
+
+
+def inputs_difference(recorded: Any, now: Mapping[str, Any]) -> str:
+    """One line naming the first input that differs between a task record and this run.
+
+    Examples
+    --------
+    >>> inputs_difference({"bathymetry_sha256": "1a" * 32}, {"bathymetry_sha256": "3c" * 32})
+    'bathymetry SHA-256 differs: recorded 1a1a1a1a1a1a.., now 3c3c3c3c3c3c..'
+    >>> inputs_difference({"task": {"period_s": 300}}, {"task": {"period_s": 600}})
+    'task.period_s differs: recorded 300, now 600'
+    """
+    if not isinstance(recorded, Mapping):
+        return "the record holds no inputs"
+    old, new = _flatten(recorded), _flatten(now)
+    missing = object()
+    for key in [*new, *(k for k in old if k not in new)]:
+        a, b = old.get(key, missing), new.get(key, missing)
+        if a != b:
+            what = "bathymetry SHA-256" if key == "bathymetry_sha256" else key
+            return (f"{what} differs: recorded {'(absent)' if a is missing else _short(a)}, "
+                    f"now {'(absent)' if b is missing else _short(b)}")
+    return "recorded inputs differ"
 
 
 def _load_record(path: Path) -> dict[str, Any] | None:
@@ -466,7 +526,8 @@ def _raster_inputs_sha(path: Path) -> str | None:
 
 
 def _plan(
-    task: SolveTask, inputs_sha: str, out_dir: Path, *, resume: bool, overwrite: bool
+    task: SolveTask, inputs_sha: str, out_dir: Path, *, resume: bool, overwrite: bool,
+    inputs: Mapping[str, Any] | None = None,
 ) -> tuple[str, Any]:
     """("run", replace) | ("skip", record) | ("conflict", reason) for one task."""
     tif, rec_path = task_output_paths(task.name, out_dir)
@@ -487,7 +548,7 @@ def _plan(
     elif has_rec and rec is None:
         reason = f"{rec_path.name} is unreadable"
     elif has_rec and not rec_same:
-        reason = "recorded inputs differ"
+        reason = inputs_difference(rec.get("inputs") if rec else None, inputs or {})
     else:
         reason = f"{tif.name} was made from other inputs"
     return "conflict", reason
@@ -570,7 +631,8 @@ def run_tasks(
         ``total`` is ``len(tasks)``.
     tags : mapping, optional
         Extra raster tags for every output (e.g. the scenario file name);
-        part of the recorded inputs, so keep them stable across resumed runs.
+        recorded, but not part of what identifies a finished task (a task
+        kept by a resumed run keeps the tags it was written with).
         ttmap's own tags take precedence over equal names.
 
     Returns
@@ -619,7 +681,7 @@ def run_tasks(
     for task in tasks:
         inputs = _task_inputs(task, spec, sha, extra_tags)
         inputs_sha = _digest(inputs)
-        action, detail = _plan(task, inputs_sha, out, resume=resume, overwrite=overwrite)
+        action, detail = _plan(task, inputs_sha, out, resume=resume, overwrite=overwrite, inputs=inputs)
         if action == "skip":
             results[task.name] = _skipped_summary(task, out, detail)
         elif action == "conflict":
@@ -702,7 +764,7 @@ def _run_on_dask(
             except Exception as err:  # the worker died, was lost, or could not unpickle
                 summary = TaskSummary(
                     name=job.task.name, ok=False, raster=None,
-                    summary={"task": job.inputs["task"]},
+                    summary={"task": job.task.describe()},
                     error=_one_line(
                         f"task {job.task.name}: the worker failed ({type(err).__name__}: {err}); "
                         "if it ran out of memory, crop or coarsen the grid or use fewer workers"
