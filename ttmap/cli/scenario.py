@@ -155,6 +155,7 @@ def run_command(
     management decide.
     """
     from ttmap.products.cautions import CAUTION_SHORT
+    from ttmap.jobs.batch import BatchInterrupted
     from ttmap.jobs.scenario import run_scenario_file
 
     t0 = time.perf_counter()
@@ -179,7 +180,12 @@ def run_command(
                 progress=progress,
                 validate_s=validate_s,
                 command_line=shlex.join(["ttmap", *sys.argv[1:]]),
+                dask_log=not rep.quiet,
             )
+        except BatchInterrupted as err:  # Ctrl-C: one line, what was kept, how to resume
+            progress.close()
+            click.echo(("" if rep.quiet else "\n") + f"ttmap: {err}", err=True)
+            ctx.exit(130)
         finally:
             progress.close()
         tasks = record["tasks"]

@@ -87,6 +87,8 @@ if TYPE_CHECKING:
     from ttmap.traveltime import Medium
 
 __all__ = [
+    "BatchInterrupted",
+    "DASK_LOGGERS",
     "TaskSummary",
     "inputs_difference",
     "run_tasks",
@@ -602,6 +604,7 @@ def run_tasks(
     resume: bool = True,
     progress: ProgressFn | None = None,
     tags: Mapping[str, Any] | None = None,
+    dask_log: bool = True,
 ) -> list[TaskSummary]:
     """Run independent solves and write one raster and one record per task.
 
@@ -634,6 +637,10 @@ def run_tasks(
         recorded, but not part of what identifies a finished task (a task
         kept by a resumed run keeps the tags it was written with).
         ttmap's own tags take precedence over equal names.
+    dask_log : bool
+        Write the scheduler's and workers' log lines to ``dask.log`` in the
+        output folder (default); False sends them nowhere. They never reach
+        the terminal.
 
     Returns
     -------
@@ -648,6 +655,9 @@ def run_tasks(
     OutputExistsError
         Some tasks' outputs exist from other inputs (or ``resume`` is off)
         and ``overwrite`` is False; nothing has run.
+    BatchInterrupted
+        Ctrl-C (a :class:`KeyboardInterrupt`): finished tasks are kept; the
+        message says how many and how to resume.
 
     Notes
     -----
@@ -717,28 +727,122 @@ def run_tasks(
         try:
             for job in jobs:
                 _finished(_run_task(job))
+        except KeyboardInterrupt:
+            raise BatchInterrupted(sum(1 for r in results.values() if r.ok), total, str(out)) from None
         finally:
             _clear_cache()
     elif jobs:
-        _run_on_dask(jobs, executor, n_workers, _finished)
+        try:
+            _run_on_dask(jobs, executor, n_workers, _finished,
+                         out / "dask.log" if dask_log else None)
+        except KeyboardInterrupt:
+            raise BatchInterrupted(sum(1 for r in results.values() if r.ok), total, str(out)) from None
     return [results[t.name] for t in tasks]
 
 
+#: Loggers of the Dask machinery (and the libraries under it) sent to ``dask.log``.
+DASK_LOGGERS: tuple[str, ...] = ("distributed", "dask", "tornado", "asyncio", "bokeh")
+
+
+class BatchInterrupted(KeyboardInterrupt):
+    """Ctrl-C during a run: one line with what was kept and how to resume."""
+
+    def __init__(self, finished: int, total: int, out_dir: str) -> None:
+        self.finished, self.total, self.out_dir = finished, total, out_dir
+        super().__init__(
+            f"interrupted: {finished} of {total} solves are finished and kept in {out_dir}; "
+            "run the same command again to resume (finished solves are kept, the rest are solved)"
+        )
+
+    def __str__(self) -> str:
+        return str(self.args[0])
+
+
+class _DaskLogs:
+    """Route the Dask loggers to a file in the output folder (or nowhere), for one run."""
+
+    def __init__(self, path: Path | None) -> None:
+        import logging
+
+        self.path = path
+        self.saved: list[tuple[Any, list[Any], int, bool]] = []
+        self.handler: Any = None
+        if path is not None:
+            path.parent.mkdir(parents=True, exist_ok=True)
+            self.handler = logging.FileHandler(path, encoding="utf-8")
+            self.handler.setFormatter(logging.Formatter("%(asctime)s %(name)s %(levelname)s %(message)s"))
+        for name in DASK_LOGGERS:
+            lg = logging.getLogger(name)
+            self.saved.append((lg, list(lg.handlers), lg.level, lg.propagate))
+            for h in list(lg.handlers):
+                lg.removeHandler(h)
+            lg.propagate = False
+            if self.handler is not None:
+                lg.addHandler(self.handler)
+        self.apply()
+
+    def apply(self) -> None:
+        """(Re)set the levels: Dask resets them when it starts a cluster."""
+        import logging
+
+        if self.handler is not None:
+            self.handler.setLevel(logging.INFO)  # LocalCluster(silence_logs=...) lowers it
+        for name in DASK_LOGGERS:
+            lg = logging.getLogger(name)
+            lg.setLevel(logging.INFO if self.handler is not None else logging.CRITICAL + 1)
+            for h in list(lg.handlers):
+                if h is not self.handler:
+                    lg.removeHandler(h)
+
+    def close(self) -> None:
+        for lg, handlers, level, propagate in self.saved:
+            for h in list(lg.handlers):
+                lg.removeHandler(h)
+            for h in handlers:
+                lg.addHandler(h)
+            lg.setLevel(level)
+            lg.propagate = propagate
+        if self.handler is not None:
+            self.handler.close()
+
+
 def _run_on_dask(
-    jobs: list[_Job], executor: str, n_workers: int | None, finished: Callable[[TaskSummary], None]
+    jobs: list[_Job], executor: str, n_workers: int | None, finished: Callable[[TaskSummary], None],
+    log_path: Path | None = None,
 ) -> None:
+    import logging
+    import signal
+
+    import dask
+
     distributed = _import_distributed()
+    logs = _DaskLogs(log_path)
     cluster = None
     client = None
+    settings = dask.config.set({
+        "distributed.logging.distributed": "error",
+        "distributed.admin.tick.limit": "1h",  # no "event loop unresponsive" chatter during solves
+    })
     try:
         if executor == "local":
             n = n_workers or max(1, min(os.cpu_count() or 1, len(jobs)))
-            # Loopback only; no dashboard; the scheduler's small HTTP endpoint on a free
-            # port (by default it would try 8787 and warn when another cluster has it).
-            cluster = distributed.LocalCluster(
-                n_workers=n, threads_per_worker=1, processes=True, dashboard_address=None,
-                host="127.0.0.1", scheduler_kwargs={"dashboard_address": "127.0.0.1:0"},
-            )
+            # Worker processes start with SIGINT ignored (a disposition inherited across exec,
+            # and kept by Python): Ctrl-C reaches only this process, which stops the cluster
+            # cleanly, instead of every worker printing its own traceback.
+            main_thread = threading.current_thread() is threading.main_thread()
+            old = signal.signal(signal.SIGINT, signal.SIG_IGN) if main_thread else None
+            try:
+                # Loopback only; no dashboard (so no web-proxy suggestion); the scheduler's
+                # small HTTP endpoint on a free port.
+                cluster = distributed.LocalCluster(
+                    n_workers=n, threads_per_worker=1, processes=True, dashboard_address=None,
+                    host="127.0.0.1", scheduler_kwargs={"dashboard_address": "127.0.0.1:0"},
+                    silence_logs=logging.CRITICAL,
+                )
+            finally:
+                if old is not None:
+                    signal.signal(signal.SIGINT, old)
+            logs.apply()
             client = distributed.Client(cluster)
         else:
             try:
@@ -772,7 +876,24 @@ def _run_on_dask(
                 )
             finished(summary)
     finally:
-        if client is not None:
-            client.close()
-        if cluster is not None:
-            cluster.close()
+        # Stopping the cluster after Ctrl-C: a second Ctrl-C must not leave workers behind.
+        main_thread = threading.current_thread() is threading.main_thread()
+        old = signal.signal(signal.SIGINT, signal.SIG_IGN) if main_thread else None
+        try:
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore")
+                if client is not None:
+                    try:
+                        client.close(timeout=10)
+                    except Exception:  # noqa: BLE001 - closing after a failure: best effort
+                        pass
+                if cluster is not None:
+                    try:
+                        cluster.close(timeout=10)
+                    except Exception:  # noqa: BLE001
+                        pass
+        finally:
+            if old is not None:
+                signal.signal(signal.SIGINT, old)
+            settings.__exit__(None, None, None)
+            logs.close()

@@ -43,6 +43,7 @@ def run_scenario_file(
     progress: Any = None,
     command_line: str = "",
     validate_s: float | None = None,
+    dask_log: bool = True,
 ) -> dict[str, Any]:
     """Solve every scenario of a file, then write the comparisons and ``run.json``.
 
@@ -66,6 +67,9 @@ def run_scenario_file(
         Passed to :func:`ttmap.jobs.batch.run_tasks`.
     command_line : str
         Recorded in ``run.json``.
+    dask_log : bool
+        Keep the Dask scheduler's log lines in ``dask.log`` in the output
+        folder (default); False drops them. They never reach the terminal.
 
     Returns
     -------
@@ -113,6 +117,7 @@ def run_scenario_file(
         resume=resume,
         progress=progress,
         tags={"SCENARIO_FILE": Path(sf.path).name},
+        dask_log=dask_log,
     )
     solve_s = time.perf_counter() - t0
 
