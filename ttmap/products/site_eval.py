@@ -693,18 +693,18 @@ def evaluate_sites(
         cols[k] = []
     for i, site in enumerate(sites):
         given = {k: getattr(site, k) for k in _BUDGET_FIELDS}
-        values = {k: defaults[k] if given[k] is None else float(given[k]) for k in _BUDGET_FIELDS}
+        used = {k: defaults[k] if given[k] is None else float(given[k]) for k in _BUDGET_FIELDS}
         b = warning_budget(
-            float(earliest[i]), values["notification_delay_min"], values["preparation_min"],
-            site.safe_ground_distance_m, values["walking_speed_m_s"],
+            float(earliest[i]), used["notification_delay_min"], used["preparation_min"],
+            site.safe_ground_distance_m, used["walking_speed_m_s"],
             little_margin_min=little_margin_min,
         )
         dist = site.safe_ground_distance_m
-        cols["notification_delay_min"].append(values["notification_delay_min"])
+        cols["notification_delay_min"].append(used["notification_delay_min"])
         cols["minutes_left"].append(b.minutes_left)
-        cols["preparation_min"].append(values["preparation_min"])
+        cols["preparation_min"].append(used["preparation_min"])
         cols["safe_ground_distance_m"].append(math.nan if dist is None else float(dist))
-        cols["walking_speed_m_s"].append(values["walking_speed_m_s"])
+        cols["walking_speed_m_s"].append(used["walking_speed_m_s"])
         cols["minutes_needed"].append(b.minutes_needed)
         cols["margin_min"].append(b.margin_min)
         cols["budget_status"].append(b.status)

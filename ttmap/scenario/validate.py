@@ -916,15 +916,16 @@ class _Loader:
         if origin is not None:
             import datetime as _dt
 
+            when: _dt.datetime | None
             try:
-                t = _dt.datetime.fromisoformat(origin.strip())
+                when = _dt.datetime.fromisoformat(origin.strip())
             except ValueError:
-                t = None
-            if t is None or t.tzinfo is None or t.utcoffset() is None:
+                when = None
+            if when is None or when.tzinfo is None or when.utcoffset() is None:
                 self.err(path + ("origin_time",), f"origin_time = {origin!r} is not an ISO 8601 time "
                          'with a zone; give e.g. "2026-03-01T03:12:00Z"')
             else:
-                opts["origin_time_utc"] = t.astimezone(_dt.UTC)
+                opts["origin_time_utc"] = when.astimezone(_dt.UTC)
         file = self.existing_file(tbl, "path", path, required=True, what="site file")
         if file is None:
             return None, None, opts
