@@ -81,7 +81,7 @@ def test_info_on_projected_grid(run_cli, spec, utm_bathymetry):
     assert "size:          120 columns x 120 rows (14,400 cells)" in text
     assert "cell size:     1,000 m (x) x 1,000 m (y)" in text
     # 110 of 120 columns are water
-    assert re.search(r"^water share:\s+91\.7 % \(13,200 cells\)", text, re.MULTILINE)
+    assert re.search(r"^water share:\s+91\.7 % \(13,200 cells as solved\)", text, re.MULTILINE)
     assert "wraps 360 deg: no" in text
     assert "(map units)" in text and "Mercator" not in text
 

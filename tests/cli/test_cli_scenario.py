@@ -241,9 +241,9 @@ def test_run_writes_sites_by_scenarios(small_run):
     assert reached  # some demo towns lie within the search radius of reached water
     by_site: dict[str, list[dict]] = {}
     for r in rows:
-        by_site.setdefault(r["site"], []).append(r)
+        by_site.setdefault(r["name"], []).append(r)
     earliest = {
-        r["site"]: r for r in csv.DictReader(
+        r["name"]: r for r in csv.DictReader(
             x for x in first.read_text().splitlines() if not x.startswith("#")
         )
     }

@@ -135,8 +135,8 @@ def test_reciprocal_table_equals_direct_table(runs, which):
     0.16 of the site cell's crossing time."""
     rec = _table(runs[which]["out"] / "sites_x_scenarios.csv")
     ref = _table(runs["direct"]["out"] / "sites_x_scenarios.csv")
-    assert [(r["site"], r["scenario"], r["status"]) for r in rec] == [
-        (r["site"], r["scenario"], r["status"]) for r in ref
+    assert [(r["name"], r["scenario"], r["status"]) for r in rec] == [
+        (r["name"], r["scenario"], r["status"]) for r in ref
     ]
     cell_min = _site_cell_time_min()
     compared = 0
@@ -146,13 +146,13 @@ def test_reciprocal_table_equals_direct_table(runs, which):
             if not a[key]:
                 continue
             ta, tb = float(a[key]), float(b[key])
-            tol = max(0.005 * tb, 0.25 * cell_min[a["site"]])
-            assert abs(ta - tb) <= tol, (a["site"], a["scenario"], key, ta, tb)
+            tol = max(0.005 * tb, 0.25 * cell_min[a["name"]])
+            assert abs(ta - tb) <= tol, (a["name"], a["scenario"], key, ta, tb)
             compared += 1
     assert compared >= 100  # most of the 8 x 9 x 2 values are arrivals
     # the earliest scenario per site agrees unless two are within the tolerance
-    first_a = {r["site"]: r["front_min"] for r in _table(runs[which]["out"] / "earliest_by_site.csv")}
-    first_b = {r["site"]: r["front_min"] for r in _table(runs["direct"]["out"] / "earliest_by_site.csv")}
+    first_a = {r["name"]: r["front_min"] for r in _table(runs[which]["out"] / "earliest_by_site.csv")}
+    first_b = {r["name"]: r["front_min"] for r in _table(runs["direct"]["out"] / "earliest_by_site.csv")}
     assert first_a.keys() == first_b.keys()
 
 

@@ -119,4 +119,4 @@ def test_ogrinfo_reads_shapefiles(run_cli, spec, utm_bathymetry, tmp_path):
     bands = _ogrinfo_layers(
         run_tool("ogrinfo", "-ro", "-so", "-al", out / "isochrones_front_isochrone_bands.shp")
     )
-    assert "min_minute" in next(iter(bands.values()))["fields"]
+    assert "min_min" in next(iter(bands.values()))["fields"]  # docs/shapefile-fields.md

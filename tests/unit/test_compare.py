@@ -240,9 +240,9 @@ def _site_list():
 
 def _rows(table: dict) -> dict[tuple[str, str], dict]:
     keys = list(table)
-    n = len(table["site"])
+    n = len(table["name"])
     return {
-        (table["site"][i], table["scenario"][i]): {k: table[k][i] for k in keys} for i in range(n)
+        (table["name"][i], table["scenario"][i]): {k: table[k][i] for k in keys} for i in range(n)
     }
 
 
@@ -259,12 +259,16 @@ def test_sites_by_scenarios_reads_each_site_at_its_envelope_cell():
     }
     sites = _site_list()
     table = sites_by_scenarios(sites, GRID, fronts, energy, search_radius_m=15000.0)
+    # The columns of the map job's site table (the one site evaluation), after name: scenario;
+    # at the end: earliest_for_site.
     assert list(table) == [
-        "site", "scenario", "status", "moved_m", "front_min", "energy_T600s_min",
-        "energy_T1200s_min", "minutes_left", "minutes_needed", "margin_min", "budget_status",
-        "earliest_for_site",
+        "name", "scenario", "lon", "lat", "status", "moved_m", "depth_m", "front_min",
+        "earliest_min", "latest_min", "energy_T600s_min", "window_T600s_min",
+        "energy_T1200s_min", "window_T1200s_min", "notification_delay_min", "minutes_left",
+        "preparation_min", "safe_ground_distance_m", "walking_speed_m_s", "minutes_needed",
+        "margin_min", "budget_status", "defaults_used", "earliest_for_site",
     ]
-    assert table["site"] == [s for s in ("Open", "East", "Tie", "Gap", "Far") for _ in range(2)]
+    assert table["name"] == [s for s in ("Open", "East", "Tie", "Gap", "Far") for _ in range(2)]
     assert table["scenario"] == ["alpha", "beta"] * 5
 
     env = np.fmin(fronts["alpha"], fronts["beta"])
@@ -296,19 +300,23 @@ def test_sites_by_scenarios_reads_each_site_at_its_envelope_cell():
         ("Far", "alpha"): False, ("Far", "beta"): False,
     }
 
-    # Budget by hand. Open uses the defaults: delay 10 min, preparation 3 min, 0.74 m/s:
-    # needed = 3 + 444 / (0.74 * 60) = 13 min.
+    # Budget by hand, counted from the earliest arrival of the +/-5 % speed window
+    # (front / 1.05), as in the map job. Open uses the defaults: delay 10 min,
+    # preparation 3 min, 0.74 m/s: needed = 3 + 444 / (0.74 * 60) = 13 min.
     o = rows[("Open", "beta")]
     assert o["front_min"] == 56.0
-    assert o["minutes_left"] == pytest.approx(46.0)
+    assert o["earliest_min"] == pytest.approx(56.0 / 1.05)
+    assert o["latest_min"] == pytest.approx(56.0 / 0.95)
+    assert o["minutes_left"] == pytest.approx(56.0 / 1.05 - 10.0)
     assert o["minutes_needed"] == pytest.approx(13.0)
-    assert o["margin_min"] == pytest.approx(33.0)
-    assert rows[("Open", "alpha")]["margin_min"] == pytest.approx(130.0 - 10.0 - 13.0)
+    assert o["margin_min"] == pytest.approx(56.0 / 1.05 - 10.0 - 13.0)
+    assert rows[("Open", "alpha")]["margin_min"] == pytest.approx(130.0 / 1.05 - 10.0 - 13.0)
     # East uses its own values: delay 20, preparation 5, 900 m at 1.0 m/s -> needed 20.
     e = rows[("East", "alpha")]
-    assert (e["minutes_left"], e["minutes_needed"], e["margin_min"]) == pytest.approx((83.0, 20.0, 63.0))
+    assert (e["minutes_left"], e["minutes_needed"], e["margin_min"]) == pytest.approx(
+        (103.0 / 1.05 - 20.0, 20.0, 103.0 / 1.05 - 40.0))
     # Gap: distance 0 -> needed = preparation only; no arrival for alpha.
-    assert rows[("Gap", "beta")]["margin_min"] == pytest.approx(95.0 - 10.0 - 3.0)
+    assert rows[("Gap", "beta")]["margin_min"] == pytest.approx(95.0 / 1.05 - 10.0 - 3.0)
     assert rows[("Gap", "alpha")]["budget_status"] == STATUS_NO_ARRIVAL
     assert np.isnan(rows[("Gap", "alpha")]["margin_min"])
     # No distance: margin blank.
@@ -320,8 +328,11 @@ def test_sites_by_scenarios_reads_each_site_at_its_envelope_cell():
         sites, GRID, fronts, search_radius_m=15000.0, notification_delay_min=0.0,
         preparation_min=1.0, walking_speed_m_s=0.5,
     ))
-    assert other[("Open", "beta")]["margin_min"] == pytest.approx(56.0 - 0.0 - (1.0 + 444.0 / 30.0))
-    assert other[("East", "alpha")]["margin_min"] == pytest.approx(63.0)  # its own values
+    assert other[("Open", "beta")]["margin_min"] == pytest.approx(56.0 / 1.05 - (1.0 + 444.0 / 30.0))
+    assert other[("East", "alpha")]["margin_min"] == pytest.approx(103.0 / 1.05 - 40.0)  # its own
+    # ... and so can the stated speed uncertainty (0: the front itself).
+    none = _rows(sites_by_scenarios(sites, GRID, fronts, search_radius_m=15000.0, speed_uncertainty=0.0))
+    assert none[("Open", "beta")]["margin_min"] == pytest.approx(56.0 - 10.0 - 13.0)
 
 
 def test_sites_by_scenarios_refuses_bad_input():
@@ -362,16 +373,16 @@ def test_write_sites_by_scenarios_from_rasters(tmp_path):
     text = Path(out["table_csv"]).read_text()
     assert "planning figures, not promises" in text
     rows = list(csv.DictReader(line for line in text.splitlines() if not line.startswith("#")))
-    by = {(r["site"], r["scenario"]): r for r in rows}
+    by = {(r["name"], r["scenario"]): r for r in rows}
     assert len(rows) == 10
     assert by[("Open", "beta")]["front_min"] == "56.00"
-    assert by[("Open", "beta")]["margin_min"] == "33.00"
+    assert by[("Open", "beta")]["margin_min"] == f"{56.0 / 1.05 - 23.0:.2f}"
     assert by[("Open", "alpha")]["energy_T600s_min"] == "160.00"
     assert by[("Open", "beta")]["energy_T600s_min"] == ""
     assert by[("Gap", "alpha")]["front_min"] == "" and by[("Gap", "beta")]["earliest_for_site"] == "true"
     first_lines = Path(out["earliest_csv"]).read_text().splitlines()
     first = list(csv.DictReader(line for line in first_lines if not line.startswith("#")))
-    assert [(r["site"], r["earliest_scenario"], r["front_min"]) for r in first] == [
+    assert [(r["name"], r["earliest_scenario"], r["front_min"]) for r in first] == [
         ("Open", "beta", "56.00"),
         ("East", "alpha", "103.00"),
         ("Tie", "alpha;beta", "42.00"),

@@ -241,6 +241,15 @@ def _sites_xy(points: dict[str, tuple[float, float]], **values) -> SiteList:
     )
 
 
+def ground_m(x0: float, y0: float, x1: float, y1: float) -> float:
+    """WGS84 geodesic between two UTM 56 S positions (pyproj.Geod: Karney 2013)."""
+    from pyproj import Geod
+
+    tr = Transformer.from_crs(UTM56S, "EPSG:4326", always_xy=True)
+    (lon0, lon1), (lat0, lat1) = tr.transform([x0, x1], [y0, y1])
+    return float(Geod(ellps="WGS84").inv(lon0, lat0, lon1, lat1)[2])
+
+
 def test_site_on_land_300_m_from_water_reports_about_300_m(coast):
     grid, medium, front, _ = coast
     y = Y0 - 40.5 * CELL_M  # centre of row 40
@@ -248,9 +257,11 @@ def test_site_on_land_300_m_from_water_reports_about_300_m(coast):
     (s,) = snap_sites(sites, grid, front, depth_m=medium.depth_m)
     assert s.status == SNAP_MOVED
     assert (s.row, s.col) == (40, 99)
-    # Distance to the water's edge is 300 m; to the centre of the last water cell 350 m.
-    assert abs(s.moved_m - 300.0) <= CELL_M / 2 + 1e-6
-    assert s.moved_m == pytest.approx(350.0, abs=1e-9)
+    # 350 map metres to the centre of the last water cell; moved_m is ground metres: the
+    # WGS84 geodesic between the two points (pyproj.Geod, Karney 2013), which differs from
+    # the map distance by the UTM scale factor there (about 0.9997).
+    assert ground_m(COAST_X + 300.0, y, COAST_X - 50.0, y) == pytest.approx(350.0, rel=1e-3)
+    assert s.moved_m == pytest.approx(ground_m(COAST_X + 300.0, y, COAST_X - 50.0, y), abs=1e-6)
     assert s.depth_m == 4000.0
     assert (s.x, s.y) == pytest.approx((COAST_X - 50.0, y))
 
@@ -261,7 +272,8 @@ def test_nearest_reached_water_is_used_not_the_lagoon(coast):
     sites = _sites_xy({"Lagoon Side": (COAST_X + 450.0, Y0 - 12.5 * CELL_M)})
     (s,) = snap_sites(sites, grid, front)
     assert (s.status, s.row, s.col) == (SNAP_MOVED, 12, 99)
-    assert s.moved_m == pytest.approx(500.0)
+    y12 = Y0 - 12.5 * CELL_M
+    assert s.moved_m == pytest.approx(ground_m(COAST_X + 450.0, y12, COAST_X - 50.0, y12), abs=1e-6)
     # A bool mask of reached cells works the same; a mask that includes the lagoon picks it.
     (t,) = snap_sites(sites, grid, np.isfinite(front.arrival_time_s))
     assert (t.row, t.col) == (12, 99)
@@ -293,7 +305,8 @@ def test_far_inland_and_outside_sites_are_reported_not_dropped(coast):
     assert snap_sites(near, grid, front, search_radius_m=0.0)[0].status == SNAP_NO_WATER
     assert snap_sites(near, grid, front)[0].status == SNAP_NO_WATER  # default 2 km
     far = snap_sites(near, grid, front, search_radius_m=6_000.0)[0]
-    assert far.status == SNAP_MOVED and far.moved_m == pytest.approx(5_050.0)
+    assert far.status == SNAP_MOVED
+    assert far.moved_m == pytest.approx(ground_m(COAST_X + 5_000.0, y, COAST_X - 50.0, y), abs=1e-6)
     assert SITE_SEARCH_RADIUS_M == 2000.0
 
 
@@ -304,7 +317,8 @@ def test_lonlat_sites_are_transformed_to_the_grid_crs(coast):
     sites = SiteList((Site("Shore Road", lon, lat),))
     (s,) = snap_sites(sites, grid, front)
     assert (s.status, s.row, s.col) == (SNAP_MOVED, 40, 99)
-    assert s.moved_m == pytest.approx(350.0, abs=1e-3)
+    y = Y0 - 40.5 * CELL_M
+    assert s.moved_m == pytest.approx(ground_m(COAST_X + 300.0, y, COAST_X - 50.0, y), abs=1e-3)
 
 
 def test_snap_refuses_bad_inputs(coast):
@@ -411,7 +425,7 @@ def test_times_uncertainty_band_and_windows(table_case):
     assert c["earliest_min"][1] == pytest.approx(12.857142857142858)
     np.testing.assert_allclose(c["energy_T600s_min"], [41.5, 14.0, np.nan, np.nan, 9.25])
     np.testing.assert_allclose(c["window_T600s_min"], [1.0, 0.5, np.nan, np.nan, 0.25])
-    assert c["moved_m"][:2] == [pytest.approx(350.0), 0.0]
+    assert c["moved_m"][:2] == [pytest.approx(350.0, rel=1e-3), 0.0]  # ground metres (UTM scale)
     assert c["depth_m"][:2] == [4000.0, 4000.0]
     # lon/lat are the site as given (UTM -> WGS84), not the cell it was moved to.
     lon, lat = Transformer.from_crs(UTM56S, "EPSG:4326", always_xy=True).transform(

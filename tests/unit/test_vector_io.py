@@ -176,8 +176,9 @@ def test_shapefile_set(tmp_path: Path) -> None:
     info = pyogrio.read_info(tmp_path / "iso_bands.shp")
     assert info["features"] == 3
     # Cut to the 10-character Shapefile limit, the same way shapefile_field_name says.
-    assert list(info["fields"]) == ["min_minute", "max_minute", "label"]
-    assert shapefile_field_name("min_minutes") == "min_minute"
+    # ttmap's documented short names (SHAPEFILE_FIELD_NAMES), not blind cuts.
+    assert list(info["fields"]) == ["min_min", "max_min", "label"]
+    assert shapefile_field_name("min_minutes") == "min_min"
     _, _, _, fields = pyogrio.raw.read(tmp_path / "iso_bands.shp")
     assert_array_equal(fields[0], [0, 10, 20])
     assert CRS.from_user_input(info["crs"]) == CRS.from_epsg(32654)
@@ -377,3 +378,28 @@ def test_empty_layer_keeps_field_types(tmp_path: Path, name: str) -> None:
     assert info["ogr_types"][0] == "OFTReal"
     assert info["ogr_types"][1] in {"OFTInteger", "OFTInteger64"}
     assert info["ogr_types"][2] == "OFTString"
+
+
+def test_site_table_and_coast_columns_get_distinct_documented_shapefile_names():
+    """Every long column of the site table (two periods, clock times) and of the coast layer
+    gets a short name of at most 10 characters, all distinct (ESRI Shapefile limit: dBASE)."""
+    from pathlib import Path
+
+    from ttmap.io.vector import SHAPEFILE_FIELD_NAMES
+
+    site_cols = ["name", "lon", "lat", "status", "moved_m", "depth_m", "front_min", "earliest_min",
+                 "latest_min", "energy_T300s_min", "window_T300s_min", "energy_T1200s_min",
+                 "window_T1200s_min", "notification_delay_min", "minutes_left", "preparation_min",
+                 "safe_ground_distance_m", "walking_speed_m_s", "minutes_needed", "margin_min",
+                 "budget_status", "defaults_used", "front_utc", "earliest_utc", "latest_utc",
+                 "energy_T300s_utc", "energy_T1200s_utc", "scenario", "earliest_for_site"]
+    coast_cols = ["minutes", "minutes_max", "minutes_mean", "class_min", "class_max", "label",
+                  "reached", "n_edges"]
+    for cols in (site_cols, coast_cols):
+        short = [shapefile_field_name(c) for c in cols]
+        assert all(len(s.encode()) <= 10 for s in short), short
+        assert len({s.lower() for s in short}) == len(short), short
+    # Documented, name for name.
+    doc = (Path(__file__).resolve().parents[2] / "docs" / "shapefile-fields.md").read_text()
+    for long, short in SHAPEFILE_FIELD_NAMES.items():
+        assert f"`{long}` | `{short}`" in doc

@@ -36,7 +36,9 @@ def info(bathymetry: str, **opts: Any) -> None:
         f"cell size:     {dx:,.0f} m (x) x {dy:,.0f} m (y){' at mid-latitude' if d['geographic'] else ''}",
         f"wraps 360 deg: {'yes' if d['wraps_x'] else 'no'}"
         f"{' (duplicated seam column)' if d['has_seam_column'] else ''}",
-        f"water share:   {100.0 * d['water_share']:.1f} % ({d['water_cells']:,} cells); "
+        f"water share:   {100.0 * d['water_share']:.1f} % ({d['water_cells']:,} cells as solved"
+        + (f", incl. {d['diagonal_joins_opened']} diagonal join(s) opened" if d["diagonal_joins_opened"] else "")
+        + "); "
         f"nodata {100.0 * d['nodata_share']:.1f} %",
     ]
     if d["depth_range_m"] is not None:

@@ -165,6 +165,7 @@ def run_command(
     management decide.
     """
     from ttmap.products.cautions import CAUTION_SHORT
+    from ttmap.jobs.batch import BatchInterrupted
     from ttmap.jobs.scenario import run_scenario_file
     from ttmap.jobs.scenario_reciprocal import plan_table_method
 
@@ -203,7 +204,12 @@ def run_command(
                 command_line=shlex.join(["ttmap", *sys.argv[1:]]),
                 direct=direct,
                 report=not no_report,
+                dask_log=not rep.quiet,
             )
+        except BatchInterrupted as err:  # Ctrl-C: one line, what was kept, how to resume
+            progress.close()
+            click.echo(("" if rep.quiet else "\n") + f"ttmap: {err}", err=True)
+            ctx.exit(130)
         finally:
             progress.close()
         tasks = record["tasks"]

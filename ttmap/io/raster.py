@@ -774,8 +774,12 @@ def describe_bathymetry(bathy: Bathymetry) -> dict[str, Any]:
         ``crs``, ``crs_name``, ``rows``, ``cols``, ``cells``, ``bounds``
         (left, bottom, right, top), ``geographic``, ``wraps_x``,
         ``has_seam_column``, ``cell_size_m`` (row_m, col_m; at mid-latitude
-        for a geographic grid), ``water_cells``, ``water_share``,
-        ``nodata_share``, ``depth_range_m`` (shallowest and deepest water,
+        for a geographic grid), ``water_cells`` (as the solver sees them:
+        the cells with depth > 0 plus the land cells opened to close
+        diagonal-only joins, counted by the same
+        :func:`ttmap.connectivity.connect_water` the medium uses, so the
+        figure equals the run record's), ``diagonal_joins_opened``,
+        ``water_share``, ``nodata_share``, ``depth_range_m`` (shallowest and deepest water,
         None without water), ``max_land_height_m`` (None without land) and
         ``notes`` (changes made on reading).
     """
@@ -785,6 +789,10 @@ def describe_bathymetry(bathy: Bathymetry) -> dict[str, Any]:
     water = valid & (d > 0)
     land = valid & ~water
     row_m, col_m = g.cell_size_m()
+    from ttmap.connectivity import connect_water
+
+    opened = len(connect_water(water, ground=d, periodic_x=g.wraps_x).opened) if water.any() else 0
+    n_water = int(water.sum()) + opened
     n = int(d.size)
     return {
         "crs": g.crs.to_string(),
@@ -797,8 +805,9 @@ def describe_bathymetry(bathy: Bathymetry) -> dict[str, Any]:
         "wraps_x": bool(g.wraps_x),
         "has_seam_column": bool(g.has_seam_column),
         "cell_size_m": (float(row_m), float(col_m)),
-        "water_cells": int(water.sum()),
-        "water_share": float(water.sum()) / n if n else 0.0,
+        "water_cells": n_water,
+        "diagonal_joins_opened": opened,
+        "water_share": float(n_water) / n if n else 0.0,
         "nodata_share": float((~valid).sum()) / n if n else 0.0,
         "depth_range_m": (float(d[water].min()), float(d[water].max())) if water.any() else None,
         "max_land_height_m": float(-d[land].min()) if land.any() else None,

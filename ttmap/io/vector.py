@@ -46,6 +46,7 @@ if TYPE_CHECKING:
     from shapely.geometry.base import BaseGeometry
 
 __all__ = [
+    "SHAPEFILE_FIELD_NAMES",
     "VectorLayer",
     "write_vector_layers",
     "vector_output_paths",
@@ -324,20 +325,61 @@ def vector_driver(path: str | os.PathLike[str], driver: str | None = None) -> st
     return driver
 
 
+#: Fixed short names of ttmap's long column names in ESRI Shapefiles (10
+#: characters at most); documented in docs/shapefile-fields.md. Per-period
+#: columns follow patterns: ``energy_T{T}s_min`` -> ``e{T}s_min``,
+#: ``window_T{T}s_min`` -> ``w{T}s_min``, ``energy_T{T}s_utc`` -> ``e{T}s_utc``.
+SHAPEFILE_FIELD_NAMES: dict[str, str] = {
+    # coastal arrival layer
+    "minutes_max": "max_min",
+    "minutes_mean": "mean_min",
+    # isochrone bands
+    "min_minutes": "min_min",
+    "max_minutes": "max_min",
+    # site table
+    "earliest_min": "early_min",
+    "latest_min": "late_min",
+    "notification_delay_min": "delay_min",
+    "minutes_left": "left_min",
+    "preparation_min": "prep_min",
+    "safe_ground_distance_m": "safe_dist",
+    "walking_speed_m_s": "walk_m_s",
+    "minutes_needed": "need_min",
+    "margin_min": "margin_min",
+    "budget_status": "budget",
+    "defaults_used": "defaults",
+    "earliest_utc": "early_utc",
+    "latest_utc": "late_utc",
+    "earliest_for_site": "earliest",
+}
+_PERIOD_FIELD = re.compile(r"^(energy|window)_T([0-9p]+)s_(min|utc)$")
+
+
 def shapefile_field_name(name: str) -> str:
     """The name a column gets in an ESRI Shapefile: at most 10 bytes.
 
-    Names that fit are kept; longer ones are cut to their first 10 bytes
-    (whole UTF-8 characters only). A style file written for Shapefile output
-    must filter on this name.
+    Names that fit are kept; ttmap's own long names get the fixed short
+    names of :data:`SHAPEFILE_FIELD_NAMES` (and its per-period patterns);
+    any other longer name is cut to its first 10 bytes (whole UTF-8
+    characters only). A style file written for Shapefile output must filter
+    on this name.
 
     Examples
     --------
     >>> shapefile_field_name("min_minutes")
-    'min_minute'
-    >>> shapefile_field_name("label")
-    'label'
+    'min_min'
+    >>> shapefile_field_name("minutes_mean"), shapefile_field_name("energy_T600s_min")
+    ('mean_min', 'e600s_min')
+    >>> shapefile_field_name("label"), shapefile_field_name("some_long_name")
+    ('label', 'some_long_')
     """
+    if name in SHAPEFILE_FIELD_NAMES:
+        return SHAPEFILE_FIELD_NAMES[name]
+    m = _PERIOD_FIELD.match(name)
+    if m:
+        short = f"{m.group(1)[0]}{m.group(2)}s_{m.group(3)}"
+        if len(short) <= _SHAPEFILE_FIELD_CHARS:
+            return short
     encoded = name.encode("utf-8")[:_SHAPEFILE_FIELD_CHARS]
     return encoded.decode("utf-8", errors="ignore")
 

@@ -36,9 +36,13 @@ for later runs with the same spec.
 Files and resuming
 ------------------
 Task ``name`` writes ``arrival_<name>.tif`` (float32 minutes) and then, last,
-``<name>.task.json``: the task's *inputs* (task description, medium spec,
-bathymetry SHA-256, ttmap version, extra raster tags), their SHA-256 (also
-stored in the raster's ``TASK_INPUTS_SHA256`` tag), and the summary. Before
+``<name>.task.json``: the task's *inputs* - its content: source geometry,
+speed mode and period, limits, the medium spec with the bathymetry's SHA-256
+in place of its path, the ttmap version; never the scenario file's name, the
+source's label or extra raster tags - their SHA-256 (also stored in the
+raster's ``TASK_INPUTS_SHA256`` tag), and the summary. A renamed copy of a
+scenario file therefore resumes every finished task; when an input differs
+the message names it (:func:`inputs_difference`). Before
 anything runs, every task's existing outputs are classified:
 
 - both files present, recording the same inputs: complete; skipped when
@@ -68,7 +72,8 @@ import threading
 import time
 import warnings
 from collections import Counter, OrderedDict
-from collections.abc import Callable, Mapping, Sequence
+from collections.abc import Iterator, Callable, Mapping, Sequence
+from contextlib import contextmanager
 from dataclasses import dataclass
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
@@ -83,9 +88,12 @@ if TYPE_CHECKING:
     from ttmap.traveltime import Medium
 
 __all__ = [
+    "BatchInterrupted",
+    "DASK_LOGGERS",
     "TaskSummary",
     "map_calls",
     "medium_for_spec",
+    "inputs_difference",
     "run_tasks",
     "task_output_paths",
 ]
@@ -338,7 +346,7 @@ def _run_task(job: _Job) -> TaskSummary:
 
     task = job.task
     t0 = time.perf_counter()
-    base: dict[str, Any] = {"task": job.inputs["task"]}
+    base: dict[str, Any] = {"task": job.task.describe()}
     caught: list[warnings.WarningMessage] = []
     tif, rec_path = task_output_paths(task.name, job.out_dir)
     try:
@@ -380,6 +388,8 @@ def _run_task(job: _Job) -> TaskSummary:
         "ttmap_task_record": _RECORD_VERSION,
         "inputs": job.inputs,
         "inputs_sha256": job.inputs_sha256,
+        "raster_tags": job.extra_tags,
+        "bathymetry": job.spec.bathymetry,
         "raster": tif.name,
         "summary": summary,
         "warnings": list(warns),
@@ -437,15 +447,68 @@ def _absolute_spec(spec: MediumSpec) -> MediumSpec:
 
 
 def _task_inputs(task: SolveTask, spec: MediumSpec, sha: str | None, tags: dict[str, str]) -> dict[str, Any]:
+    """What identifies a finished task: its content, not where it was described.
+
+    The source geometry, speed model, period and limits; the medium spec with
+    the bathymetry's SHA-256 standing for its path; the ttmap version. Not the
+    scenario file's name or path, the source's label, the task's place in the
+    file or the extra raster tags, so a renamed copy of a scenario file resumes.
+    """
     import ttmap
 
+    described = task.describe()
+    described.pop("meta", None)
+    source = dict(described.get("source") or {})
+    source.pop("label", None)
+    described["source"] = source
+    medium = spec.describe()
+    if sha is not None:
+        medium.pop("bathymetry", None)  # the content (sha) identifies it, not the path
     return _canonical({
-        "task": task.describe(),
-        "medium": spec.describe(),
+        "task": described,
+        "medium": medium,
         "bathymetry_sha256": sha,
         "ttmap_version": ttmap.__version__,
-        "raster_tags": tags,
     })
+
+
+def _flatten(value: Any, prefix: str = "") -> dict[str, Any]:
+    if isinstance(value, Mapping):
+        out: dict[str, Any] = {}
+        for k, v in value.items():
+            out.update(_flatten(v, f"{prefix}.{k}" if prefix else str(k)))
+        return out
+    return {prefix: value}
+
+
+def _short(value: Any) -> str:
+    if isinstance(value, str) and re.fullmatch(r"[0-9a-f]{64}", value):
+        return value[:12] + ".."
+    text = json.dumps(value, default=_json_default) if not isinstance(value, str) else value
+    return text if len(text) <= 60 else text[:57] + "..."
+
+
+def inputs_difference(recorded: Any, now: Mapping[str, Any]) -> str:
+    """One line naming the first input that differs between a task record and this run.
+
+    Examples
+    --------
+    >>> inputs_difference({"bathymetry_sha256": "1a" * 32}, {"bathymetry_sha256": "3c" * 32})
+    'bathymetry SHA-256 differs: recorded 1a1a1a1a1a1a.., now 3c3c3c3c3c3c..'
+    >>> inputs_difference({"task": {"period_s": 300}}, {"task": {"period_s": 600}})
+    'task.period_s differs: recorded 300, now 600'
+    """
+    if not isinstance(recorded, Mapping):
+        return "the record holds no inputs"
+    old, new = _flatten(recorded), _flatten(now)
+    missing = object()
+    for key in [*new, *(k for k in old if k not in new)]:
+        a, b = old.get(key, missing), new.get(key, missing)
+        if a != b:
+            what = "bathymetry SHA-256" if key == "bathymetry_sha256" else key
+            return (f"{what} differs: recorded {'(absent)' if a is missing else _short(a)}, "
+                    f"now {'(absent)' if b is missing else _short(b)}")
+    return "recorded inputs differ"
 
 
 def _load_record(path: Path) -> dict[str, Any] | None:
@@ -468,7 +531,8 @@ def _raster_inputs_sha(path: Path) -> str | None:
 
 
 def _plan(
-    task: SolveTask, inputs_sha: str, out_dir: Path, *, resume: bool, overwrite: bool
+    task: SolveTask, inputs_sha: str, out_dir: Path, *, resume: bool, overwrite: bool,
+    inputs: Mapping[str, Any] | None = None,
 ) -> tuple[str, Any]:
     """("run", replace) | ("skip", record) | ("conflict", reason) for one task."""
     tif, rec_path = task_output_paths(task.name, out_dir)
@@ -489,7 +553,7 @@ def _plan(
     elif has_rec and rec is None:
         reason = f"{rec_path.name} is unreadable"
     elif has_rec and not rec_same:
-        reason = "recorded inputs differ"
+        reason = inputs_difference(rec.get("inputs") if rec else None, inputs or {})
     else:
         reason = f"{tif.name} was made from other inputs"
     return "conflict", reason
@@ -543,6 +607,7 @@ def run_tasks(
     resume: bool = True,
     progress: ProgressFn | None = None,
     tags: Mapping[str, Any] | None = None,
+    dask_log: bool = True,
 ) -> list[TaskSummary]:
     """Run independent solves and write one raster and one record per task.
 
@@ -572,8 +637,13 @@ def run_tasks(
         ``total`` is ``len(tasks)``.
     tags : mapping, optional
         Extra raster tags for every output (e.g. the scenario file name);
-        part of the recorded inputs, so keep them stable across resumed runs.
+        recorded, but not part of what identifies a finished task (a task
+        kept by a resumed run keeps the tags it was written with).
         ttmap's own tags take precedence over equal names.
+    dask_log : bool
+        Write the scheduler's and workers' log lines to ``dask.log`` in the
+        output folder (default); False sends them nowhere. They never reach
+        the terminal.
 
     Returns
     -------
@@ -588,6 +658,9 @@ def run_tasks(
     OutputExistsError
         Some tasks' outputs exist from other inputs (or ``resume`` is off)
         and ``overwrite`` is False; nothing has run.
+    BatchInterrupted
+        Ctrl-C (a :class:`KeyboardInterrupt`): finished tasks are kept; the
+        message says how many and how to resume.
 
     Notes
     -----
@@ -621,7 +694,7 @@ def run_tasks(
     for task in tasks:
         inputs = _task_inputs(task, spec, sha, extra_tags)
         inputs_sha = _digest(inputs)
-        action, detail = _plan(task, inputs_sha, out, resume=resume, overwrite=overwrite)
+        action, detail = _plan(task, inputs_sha, out, resume=resume, overwrite=overwrite, inputs=inputs)
         if action == "skip":
             results[task.name] = _skipped_summary(task, out, detail)
         elif action == "conflict":
@@ -657,28 +730,136 @@ def run_tasks(
         try:
             for job in jobs:
                 _finished(_run_task(job))
+        except KeyboardInterrupt:
+            raise BatchInterrupted(_kept_on_disk(tasks, out), total, str(out)) from None
         finally:
             _clear_cache()
     elif jobs:
-        _run_on_dask(jobs, executor, n_workers, _finished)
+        try:
+            _run_on_dask(jobs, executor, n_workers, _finished,
+                         out / "dask.log" if dask_log else None)
+        except KeyboardInterrupt:
+            raise BatchInterrupted(_kept_on_disk(tasks, out), total, str(out)) from None
     return [results[t.name] for t in tasks]
 
 
-def _run_on_dask(
-    jobs: list[_Job], executor: str, n_workers: int | None, finished: Callable[[TaskSummary], None]
-) -> None:
+def _kept_on_disk(tasks: Sequence[SolveTask], out: Path) -> int:
+    """Tasks whose raster and record are both in ``out``: what a resumed run keeps.
+
+    Counted on disk, not from the results gathered so far: a worker may have
+    finished (record written last) before its result reached this process.
+    """
+    return sum(1 for t in tasks if all(p.is_file() for p in task_output_paths(t.name, out)))
+
+
+#: Loggers of the Dask machinery (and the libraries under it) sent to ``dask.log``.
+DASK_LOGGERS: tuple[str, ...] = ("distributed", "dask", "tornado", "asyncio", "bokeh")
+
+
+class BatchInterrupted(KeyboardInterrupt):
+    """Ctrl-C during a run: one line with what was kept and how to resume."""
+
+    def __init__(self, finished: int, total: int, out_dir: str) -> None:
+        self.finished, self.total, self.out_dir = finished, total, out_dir
+        super().__init__(
+            f"interrupted: {finished} of {total} solves are finished and kept in {out_dir}; "
+            "run the same command again to resume (finished solves are kept, the rest are solved)"
+        )
+
+    def __str__(self) -> str:
+        return str(self.args[0])
+
+
+class _DaskLogs:
+    """Route the Dask loggers to a file in the output folder (or nowhere), for one run."""
+
+    def __init__(self, path: Path | None) -> None:
+        import logging
+
+        self.path = path
+        self.saved: list[tuple[Any, list[Any], int, bool]] = []
+        self.handler: Any = None
+        if path is not None:
+            path.parent.mkdir(parents=True, exist_ok=True)
+            self.handler = logging.FileHandler(path, encoding="utf-8")
+            self.handler.setFormatter(logging.Formatter("%(asctime)s %(name)s %(levelname)s %(message)s"))
+        for name in DASK_LOGGERS:
+            lg = logging.getLogger(name)
+            self.saved.append((lg, list(lg.handlers), lg.level, lg.propagate))
+            for h in list(lg.handlers):
+                lg.removeHandler(h)
+            lg.propagate = False
+            if self.handler is not None:
+                lg.addHandler(self.handler)
+        self.apply()
+
+    def apply(self) -> None:
+        """(Re)set the levels: Dask resets them when it starts a cluster."""
+        import logging
+
+        if self.handler is not None:
+            self.handler.setLevel(logging.INFO)  # LocalCluster(silence_logs=...) lowers it
+        for name in DASK_LOGGERS:
+            lg = logging.getLogger(name)
+            lg.setLevel(logging.INFO if self.handler is not None else logging.CRITICAL + 1)
+            for h in list(lg.handlers):
+                if h is not self.handler:
+                    lg.removeHandler(h)
+
+    def close(self) -> None:
+        for lg, handlers, level, propagate in self.saved:
+            for h in list(lg.handlers):
+                lg.removeHandler(h)
+            for h in handlers:
+                lg.addHandler(h)
+            lg.setLevel(level)
+            lg.propagate = propagate
+        if self.handler is not None:
+            self.handler.close()
+
+
+@contextmanager
+def _dask_client(
+    executor: str, n_workers: int | None, n_tasks: int, log_path: Path | None,
+) -> Iterator[tuple[Any, Any]]:
+    """``(distributed, client)`` for one run: a quiet local cluster or a scheduler address.
+
+    Dask's loggers go to ``log_path`` (or nowhere), never to the terminal; the
+    cluster is stopped on the way out, also after Ctrl-C.
+    """
+    import logging
+    import signal
+
+    import dask
+
     distributed = _import_distributed()
+    logs = _DaskLogs(log_path)
     cluster = None
     client = None
+    settings = dask.config.set({
+        "distributed.logging.distributed": "error",
+        "distributed.admin.tick.limit": "1h",  # no "event loop unresponsive" chatter during solves
+    })
     try:
         if executor == "local":
-            n = n_workers or max(1, min(os.cpu_count() or 1, len(jobs)))
-            # Loopback only; no dashboard; the scheduler's small HTTP endpoint on a free
-            # port (by default it would try 8787 and warn when another cluster has it).
-            cluster = distributed.LocalCluster(
-                n_workers=n, threads_per_worker=1, processes=True, dashboard_address=None,
-                host="127.0.0.1", scheduler_kwargs={"dashboard_address": "127.0.0.1:0"},
-            )
+            n = n_workers or max(1, min(os.cpu_count() or 1, n_tasks))
+            # Worker processes start with SIGINT ignored (a disposition inherited across exec,
+            # and kept by Python): Ctrl-C reaches only this process, which stops the cluster
+            # cleanly, instead of every worker printing its own traceback.
+            main_thread = threading.current_thread() is threading.main_thread()
+            old = signal.signal(signal.SIGINT, signal.SIG_IGN) if main_thread else None
+            try:
+                # Loopback only; no dashboard (so no web-proxy suggestion); the scheduler's
+                # small HTTP endpoint on a free port.
+                cluster = distributed.LocalCluster(
+                    n_workers=n, threads_per_worker=1, processes=True, dashboard_address=None,
+                    host="127.0.0.1", scheduler_kwargs={"dashboard_address": "127.0.0.1:0"},
+                    silence_logs=logging.CRITICAL,
+                )
+            finally:
+                if old is not None:
+                    signal.signal(signal.SIGINT, old)
+            logs.apply()
             client = distributed.Client(cluster)
         else:
             try:
@@ -688,6 +869,36 @@ def _run_on_dask(
                     f"cannot reach the Dask scheduler at {executor!r} ({_one_line(str(err))}); "
                     "start it (dask scheduler) and its workers, or use --executor local"
                 ) from err
+        yield distributed, client
+    finally:
+        # Stopping the cluster after Ctrl-C: a second Ctrl-C must not leave workers behind.
+        main_thread = threading.current_thread() is threading.main_thread()
+        old = signal.signal(signal.SIGINT, signal.SIG_IGN) if main_thread else None
+        try:
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore")
+                if client is not None:
+                    try:
+                        client.close(timeout=10)
+                    except Exception:  # noqa: BLE001 - closing after a failure: best effort
+                        pass
+                if cluster is not None:
+                    try:
+                        cluster.close(timeout=10)
+                    except Exception:  # noqa: BLE001
+                        pass
+        finally:
+            if old is not None:
+                signal.signal(signal.SIGINT, old)
+            settings.__exit__(None, None, None)
+            logs.close()
+
+
+def _run_on_dask(
+    jobs: list[_Job], executor: str, n_workers: int | None, finished: Callable[[TaskSummary], None],
+    log_path: Path | None = None,
+) -> None:
+    with _dask_client(executor, n_workers, len(jobs), log_path) as (distributed, client):
         token = hashlib.sha256(f"{time.time_ns()}-{os.getpid()}".encode()).hexdigest()[:10]
         futures = {}
         for i, job in enumerate(jobs):
@@ -704,18 +915,13 @@ def _run_on_dask(
             except Exception as err:  # the worker died, was lost, or could not unpickle
                 summary = TaskSummary(
                     name=job.task.name, ok=False, raster=None,
-                    summary={"task": job.inputs["task"]},
+                    summary={"task": job.task.describe()},
                     error=_one_line(
                         f"task {job.task.name}: the worker failed ({type(err).__name__}: {err}); "
                         "if it ran out of memory, crop or coarsen the grid or use fewer workers"
                     ),
                 )
             finished(summary)
-    finally:
-        if client is not None:
-            client.close()
-        if cluster is not None:
-            cluster.close()
 
 
 # ---------------------------------------------------------------------------
@@ -745,6 +951,7 @@ def map_calls(
     n_workers: int | None = None,
     progress: ProgressFn | None = None,
     names: Sequence[str] | None = None,
+    log_path: Path | None = None,
 ) -> list[Any]:
     """``[fn(item, shared) for item in items]``, serially or on Dask, in order.
 
@@ -765,6 +972,8 @@ def map_calls(
         ``progress(done, total, name)`` after each call.
     names : sequence of str, optional
         Names for ``progress`` (default ``"call <i>"``).
+    log_path : Path, optional
+        Where Dask's log lines go (default: nowhere; never the terminal).
     """
     problem = check_executor(executor)
     if problem:
@@ -784,24 +993,7 @@ def map_calls(
         finally:
             _clear_cache()
         return out
-    distributed = _import_distributed()
-    cluster = client = None
-    try:
-        if executor == "local":
-            n = n_workers or max(1, min(os.cpu_count() or 1, total))
-            cluster = distributed.LocalCluster(
-                n_workers=n, threads_per_worker=1, processes=True, dashboard_address=None,
-                host="127.0.0.1", scheduler_kwargs={"dashboard_address": "127.0.0.1:0"},
-            )
-            client = distributed.Client(cluster)
-        else:
-            try:
-                client = distributed.Client(executor, timeout=f"{CONNECT_TIMEOUT_S:g}s")
-            except (OSError, TimeoutError) as err:
-                raise InputDataError(
-                    f"cannot reach the Dask scheduler at {executor!r} ({_one_line(str(err))}); "
-                    "start it (dask scheduler) and its workers, or use --executor local"
-                ) from err
+    with _dask_client(executor, n_workers, total, log_path) as (distributed, client):
         shared_f = client.scatter(shared, broadcast=True) if shared is not None else None
         token = hashlib.sha256(f"{time.time_ns()}-{os.getpid()}".encode()).hexdigest()[:10]
         futures = [
@@ -825,8 +1017,3 @@ def map_calls(
         if errors:
             raise errors[min(errors)]
         return results
-    finally:
-        if client is not None:
-            client.close()
-        if cluster is not None:
-            cluster.close()

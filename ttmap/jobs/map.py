@@ -285,6 +285,7 @@ def run_map_job(job: MapJob, *, progress: Callable[[str], None] | None = None) -
     summaries: dict[str, Any] = {}
     kept: dict[str, TravelTimeResult] = {}  # results the site table needs
     front_depth_m: np.ndarray | None = None
+    front_water: tuple[np.ndarray, np.ndarray] | None = None  # (water, open water) for the site statuses
     for i, pset in enumerate(sets, 1):
         tag = f"[{i}/{len(sets)} {pset.key}]"
         t1 = time.perf_counter()
@@ -309,6 +310,7 @@ def run_map_job(job: MapJob, *, progress: Callable[[str], None] | None = None) -
         water = medium.water
         if sites is not None and pset.mode == "long-wave":
             front_depth_m = medium.depth_m
+            front_water = (medium.water, medium.open_water)
         del medium  # the speeds and labels are not needed for the products: free them first
         written += _write_products(job, pset, result, water, site_marks)
         del water
@@ -333,9 +335,10 @@ def run_map_job(job: MapJob, *, progress: Callable[[str], None] | None = None) -
     if sites is not None and job.sites is not None and job.sites.path is not None:
         t5 = time.perf_counter()
         say(f"site table and timeline for {len(sites)} site(s)")
-        files, site_block = _write_site_table(job, sites, sets, kept, front_depth_m, grid)
+        files, site_block = _write_site_table(job, sites, sets, kept, front_depth_m, grid, front_water)
         written += files
         kept.clear()
+        front_water = None
         timings["sites_s"] = time.perf_counter() - t5
         inputs["sites"] = file_entry(job.sites.path, layer=job.sites.layer, name_field=job.sites.name_field,
                                      crs=sites.crs.to_string(), count=len(sites))
@@ -419,6 +422,7 @@ def _write_site_table(
     kept: dict[str, TravelTimeResult],
     front_depth_m: np.ndarray | None,
     grid: Any,
+    front_water: tuple[np.ndarray, np.ndarray] | None = None,
 ) -> tuple[list[Path], dict[str, Any]]:
     """Snap the sites, build the table, write CSV, GeoPackage (GeoJSON) and the timeline."""
     from ttmap.io.atomic import atomic_output
@@ -435,7 +439,9 @@ def _write_site_table(
     front = kept["front"]
     periods = {float(s.period_s): kept[s.key] for s in sets
                if s.mode == "group" and s.key in kept and s.period_s is not None}
-    snapped = snap_sites(sites, grid, front, search_radius_m=opts.search_radius_m, depth_m=front_depth_m)
+    water, open_water = front_water if front_water is not None else (None, None)
+    snapped = snap_sites(sites, grid, front, search_radius_m=opts.search_radius_m, depth_m=front_depth_m,
+                         water=water, open_water=open_water)
     table = site_table(
         sites, snapped, front, periods,
         speed_uncertainty=opts.speed_uncertainty,

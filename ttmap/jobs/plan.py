@@ -22,7 +22,6 @@ from __future__ import annotations
 
 import os
 import re
-import unicodedata
 from collections.abc import Iterable, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -179,7 +178,8 @@ def site_table_names(out_dir: str | os.PathLike[str], *, vector_formats: Sequenc
 def site_file_stem(name: str) -> str:
     """A file-name-safe ASCII stem for a site name.
 
-    Accents are dropped, any run of other characters becomes ``_``.
+    Letters are transliterated (:func:`ttmap.io.names.ascii_name`: accents
+    dropped, ``Ø`` -> ``O``), any run of other characters becomes ``_``.
 
     Raises
     ------
@@ -190,8 +190,12 @@ def site_file_stem(name: str) -> str:
     --------
     >>> site_file_stem("Port Ōrua (north wharf)")
     'Port_Orua_north_wharf'
+    >>> site_file_stem("Ørnvik School")
+    'Ornvik_School'
     """
-    text = unicodedata.normalize("NFKD", str(name)).encode("ascii", "ignore").decode("ascii")
+    from ttmap.io.names import ascii_name
+
+    text = ascii_name(name)
     stem = re.sub(r"[^A-Za-z0-9-]+", "_", text).strip("_-")
     if not stem:
         raise InputDataError(

@@ -25,6 +25,7 @@ if TYPE_CHECKING:
 
 __all__ = [
     "run_scenario_file",
+    "scenario_site_options",
     "write_difference",
     "write_envelope",
     "write_sites_by_scenarios",
@@ -44,6 +45,7 @@ def run_scenario_file(
     validate_s: float | None = None,
     direct: bool = False,
     report: bool = True,
+    dask_log: bool = True,
 ) -> dict[str, Any]:
     """Solve every scenario of a file, then write the comparisons and ``run.json``.
 
@@ -72,7 +74,11 @@ def run_scenario_file(
         ``[outputs] table_method`` says (see
         :func:`ttmap.jobs.scenario_reciprocal.plan_table_method`).
     report : bool
-        Write ``report.html`` (rebuilt on every run, like the comparisons).
+        Write ``report.html`` (rebuilt on every run, like the comparisons);
+        ``[products] report = false`` in the file turns it off too.
+    dask_log : bool
+        Keep the Dask scheduler's log lines in ``dask.log`` in the output
+        folder (default); False drops them. They never reach the terminal.
 
     Returns
     -------
@@ -100,6 +106,8 @@ def run_scenario_file(
     if problem:
         raise InputDataError(problem)
     nw = n_workers if n_workers is not None else sf.outputs.workers
+    # the file's [products] report = false turns the report off as --no-report does
+    report = report and bool(dict(sf.product_options).get("report", True))
     from ttmap.jobs.checks import check_out_dir
 
     check_out_dir(out_dir if out_dir is not None else sf.outputs.folder)
@@ -141,6 +149,7 @@ def run_scenario_file(
         resume=resume,
         progress=raster_progress,
         tags={"SCENARIO_FILE": Path(sf.path).name},
+        dask_log=dask_log,
     )
     solve_s = time.perf_counter() - t0
 
@@ -158,6 +167,7 @@ def run_scenario_file(
         rec_env, reciprocal_sites, rec_info = run_reciprocal_products(
             sf, spec, out, plan, fronts=fronts, executor=ex, n_workers=nw,
             overwrite=derived_overwrite, progress=progress, progress_offset=len(tasks),
+            dask_log=dask_log,
         )
         if rec_env["files"] is not None:
             products["envelope"] = _product_paths(rec_env["files"])
@@ -318,6 +328,13 @@ def _scenario_record(
     )
 
 
+def scenario_site_options(sf: ScenarioFile) -> Any:
+    """The scenario file's ``[sites]`` table as the site option group the map job uses."""
+    from ttmap.jobs.options import SiteOptions
+
+    return SiteOptions(path=sf.sites_path, **dict(getattr(sf, "site_options", {}) or {}))
+
+
 def _write_sites_x_scenarios(
     sf: ScenarioFile,
     out: Path,
@@ -326,7 +343,8 @@ def _write_sites_x_scenarios(
     overwrite: bool,
 ) -> dict[str, Any]:
     """Sites by scenarios (CSV tables and chart) from the finished fronts; a summary for run.json."""
-    from ttmap.io.sites import read_sites
+    from ttmap.io.raster import read_bathymetry
+    from ttmap.traveltime import prepare_medium
 
     if sf.sites_path is None or not fronts:
         return {"path": sf.sites_path, "skipped": "no finished front to read the sites from"}
@@ -336,28 +354,49 @@ def _write_sites_x_scenarios(
             s = by_name.get(f"{name}_{sf.speed.period_speed}_T{p:g}s")
             if s is not None and s.ok and s.raster:
                 energy[(name, float(p))] = s.raster
+    opts = scenario_site_options(sf)
     try:
-        sites = read_sites(sf.sites_path)
+        sites = opts.read()
+        spec, _ = scenario_tasks(sf)
+        # The front's medium: depths at the cells read and the water masks behind the
+        # snapping status words, exactly as the map job has them.
+        bathy = read_bathymetry(spec.bathymetry, band=spec.band, depth_positive=spec.depth_positive,
+                                window=spec.window, window_crs=spec.window_crs, coarsen=spec.coarsen)
+        medium = prepare_medium(bathy.depth_m, bathy.grid, floor_depth_m=spec.floor_depth_m,
+                                far_field=spec.far_field, earth=spec.earth)  # type: ignore[arg-type]
+        del bathy
         written = write_sites_by_scenarios(
-            str(out), sites, dict(fronts), energy, overwrite=overwrite
+            str(out), sites, dict(fronts), energy, overwrite=overwrite,
+            search_radius_m=opts.search_radius_m,
+            notification_delay_min=opts.notification_delay_min,
+            preparation_min=opts.preparation_min,
+            walking_speed_m_s=opts.walking_speed_m_s,
+            little_margin_min=opts.little_margin_min,
+            speed_uncertainty=opts.speed_uncertainty,
+            origin_time_utc=opts.origin_time_utc,
+            depth_m=medium.depth_m, water=medium.water, open_water=medium.open_water,
         )
+        del medium
     except InputDataError as err:  # a bad site row must not lose the finished solves
         return {"path": sf.sites_path, "skipped": f"site table not written ({err})"}
     table = written.pop("table")
     first: dict[str, Any] = {}
     statuses: dict[str, str] = {}
     for site, sc, front, is_first, status in zip(
-        table["site"], table["scenario"], table["front_min"], table["earliest_for_site"],
+        table["name"], table["scenario"], table["front_min"], table["earliest_for_site"],
         table["status"], strict=True,
     ):
         statuses[site] = status
         if is_first and site not in first:
             first[site] = {"scenario": sc, "front_min": round(float(front), 3)}
+    from ttmap.jobs.options import options_record
+
     return {
         "path": sf.sites_path,
         "count": len(statuses),
         "scenarios": list(fronts),
         "periods_s": sorted({p for _, p in energy}),
+        "options": {k: v for k, v in options_record(opts).items() if k != "path"},
         "no_arrival": sorted(s for s in statuses if s not in first),
         "snap_status": {k: sum(1 for v in statuses.values() if v == k)
                         for k in dict.fromkeys(statuses.values())},
@@ -659,7 +698,8 @@ def write_sites_by_scenarios(
     first = earliest_by_site(table)
     table_notes, first_notes = sites_by_scenarios_notes(**options)
     decimals = {k: 2 for k in table if k.endswith("_min") or k.startswith("minutes_")}
-    decimals["moved_m"] = 0
+    decimals.update({"lon": 6, "lat": 6, "moved_m": 0, "depth_m": 1, "safe_ground_distance_m": 1,
+                     "walking_speed_m_s": 3})
     fig = render_sites_by_scenarios(table)
     write_sites_tables(
         targets,

@@ -357,6 +357,7 @@ def run_reciprocal_products(
     overwrite: bool,
     progress: Callable[[int, int, str], None] | None = None,
     progress_offset: int = 0,
+    dask_log: bool = True,
 ) -> tuple[dict[str, Any], dict[str, Any] | None, dict[str, Any]]:
     """Envelope (one solve, when planned) and the reciprocal sites x scenarios table.
 
@@ -420,14 +421,18 @@ def run_reciprocal_products(
         else:
             reach = front_medium.open_water  # docs/reciprocal.md: snapping without an envelope
 
-    from ttmap.io.sites import read_sites
-    from ttmap.products.sites import snap_sites
+    from ttmap.jobs.scenario import scenario_site_options
+    from ttmap.products.site_eval import snap_sites
 
+    # The same site options, snapping and status words as the direct path and the map job.
+    opts = scenario_site_options(sf)
     try:
-        sites = read_sites(sf.sites_path)
+        sites = opts.read()
     except InputDataError as err:
         return envelope, {"path": sf.sites_path, "skipped": f"site table not written ({err})"}, info
-    snapped = snap_sites(sites, front_medium.grid, reach, depth_m=front_medium.depth_m)
+    snapped = snap_sites(sites, front_medium.grid, reach, search_radius_m=opts.search_radius_m,
+                         depth_m=front_medium.depth_m, water=front_medium.water,
+                         open_water=front_medium.open_water)
     models: list[tuple[str, float | None]] = [("long-wave", None)]
     models += [(sf.speed.period_speed, float(p)) for p in sf.speed.periods_s]
     t0 = time.perf_counter()
@@ -457,7 +462,7 @@ def run_reciprocal_products(
     t0 = time.perf_counter()
     rows = map_calls(
         _site_row, items, starts, executor=executor, n_workers=n_workers, progress=prog,
-        names=names,
+        names=names, log_path=out / "dask.log" if dask_log else None,
     )
     for _ in range(skipped):
         tick("site not on water (no solve)")
@@ -494,6 +499,10 @@ def _write_table(
     """The site tables and chart (same files as the direct path), and the run.json summary."""
     import math as _m
 
+    from ttmap.jobs.scenario import scenario_site_options
+
+    opts = scenario_site_options(sf)
+
     from ttmap.io.atomic import check_writable
     from ttmap.io.compare import SITES_X_SCENARIOS_FILES, write_sites_tables
     from ttmap.products.compare import (
@@ -506,7 +515,12 @@ def _write_table(
 
     targets = [out / name for name in SITES_X_SCENARIOS_FILES]
     check_writable(targets, overwrite)
-    table = sites_by_scenarios_from_values(sites, snapped, front_at, energy_at)
+    table = sites_by_scenarios_from_values(
+        sites, snapped, front_at, energy_at,
+        notification_delay_min=opts.notification_delay_min, preparation_min=opts.preparation_min,
+        walking_speed_m_s=opts.walking_speed_m_s, little_margin_min=opts.little_margin_min,
+        speed_uncertainty=opts.speed_uncertainty, origin_time_utc=opts.origin_time_utc,
+    )
     first_t = earliest_by_site(table)
     base_notes, first_notes = sites_by_scenarios_notes()
     table_notes = [*base_notes, "arrivals by reciprocity: one solve per site and speed model "
@@ -524,7 +538,7 @@ def _write_table(
     first: dict[str, Any] = {}
     statuses: dict[str, str] = {}
     for site, sc, front, is_first, status in zip(
-        table["site"], table["scenario"], table["front_min"], table["earliest_for_site"],
+        table["name"], table["scenario"], table["front_min"], table["earliest_for_site"],
         table["status"], strict=True,
     ):
         statuses[site] = status

@@ -13,6 +13,8 @@ earliest time over all sites and the site reached first
 
 from __future__ import annotations
 
+import dataclasses
+
 import json
 import math
 import os
@@ -249,18 +251,41 @@ def run_site_map_job(job: SiteMapJob, *, progress: Callable[[str], None] | None 
     last = None
     created = False
     n = len(sites)
-    for i, site in enumerate(sites, 1):
+    # The one site evaluation places every site (the same cells and status words as the
+    # site tables): open water is what a solve from the site reaches.
+    from ttmap.products.site_eval import SNAP_MOVED, SNAP_OK, snap_sites
+
+    radius_m = job.sites.search_radius_m
+    placed = snap_sites(sites, grid, medium.open_water, search_radius_m=radius_m, depth_m=medium.depth_m,
+                        water=medium.water, open_water=medium.open_water)
+    for i, (site, snap) in enumerate(zip(sites, placed, strict=True), 1):
         tag = f"[{i}/{n} {site.name}]"
         t2 = time.perf_counter()
         say(f"{tag} solving from the site")
-        src = Source.point_xy(site.x, site.y, crs=sites.crs, label=site.name)
-        try:
-            result = site_centred_times(medium, src, name=site.name, snap_radius_m=job.sites.search_radius_m,
-                                        max_time_s=job.speed.max_time_s)
-        except SourceError as err:
-            skipped.append({"name": site.name, "reason": str(err)})
+        if snap.status == SNAP_OK:
+            src = Source.point_xy(site.x, site.y, crs=sites.crs, label=site.name)
+        elif snap.status == SNAP_MOVED:
+            src = Source.point_xy(snap.x, snap.y, crs=grid.crs, label=site.name)
+        else:
+            err = SourceError(
+                f"site {site.name!r}: {snap.status} (no open water within {radius_m / 1000.0:g} km); "
+                "move the site or enlarge the search radius (--site-search-radius-km)"
+            )
+            skipped.append({"name": site.name, "status": snap.status, "reason": str(err)})
             first_error = first_error or err
             continue
+        try:
+            result = site_centred_times(medium, src, name=site.name, snap_radius_m=radius_m,
+                                        max_time_s=job.speed.max_time_s)
+        except SourceError as err:
+            skipped.append({"name": site.name, "status": snap.status, "reason": str(err)})
+            first_error = first_error or err
+            continue
+        if snap.status == SNAP_MOVED:
+            result = dataclasses.replace(
+                result, summary=dataclasses.replace(result.summary, source_moved_m=snap.moved_m),
+                settings={**result.settings, "site_moved_m": snap.moved_m},
+            )
         t3 = time.perf_counter()
         if not created:
             out.mkdir(parents=True, exist_ok=True)
@@ -281,6 +306,7 @@ def run_site_map_job(job: SiteMapJob, *, progress: Callable[[str], None] | None 
             "x": site.x,
             "y": site.y,
             "crs": sites.crs.to_string(),
+            "status": snap.status,
             "solve_x": sm.source_x,
             "solve_y": sm.source_y,
             "moved_m": round(float(sm.source_moved_m), 1),

@@ -255,8 +255,17 @@ def sites_by_scenarios(
     preparation_min: float | None = None,
     walking_speed_m_s: float | None = None,
     little_margin_min: float | None = None,
+    speed_uncertainty: float | None = None,
+    origin_time_utc: Any = None,
+    depth_m: Any = None,
+    water: Any = None,
+    open_water: Any = None,
 ) -> dict[str, list[Any]]:
     """Arrival times and time budget of every site in every scenario.
+
+    Each scenario's rows come from the one site evaluation
+    (:func:`ttmap.products.site_eval.evaluate_sites`), so a site's row in a
+    one-scenario run equals its row in the map job's site table.
 
     Parameters
     ----------
@@ -271,29 +280,32 @@ def sites_by_scenarios(
     energy_fields : mapping of (scenario, period_s) to FieldLike, optional
         Energy arrivals, minutes; periods missing for a scenario give blanks.
     search_radius_m : float, optional
-        Snapping radius (default
+        Snapping radius, ground metres (default
         :data:`ttmap.defaults.SITE_SEARCH_RADIUS_M`).
     notification_delay_min, preparation_min, walking_speed_m_s : float, optional
-        Budget defaults where a site gives none (defaults of
-        :mod:`ttmap.products.budget`).
+        Budget defaults where a site gives none.
     little_margin_min : float, optional
-        Little-margin threshold (default
-        :data:`ttmap.defaults.LITTLE_MARGIN_MIN`).
+        Little-margin threshold (default :data:`ttmap.defaults.LITTLE_MARGIN_MIN`).
+    speed_uncertainty : float, optional
+        Stated +/- fraction of wave speed behind ``earliest_min`` and
+        ``latest_min`` (default :data:`ttmap.defaults.SPEED_UNCERTAINTY`).
+    origin_time_utc : datetime, optional
+        Adds UTC clock columns.
+    depth_m, water, open_water : ndarray of shape grid.shape, optional
+        The medium's depths and water masks (:class:`ttmap.traveltime.Medium`),
+        for the ``depth_m`` column and the precise snapping status words.
 
     Returns
     -------
     dict of str to list
         Ordered columns, one row per site and scenario (sites in file order,
-        scenarios in mapping order): ``site, scenario, status, moved_m,
-        front_min, energy_T{T}s_min`` (one per period), ``minutes_left,
-        minutes_needed, margin_min, budget_status, earliest_for_site``.
-        ``status``/``moved_m`` are the snapping of the site to the nearest
-        reached water cell of the envelope (the same cell for every
-        scenario). ``minutes_left = front_min - notification delay``;
-        ``minutes_needed = preparation + distance / walking speed`` (NaN
-        without a distance); ``margin_min`` their difference.
-        ``earliest_for_site`` is True for the scenario(s) whose front
-        reaches the site first (all of them on a tie).
+        scenarios in mapping order): ``name, scenario``, then the columns of
+        :func:`~ttmap.products.site_eval.evaluate_sites` after ``name``
+        (``minutes_left`` counts from ``earliest_min``), then
+        ``earliest_for_site``. Each site is read at one cell for every
+        scenario: the nearest reached water cell of the earliest-arrival
+        envelope. ``earliest_for_site`` is True for the scenario(s) whose
+        front reaches the site first (all of them on a tie).
 
     Raises
     ------
@@ -301,10 +313,9 @@ def sites_by_scenarios(
         No fronts, bad names, fields on different grids, an energy key of an
         unknown scenario, bad budget values.
     """
+    from ttmap.defaults import SITE_SEARCH_RADIUS_M, SPEED_UNCERTAINTY
     from ttmap.io.sites import SiteList
-    from ttmap.products import budget as _budget
-    from ttmap.products.sites import period_label, snap_sites
-    from ttmap.defaults import SITE_SEARCH_RADIUS_M
+    from ttmap.products.site_eval import evaluate_sites, site_values, snap_sites
 
     if not isinstance(sites, SiteList):
         raise InputDataError(
@@ -330,63 +341,66 @@ def sites_by_scenarios(
             periods.append(t)
     periods.sort()
     energy_by = {(str(sc), float(t)): v for (sc, t), v in energy.items()}
-
-    defaults = _budget_defaults(notification_delay_min, preparation_min, walking_speed_m_s)
-    little = LITTLE_MARGIN_MIN if little_margin_min is None else float(little_margin_min)
-    # Checks the defaults and the threshold once, with a clear message.
-    _budget.warning_budget(
-        None, defaults["notification_delay_min"], defaults["preparation_min"], None,
-        defaults["walking_speed_m_s"], little_margin_min=little,
-    )
+    options: dict[str, Any] = {
+        **_budget_defaults(notification_delay_min, preparation_min, walking_speed_m_s),
+        "little_margin_min": LITTLE_MARGIN_MIN if little_margin_min is None else float(little_margin_min),
+        "speed_uncertainty": SPEED_UNCERTAINTY if speed_uncertainty is None else float(speed_uncertainty),
+        "origin_time_utc": origin_time_utc,
+    }
+    # Checks every option once, with a clear message, before any field is read.
+    n_sites = len(sites)
+    evaluate_sites(sites, _nowhere(sites), [math.nan] * n_sites, **options)
 
     # 1. Envelope, one field at a time.
     g = grid
     earliest, _ = envelope(_load_field(front_fields[n], g, f"front of {n}") for n in names)
     radius = SITE_SEARCH_RADIUS_M if search_radius_m is None else float(search_radius_m)
-    snapped = snap_sites(sites, g, np.isfinite(earliest), search_radius_m=radius)
+    snapped = snap_sites(sites, g, np.isfinite(earliest), search_radius_m=radius,
+                         depth_m=depth_m, water=water, open_water=open_water)
     del earliest
 
     # 2. Values at the snapped cells, one field at a time.
-    def _values(field: FieldLike, what: str) -> list[float]:
-        arr = _load_field(field, g, what)
-        return [float(arr[s.row, s.col]) if s.row >= 0 else math.nan for s in snapped]
+    def _values(field: FieldLike, what: str) -> NDArray[np.floating[Any]]:
+        return site_values(_load_field(field, g, what), snapped)
 
     front_at = {n: _values(front_fields[n], f"front of {n}") for n in names}
-    energy_at: dict[tuple[str, float], list[float]] = {}
-    for (sc, t), field in energy_by.items():
-        energy_at[(sc, t)] = _values(field, f"energy of {sc}, T = {t:g} s")
-    return sites_by_scenarios_from_values(
-        sites, snapped, front_at, energy_at, notification_delay_min=notification_delay_min,
-        preparation_min=preparation_min, walking_speed_m_s=walking_speed_m_s,
-        little_margin_min=little_margin_min,
-    )
+    energy_at: dict[tuple[str, float], NDArray[np.floating[Any]]] = {}
+    for (sc, t), fld in energy_by.items():
+        energy_at[(sc, t)] = _values(fld, f"energy of {sc}, T = {t:g} s")
+    return sites_by_scenarios_from_values(sites, snapped, front_at, energy_at, **options)
 
 
 def sites_by_scenarios_from_values(
     sites: Any,
     snapped: Sequence[Any],
-    front_at: Mapping[str, Sequence[float]],
-    energy_at: Mapping[tuple[str, float], Sequence[float]] | None = None,
+    front_at: Mapping[str, ArrayLike],
+    energy_at: Mapping[tuple[str, float], ArrayLike] | None = None,
     *,
     notification_delay_min: float | None = None,
     preparation_min: float | None = None,
     walking_speed_m_s: float | None = None,
     little_margin_min: float | None = None,
+    speed_uncertainty: float | None = None,
+    origin_time_utc: Any = None,
 ) -> dict[str, list[Any]]:
     """The rows of :func:`sites_by_scenarios` from values already read at the sites.
+
+    Every scenario's rows come from the one site evaluation
+    (:func:`ttmap.products.site_eval.evaluate_sites`), whichever way the
+    values were obtained: read from rasters at the snapped cells (direct
+    path) or reduced from site-centred solves (:mod:`ttmap.reciprocal`).
 
     Parameters
     ----------
     sites : SiteList
     snapped : sequence of SnappedSite
-        One per site (:func:`ttmap.products.sites.snap_sites`), in site order.
-    front_at : mapping of scenario name to sequence of float, minutes
-        Front arrival of each scenario at each site (NaN: no arrival), in
-        site order; e.g. read from rasters at the snapped cells, or a row of
-        the reciprocal table (:mod:`ttmap.reciprocal`).
-    energy_at : mapping of (scenario, period_s) to sequence of float, optional
+        One per site (:func:`ttmap.products.site_eval.snap_sites`), in site order.
+    front_at : mapping of scenario name to array of shape (n_sites,), minutes
+        Front arrival of each scenario at each site (NaN: no arrival).
+    energy_at : mapping of (scenario, period_s) to array of shape (n_sites,), optional
         Energy arrivals, minutes, in site order.
-    notification_delay_min, preparation_min, walking_speed_m_s, little_margin_min
+    notification_delay_min, preparation_min, walking_speed_m_s, little_margin_min,
+    speed_uncertainty, origin_time_utc
         As for :func:`sites_by_scenarios`.
 
     Returns
@@ -394,62 +408,56 @@ def sites_by_scenarios_from_values(
     dict of str to list
         The columns of :func:`sites_by_scenarios`.
     """
-    from ttmap.products import budget as _budget
-    from ttmap.products.sites import period_label
+    from ttmap.defaults import SPEED_UNCERTAINTY
+    from ttmap.products.site_eval import evaluate_sites
 
     names = check_scenario_names(list(front_at), "scenario")
-    if len(snapped) != len(sites):
-        raise InputDataError(f"{len(snapped)} snapped cells for {len(sites)} sites; give one per site")
-    for n in names:
-        if len(front_at[n]) != len(sites):
-            raise InputDataError(
-                f"{len(front_at[n])} front values for scenario {n!r} but {len(sites)} sites"
-            )
-    energy_at = {(str(sc), float(t)): v for (sc, t), v in (energy_at or {}).items()}
-    periods = sorted({t for _, t in energy_at})
-    defaults = _budget_defaults(notification_delay_min, preparation_min, walking_speed_m_s)
-    little = LITTLE_MARGIN_MIN if little_margin_min is None else float(little_margin_min)
-    _budget.warning_budget(
-        None, defaults["notification_delay_min"], defaults["preparation_min"], None,
-        defaults["walking_speed_m_s"], little_margin_min=little,
-    )
-    labels = [period_label(t) for t in periods]
-    cols: dict[str, list[Any]] = {k: [] for k in ("site", "scenario", "status", "moved_m", "front_min")}
-    for lab in labels:
-        cols[f"energy_T{lab}s_min"] = []
-    for k in ("minutes_left", "minutes_needed", "margin_min", "budget_status", "earliest_for_site"):
-        cols[k] = []
-    for i, (site, snap) in enumerate(zip(sites, snapped, strict=True)):
-        fronts_here = [float(front_at[n][i]) for n in names]
-        finite = [f for f in fronts_here if math.isfinite(f)]
-        first = min(finite) if finite else math.nan
-        values = {
-            k: defaults[k] if getattr(site, k) is None else float(getattr(site, k))
-            for k in defaults
-        }
-        for n, front in zip(names, fronts_here, strict=True):
-            b = _budget.warning_budget(
-                front if math.isfinite(front) else None,
-                values["notification_delay_min"],
-                values["preparation_min"],
-                site.safe_ground_distance_m,
-                values["walking_speed_m_s"],
-                little_margin_min=little,
-            )
-            cols["site"].append(site.name)
+    if not names:
+        raise InputDataError("no front arrival values were given; pass at least one scenario")
+    n_sites = len(sites)
+    if len(snapped) != n_sites:
+        raise InputDataError(f"{len(snapped)} snapped cells for {n_sites} sites; give one per site")
+    fronts = np.vstack([np.asarray(front_at[n], dtype=np.float64).reshape(-1) for n in names])
+    if fronts.shape[1] != n_sites:
+        raise InputDataError(f"{fronts.shape[1]} front values per scenario but {n_sites} sites")
+    energy = {(str(sc), float(t)): np.asarray(v, dtype=np.float64)
+              for (sc, t), v in (energy_at or {}).items()}
+    periods = sorted({t for _, t in energy})
+    options: dict[str, Any] = {
+        **_budget_defaults(notification_delay_min, preparation_min, walking_speed_m_s),
+        "little_margin_min": LITTLE_MARGIN_MIN if little_margin_min is None else float(little_margin_min),
+        "speed_uncertainty": SPEED_UNCERTAINTY if speed_uncertainty is None else float(speed_uncertainty),
+        "origin_time_utc": origin_time_utc,
+    }
+    blank = np.full(n_sites, np.nan)
+    tables = {
+        n: evaluate_sites(
+            sites, snapped, fronts[j], {t: energy.get((n, t), blank) for t in periods}, **options,
+        ).columns
+        for j, n in enumerate(names)
+    }
+    keys = [k for k in tables[names[0]] if k != "name"]
+    cols: dict[str, list[Any]] = {"name": [], "scenario": [], **{k: [] for k in keys},
+                                  "earliest_for_site": []}
+    with np.errstate(invalid="ignore"):
+        first = np.nanmin(np.where(np.isfinite(fronts), fronts, np.inf), axis=0)
+    for i, site_name in enumerate(sites.names):
+        for j, n in enumerate(names):
+            cols["name"].append(site_name)
             cols["scenario"].append(n)
-            cols["status"].append(snap.status)
-            cols["moved_m"].append(snap.moved_m)
-            cols["front_min"].append(front)
-            for lab, t in zip(labels, periods, strict=True):
-                got = energy_at.get((n, t))
-                cols[f"energy_T{lab}s_min"].append(float(got[i]) if got is not None else math.nan)
-            cols["minutes_left"].append(b.minutes_left)
-            cols["minutes_needed"].append(b.minutes_needed)
-            cols["margin_min"].append(b.margin_min)
-            cols["budget_status"].append(b.status)
-            cols["earliest_for_site"].append(bool(math.isfinite(front) and front == first))
+            for k in keys:
+                cols[k].append(tables[n][k][i])
+            f = float(fronts[j, i])
+            cols["earliest_for_site"].append(bool(math.isfinite(f) and f == float(first[i])))
     return cols
+
+
+def _nowhere(sites: Any) -> list[Any]:
+    """Every site unsnapped (to check the options before any field is read)."""
+    from ttmap.products.site_eval import SNAP_OUTSIDE, SnappedSite
+
+    return [SnappedSite(n, SNAP_OUTSIDE, -1, -1, math.nan, math.nan, math.nan, math.nan)
+            for n in sites.names]
 
 
 def earliest_by_site(table: Mapping[str, Sequence[Any]]) -> dict[str, list[Any]]:
@@ -463,26 +471,26 @@ def earliest_by_site(table: Mapping[str, Sequence[Any]]) -> dict[str, list[Any]]
     Returns
     -------
     dict of str to list
-        ``site`` (first-seen order), ``earliest_scenario`` (names joined by
+        ``name`` (first-seen order), ``earliest_scenario`` (names joined by
         ``;`` on a tie; empty when no scenario arrives), ``front_min`` (NaN
         when none arrives).
 
     Examples
     --------
-    >>> t = {"site": ["A", "A", "B", "B"], "scenario": ["x", "y", "x", "y"],
+    >>> t = {"name": ["A", "A", "B", "B"], "scenario": ["x", "y", "x", "y"],
     ...      "front_min": [30.0, 20.0, float("nan"), float("nan")],
     ...      "earliest_for_site": [False, True, False, False]}
     >>> earliest_by_site(t)
-    {'site': ['A', 'B'], 'earliest_scenario': ['y', ''], 'front_min': [20.0, nan]}
+    {'name': ['A', 'B'], 'earliest_scenario': ['y', ''], 'front_min': [20.0, nan]}
     """
-    out: dict[str, list[Any]] = {"site": [], "earliest_scenario": [], "front_min": []}
+    out: dict[str, list[Any]] = {"name": [], "earliest_scenario": [], "front_min": []}
     where: dict[str, int] = {}
     for site, sc, front, first in zip(
-        table["site"], table["scenario"], table["front_min"], table["earliest_for_site"], strict=True
+        table["name"], table["scenario"], table["front_min"], table["earliest_for_site"], strict=True
     ):
         if site not in where:
-            where[site] = len(out["site"])
-            out["site"].append(site)
+            where[site] = len(out["name"])
+            out["name"].append(site)
             out["earliest_scenario"].append("")
             out["front_min"].append(math.nan)
         if first:
@@ -498,37 +506,43 @@ def sites_by_scenarios_notes(
     notification_delay_min: float | None = None,
     preparation_min: float | None = None,
     walking_speed_m_s: float | None = None,
+    speed_uncertainty: float | None = None,
     **_ignored: Any,
 ) -> tuple[tuple[str, str], tuple[str, str]]:
     """The comment lines above the two site tables: the caution, then what the columns mean.
 
     Parameters
     ----------
-    notification_delay_min, preparation_min, walking_speed_m_s : float, optional
-        The budget defaults given to :func:`sites_by_scenarios` (None: the
-        defaults of :mod:`ttmap.defaults`); other options are ignored.
+    notification_delay_min, preparation_min, walking_speed_m_s, speed_uncertainty : float, optional
+        The options given to :func:`sites_by_scenarios` (None: the defaults
+        of :mod:`ttmap.defaults`); other options are ignored.
 
     Returns
     -------
     table_notes, earliest_notes : (str, str)
         For the sites-by-scenarios table and the earliest-by-site table.
     """
+    from ttmap.defaults import SPEED_UNCERTAINTY
     from ttmap.products.cautions import CAUTION_SHORT
+    from ttmap.products.site_eval import MARGIN_RULE
 
     d = _budget_defaults(notification_delay_min, preparation_min, walking_speed_m_s)
+    u = SPEED_UNCERTAINTY if speed_uncertainty is None else float(speed_uncertainty)
     note = (
-        "One row per site and scenario; times in minutes after origin, distances in metres. "
-        "Each site is read at one cell for every scenario: the nearest water cell reached in the "
-        "earliest-arrival envelope. minutes_left = front_min - notification delay; "
-        "minutes_needed = preparation + distance / walking speed; margin_min = minutes_left - "
-        "minutes_needed (no speed-uncertainty band). Defaults where a site gives none: "
+        "One row per site and scenario, the same columns as the map job's site table; times in "
+        "minutes after the earthquake (origin time), distances in metres. Each site is read at "
+        "one cell for every scenario: the nearest water cell reached in the earliest-arrival "
+        f"envelope. earliest_min/latest_min = front_min / (1 +/- {u:g}); "
+        + MARGIN_RULE.format(pct=100 * u)
+        + "; minutes_needed = preparation + distance / walking speed; margin_min = minutes_left "
+        "- minutes_needed. Defaults where a site gives none: "
         f"notification delay {d['notification_delay_min']:g} min, "
         f"preparation {d['preparation_min']:g} min, walking speed {d['walking_speed_m_s']:g} m/s. "
         "Margins are planning figures, not promises."
     )
     first = (
         "earliest_scenario: the scenario whose front reaches the site first "
-        "(';' between ties); front_min: minutes after origin"
+        "(';' between ties); front_min: minutes after the earthquake"
     )
     return (CAUTION_SHORT, note), (CAUTION_SHORT, first)
 
@@ -564,7 +578,7 @@ def render_sites_by_scenarios(
     from ttmap.products.cautions import CAUTION_SHORT
 
     caution = CAUTION_SHORT if caution is None else caution
-    sites_col = [str(s) for s in table["site"]]
+    sites_col = [str(s) for s in table["name"]]
     scen_col = [str(s) for s in table["scenario"]]
     if not sites_col:
         raise InputDataError("the site table has no rows; nothing to chart")

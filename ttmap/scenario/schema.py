@@ -22,10 +22,11 @@ of arrays are counted from 1 in messages)::
 
     [speed]                         # optional
     floor_depth_m = 5.0
-    far_field = false               # far-field slowdown (off by default)
+    far_field_correction = false    # far-field slowdown (off by default; also far_field)
     earth = "wgs84"                 # or "sphere"
     periods_s = [600]               # wave periods for energy arrivals
     period_speed = "group"          # or "phase"
+    max_time_h = 6                  # default limit of every scenario (a scenario's own wins)
 
     [[scenario]]                    # any number
     name = "north-point"            # letters, digits, _ - . ; unique
@@ -44,8 +45,25 @@ of arrays are counted from 1 in messages)::
     scaling_law = "strasser2010-interface"   # default
     max_time_h, snap_radius_km      # optional, as for [[scenario]]
 
-    [sites]                         # optional; checked and recorded in run.json
+    [sites]                         # optional; the sites-by-scenarios table
     path = "sites.csv"              # CSV with name, lon, lat (or a vector file of points)
+    search_radius_km = 2            # read a site at reached water within this ground distance
+    notification_delay_min = 10     # defaults for sites that give none ...
+    preparation_min = 3
+    walking_speed_m_s = 0.74
+    little_margin_min = 5
+    speed_uncertainty_pct = 5       # +/- wave speed behind earliest_min / latest_min
+    origin_time = "2026-03-01T03:12:00Z"   # adds UTC clock times
+    name_field = "name"             # column of the names
+    layer = "towns"                 # layer of a multi-layer vector file
+    crs = "EPSG:32759"              # CRS of x,y columns
+
+    [products]                      # optional; the map job's product options
+    isochrone_interval_min = 10
+    vector_formats = ["gpkg"]       # gpkg, shp, geojson
+    map_formats = ["png"]           # png, pdf; [] for none
+    coast = true
+    coast_interval_min = 10
 
     [outputs]                       # optional
     folder = "out"                  # default: <file stem>_out beside the file
@@ -55,6 +73,13 @@ of arrays are counted from 1 in messages)::
     workers = 4
     table_method = "auto"           # sites x scenarios and envelope: "auto", "reciprocal", "direct"
     scenario_rasters = true         # false: no raster per scenario (table and envelope only)
+
+The keys of ``[speed]``, ``[sites]`` and ``[products]`` are the command
+line's options without the leading dashes and the ``site-``/``sites-`` prefix
+(``--site-search-radius-km`` is ``search_radius_km``, ``--sites-layer`` is
+``layer``, ``--vector-format`` is ``vector_formats``): :data:`OPTION_KEYS`
+maps each to the field of the option group it fills (a test checks that they
+match the groups of :mod:`ttmap.jobs.options` field by field).
 
 The rectangles of a ``[[trench]]`` are centred on the polyline, each
 ``spacing_km`` (geodesic, WGS84) from the one before, as many as fit, with
@@ -68,7 +93,7 @@ from __future__ import annotations
 
 import re
 from collections.abc import Mapping, Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import Any
 
 from ttmap.defaults import FLOOR_DEPTH_M
@@ -77,6 +102,7 @@ from ttmap.sources import Source
 
 __all__ = [
     "NAME_PATTERN",
+    "OPTION_KEYS",
     "RUPTURE_KEYS",
     "SECTION_KEYS",
     "SOURCE_FORMS",
@@ -95,7 +121,10 @@ __all__ = [
 #: Keys allowed in each top-level table (``scenario`` and ``trench`` are arrays of tables).
 SECTION_KEYS: Mapping[str, tuple[str, ...]] = {
     "bathymetry": ("path", "band", "depth_positive", "crop_lonlat", "crop_xy", "coarsen", "nodata"),
-    "speed": ("floor_depth_m", "far_field", "earth", "periods_s", "period_speed"),
+    "speed": (
+        "floor_depth_m", "far_field_correction", "far_field", "earth", "periods_s", "period_speed",
+        "max_time_h",
+    ),
     "scenario": (
         "name",
         "point",
@@ -114,13 +143,51 @@ SECTION_KEYS: Mapping[str, tuple[str, ...]] = {
         "max_time_h",
         "snap_radius_km",
     ),
-    "sites": ("path",),
+    "sites": (
+        "path", "search_radius_km", "notification_delay_min", "preparation_min",
+        "walking_speed_m_s", "little_margin_min", "speed_uncertainty_pct", "origin_time",
+        "name_field", "layer", "crs",
+    ),
+    "products": (
+        "isochrone_interval_min", "vector_formats", "map_formats", "coast", "coast_interval_min",
+        "report",
+    ),
     "outputs": (
         "folder", "compare", "envelope", "executor", "workers", "table_method", "scenario_rasters",
     ),
 }
 #: Values of ``[outputs] table_method`` (docs/reciprocal.md).
 TABLE_METHODS: tuple[str, ...] = ("auto", "reciprocal", "direct")
+#: ``[table] key`` -> (option group, field, factor): the field's value is the
+#: key's value times the factor (km -> m: 1000, % -> fraction: 0.01, h -> s:
+#: 3600). The option groups are those of :mod:`ttmap.jobs.options`
+#: (``ReadingOptions`` is ``[bathymetry]``, with its own crop keys).
+OPTION_KEYS: Mapping[tuple[str, str], tuple[str, str, float]] = {
+    ("speed", "floor_depth_m"): ("SpeedOptions", "floor_depth_m", 1.0),
+    ("speed", "far_field_correction"): ("SpeedOptions", "far_field", 1.0),
+    ("speed", "far_field"): ("SpeedOptions", "far_field", 1.0),
+    ("speed", "earth"): ("SpeedOptions", "earth", 1.0),
+    ("speed", "periods_s"): ("SpeedOptions", "periods_s", 1.0),
+    ("speed", "period_speed"): ("SpeedOptions", "period_speed", 1.0),
+    ("speed", "max_time_h"): ("SpeedOptions", "max_time_s", 3600.0),
+    ("sites", "path"): ("SiteOptions", "path", 1.0),
+    ("sites", "search_radius_km"): ("SiteOptions", "search_radius_m", 1000.0),
+    ("sites", "notification_delay_min"): ("SiteOptions", "notification_delay_min", 1.0),
+    ("sites", "preparation_min"): ("SiteOptions", "preparation_min", 1.0),
+    ("sites", "walking_speed_m_s"): ("SiteOptions", "walking_speed_m_s", 1.0),
+    ("sites", "little_margin_min"): ("SiteOptions", "little_margin_min", 1.0),
+    ("sites", "speed_uncertainty_pct"): ("SiteOptions", "speed_uncertainty", 0.01),
+    ("sites", "origin_time"): ("SiteOptions", "origin_time_utc", 1.0),
+    ("sites", "name_field"): ("SiteOptions", "name_field", 1.0),
+    ("sites", "layer"): ("SiteOptions", "layer", 1.0),
+    ("sites", "crs"): ("SiteOptions", "crs", 1.0),
+    ("products", "isochrone_interval_min"): ("ProductOptions", "isochrone_interval_min", 1.0),
+    ("products", "vector_formats"): ("ProductOptions", "vector_formats", 1.0),
+    ("products", "map_formats"): ("ProductOptions", "map_formats", 1.0),
+    ("products", "coast"): ("ProductOptions", "coast", 1.0),
+    ("products", "coast_interval_min"): ("ProductOptions", "coast_interval_min", 1.0),
+    ("products", "report"): ("ProductOptions", "report", 1.0),
+}
 #: Keys of a scenario's ``rupture`` table.
 RUPTURE_KEYS: tuple[str, ...] = (
     "centre",
@@ -193,6 +260,7 @@ class SpeedSettings:
     earth: str = "wgs84"
     periods_s: tuple[float, ...] = ()
     period_speed: str = "group"
+    max_time_s: float | None = None
 
 
 @dataclass(frozen=True)
@@ -309,6 +377,11 @@ class ScenarioFile:
         Written-out scenarios first, in file order, then each trench's.
     sites_path : str or None
         Absolute path of the site file.
+    site_options : dict
+        The other ``[sites]`` keys given, as ``SiteOptions`` field values
+        (SI; see :data:`OPTION_KEYS`).
+    product_options : dict
+        The ``[products]`` keys given, as ``ProductOptions`` field values.
     """
 
     path: str
@@ -321,6 +394,8 @@ class ScenarioFile:
     sites_count: int | None
     outputs: OutputSettings
     grid: GridInfo
+    site_options: Mapping[str, Any] = field(default_factory=dict)
+    product_options: Mapping[str, Any] = field(default_factory=dict)
 
     @property
     def solve_count(self) -> int:

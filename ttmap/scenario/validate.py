@@ -17,6 +17,7 @@ through :func:`ttmap.io.sites.read_sites`, and source files through
 
 from __future__ import annotations
 
+import dataclasses
 import difflib
 import hashlib
 import math
@@ -32,18 +33,22 @@ from ttmap.defaults import (
     EARTH_MODELS,
     EXECUTORS,
     FLOOR_DEPTH_M,
+    MAP_FORMATS,
+    MAX_NOTIFICATION_DELAY_MIN,
     MAX_PERIOD_S,
     MAX_TIME_LIMIT_S,
     MAX_TRENCH_RUPTURES,
     MIN_PERIOD_S,
     PERIOD_SPEEDS,
     SCALING_RELATION,
+    VECTOR_FORMATS,
 )
 from ttmap.errors import InputDataError, TtmapError
 from ttmap.physics.scaling import MW_MAX, MW_MIN, SCALING_RELATIONS, rupture_size_km
 from ttmap.scenario.locator import KeyPath, format_key_path, locate_keys
 from ttmap.scenario.schema import (
     NAME_PATTERN,
+    OPTION_KEYS,
     RUPTURE_KEYS,
     SECTION_KEYS,
     SOURCE_FORMS,
@@ -195,7 +200,10 @@ class _Loader:
             self.err(p, f"{key} = {v:g} must be greater than 0; give a positive value")
             return None
         if (lo is not None and f < lo) or (hi is not None and f > hi):
-            self.err(p, f"{key} = {v:g} is outside {lo:g} to {hi:g}; give a value in that range")
+            rng = (f"below {lo:g}; give {lo:g} or more" if hi is None
+                   else f"above {hi:g}; give {hi:g} or less" if lo is None
+                   else f"outside {lo:g} to {hi:g}; give a value in that range")
+            self.err(p, f"{key} = {v:g} is {rng}")
             return None
         return f
 
@@ -540,7 +548,12 @@ class _Loader:
         tbl = self.table(data, "speed", path, required=False) or {}
         self.known_keys(tbl, SECTION_KEYS["speed"], path)
         floor = self.number(tbl, "floor_depth_m", path, positive=True)
-        far = self.boolean(tbl, "far_field", path, False)
+        if "far_field" in tbl and "far_field_correction" in tbl:
+            self.err(path + ("far_field",), "give far_field_correction or far_field, not both "
+                     "(far_field_correction is the command line's name)")
+        far = self.boolean(tbl, "far_field_correction" if "far_field_correction" in tbl else "far_field",
+                           path, False)
+        max_h = self.number(tbl, "max_time_h", path, positive=True)
         earth = self.text(tbl, "earth", path, choices=EARTH_MODELS)
         mode = self.text(tbl, "period_speed", path, choices=PERIOD_SPEEDS)
         periods: list[float] = []
@@ -584,6 +597,7 @@ class _Loader:
             earth=earth or "wgs84",
             periods_s=tuple(periods),
             period_speed=mode or "group",
+            max_time_s=None if max_h is None else max_h * 3600.0,
         )
 
     def common_limits(
@@ -893,23 +907,94 @@ class _Loader:
         )
         return spec, specs
 
-    def sites(self, data: Mapping[str, Any]) -> tuple[str | None, int | None]:
+    def sites(self, data: Mapping[str, Any]) -> tuple[str | None, int | None, dict[str, Any]]:
         path: KeyPath = ("sites",)
         tbl = self.table(data, "sites", path, required=False)
         if tbl is None:
-            return None, None
+            return None, None, {}
         self.known_keys(tbl, SECTION_KEYS["sites"], path)
+        opts: dict[str, Any] = {}
+        numbers = {
+            "search_radius_km": {"lo": 0.0},
+            "notification_delay_min": {"lo": 0.0, "hi": MAX_NOTIFICATION_DELAY_MIN},
+            "preparation_min": {"lo": 0.0},
+            "walking_speed_m_s": {"positive": True},
+            "little_margin_min": {"lo": 0.0},
+            "speed_uncertainty_pct": {"lo": 0.0, "hi": 99.0},
+        }
+        for key, bounds in numbers.items():
+            v = self.number(tbl, key, path, **bounds)  # type: ignore[arg-type]
+            if v is not None:
+                _, fld, factor = OPTION_KEYS[("sites", key)]
+                opts[fld] = v * factor
+        for key in ("name_field", "layer", "crs"):
+            t = self.text(tbl, key, path)
+            if t is not None:
+                opts[OPTION_KEYS[("sites", key)][1]] = t
+        if "crs" in opts:
+            from pyproj import CRS
+            from pyproj.exceptions import CRSError
+
+            try:
+                CRS.from_user_input(opts["crs"])
+            except CRSError:
+                self.err(path + ("crs",), f"crs {opts['crs']!r} is not a CRS PROJ knows; give e.g. "
+                         '"EPSG:32759"')
+                del opts["crs"]
+        origin = self.text(tbl, "origin_time", path)
+        if origin is not None:
+            import datetime as _dt
+
+            when: _dt.datetime | None
+            try:
+                when = _dt.datetime.fromisoformat(origin.strip())
+            except ValueError:
+                when = None
+            if when is None or when.tzinfo is None or when.utcoffset() is None:
+                self.err(path + ("origin_time",), f"origin_time = {origin!r} is not an ISO 8601 time "
+                         'with a zone; give e.g. "2026-03-01T03:12:00Z"')
+            else:
+                opts["origin_time_utc"] = when.astimezone(_dt.UTC)
         file = self.existing_file(tbl, "path", path, required=True, what="site file")
         if file is None:
-            return None, None
+            return None, None, opts
         from ttmap.io.sites import read_sites
 
         try:  # the reader of the run: what it refuses is refused here, and the reverse
-            sites = read_sites(file)
+            sites = read_sites(file, name_field=opts.get("name_field"), crs=opts.get("crs"),
+                               layer=opts.get("layer"))
         except TtmapError as err:
             self.err(path + ("path",), str(err))
-            return None, None
-        return file, len(sites)
+            return None, None, opts
+        return file, len(sites), opts
+
+    def products(self, data: Mapping[str, Any]) -> dict[str, Any]:
+        path: KeyPath = ("products",)
+        tbl = self.table(data, "products", path, required=False) or {}
+        self.known_keys(tbl, SECTION_KEYS["products"], path)
+        opts: dict[str, Any] = {}
+        for key in ("isochrone_interval_min", "coast_interval_min"):
+            v = self.number(tbl, key, path, positive=True)
+            if v is not None:
+                opts[key] = v
+        for key in ("coast", "report"):
+            if key in tbl:
+                opts[key] = self.boolean(tbl, key, path, True)
+        for key, choices in (("vector_formats", tuple(VECTOR_FORMATS)), ("map_formats", MAP_FORMATS)):
+            if key not in tbl:
+                continue
+            v = tbl[key]
+            if not (isinstance(v, list) and all(isinstance(x, str) for x in v)):
+                self.err(path + (key,), f'must be an array of format names, e.g. ["{choices[0]}"], '
+                         f"got {_describe(v)}")
+                continue
+            bad = [x for x in v if x not in choices]
+            if bad:
+                self.err(path + (key,), f"format {bad[0]!r} is unknown; choose from {', '.join(choices)}"
+                         + _suggest(bad[0], choices))
+                continue
+            opts[key] = tuple(v)
+        return opts
 
     def outputs(
         self, data: Mapping[str, Any], names: Sequence[str], unknown_prefixes: tuple[str, ...] = ()
@@ -1092,7 +1177,11 @@ def _load(path: str | os.PathLike[str]) -> tuple[ScenarioFile | None, list[Scena
         specs.extend(generated)
     if not scen_tables and not trench_tables:
         ld.err((), "no scenarios: add at least one [[scenario]] or [[trench]] table")
-    sites_path, sites_count = ld.sites(data)
+    sites_path, sites_count, site_options = ld.sites(data)
+    product_options = ld.products(data)
+    if speed.max_time_s is not None:  # the [speed] default limit, where a scenario has none
+        specs = [s if s.max_time_s is not None else dataclasses.replace(s, max_time_s=speed.max_time_s)
+                 for s in specs]
     outputs = ld.outputs(data, list(names_seen), tuple(failed_prefixes))
     if ld.issues or bathy is None or ld.grid_info is None:
         if not ld.issues:  # pragma: no cover - every path to None records an issue
@@ -1110,6 +1199,8 @@ def _load(path: str | os.PathLike[str]) -> tuple[ScenarioFile | None, list[Scena
         sites_count=sites_count,
         outputs=outputs,
         grid=ld.grid_info,
+        site_options=site_options,
+        product_options=product_options,
     )
     return sf, []
 
