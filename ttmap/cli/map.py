@@ -232,7 +232,10 @@ def report_sites(rep: Any, sites: dict[str, Any]) -> None:
             continue
         moved = f" (read {s['moved_m']:.0f} m away)" if s["moved_m"] else ""
         if s.get("grid") not in (None, "basin"):
-            moved += f" [nest {s['grid']}]"
+            alone = s.get("basin_front_min")
+            diff = "" if alone is None else (f"; basin grid alone {alone:.1f} min, "
+                                             f"{s['front_min'] - alone:+.1f} min")
+            moved += f" [nest {s['grid']}{diff}]"
         margin = "" if s["margin_min"] is None else f", margin {s['margin_min']:+.1f} min"
         rep.stage(f"  {name}  front {s['front_min']:.1f} min{moved}{margin}: {s['budget_status']}")
     rep.stage("margins are planning figures, not promises; strong or long shaking is itself the warning")
