@@ -349,7 +349,8 @@ def run_map_job(job: MapJob, *, progress: Callable[[str], None] | None = None) -
         solved_nests = _solve_nests(job, pset, result, nests, say, tag) if nests else {}
         if pset.mode == "long-wave" and job.writes_wave_paths():
             routes = _trace_routes(job, sites, result, solved_nests)
-        written += _write_products(job, pset, result, water, site_marks, routes)
+        written += _write_products(job, pset, result, water, site_marks, routes,
+                                   nest_outlines=_nest_outlines(nests, grid))
         del water
         for nname, nres in solved_nests.items():
             from ttmap.jobs.nests import as_travel_time
@@ -585,6 +586,13 @@ def _with_sign_hint(err: SourceError, job: MapJob, depth_m: np.ndarray) -> Sourc
     return SourceError(f"{err}; note {100.0 * land_share:.0f} % of the grid reads as land: {hint}")
 
 
+def _nest_outlines(nests: list[Any], grid: Any) -> list[np.ndarray]:
+    """Each nest's outline in the basin's CRS, drawn dashed on the basin's maps."""
+    from ttmap.nesting import nest_footprint
+
+    return [np.asarray(nest_footprint(n.grid, grid).exterior.coords) for n in nests]
+
+
 def _nest_path(nests: list[Any], name: str) -> str:
     """The raster path of nest ``name`` (titles and tags of its products)."""
     return next(str(n.path) for n in nests if n.name == name)
@@ -652,7 +660,8 @@ def _routes_in(routes: Sequence[Any], from_crs: Any, grid: Any) -> list[np.ndarr
 def _write_products(job: MapJob, pset: ProductSet, result: TravelTimeResult, water: np.ndarray,
                     site_marks: Sequence[tuple[str, float, float]] | None = None,
                     routes: Sequence[Any] = (), routes_crs: Any = None,
-                    bathymetry_path: str | None = None) -> list[Path]:
+                    bathymetry_path: str | None = None,
+                    nest_outlines: Sequence[np.ndarray] = ()) -> list[Path]:
     from ttmap.io.atomic import atomic_output
     from ttmap.io.raster import write_arrival_geotiff
     from ttmap.jobs.layers import arrival_levels, isochrone_layers, write_arrival_style, write_isochrones
@@ -718,6 +727,8 @@ def _write_products(job: MapJob, pset: ProductSet, result: TravelTimeResult, wat
             from ttmap.products.maps import draw_wave_paths
 
             draw_wave_paths(fig.axes[0], _routes_in(routes, routes_crs or grid.crs, grid))
+        for outline in nest_outlines:  # where the nests are, on the basin's maps
+            fig.axes[0].plot(outline[:, 0], outline[:, 1], color="#1a1a1a", lw=0.8, ls="--", zorder=5)
         try:
             for target in names.maps.values():
                 with atomic_output(target, overwrite=job.overwrite) as tmp:
