@@ -234,6 +234,12 @@ def _style_demo(out: Path) -> dict[str, Any]:
                              "feature_class": [None if v is None or not np.isfinite(v) else float(v)
                                                for v in cols["class_min"]],
                              "class_values": [c[0] for c in classes]}
+    paths = out / "wave_paths.gpkg"  # the first wave's routes (a line layer, no label column of its own)
+    if paths.exists():
+        write_gpkg_layer_style(paths, "wave_paths", lines_qml(title="Wave paths", label_attribute="name"),
+                               sld_text=(out / "wave_paths.sld").read_text(encoding="utf-8"))
+        expect["wave_paths"] = {"kind": "vector", "uri": f"{paths}|layername=wave_paths",
+                                "renderer": "singleSymbol", "classes": 1, "label_field": "name"}
     sites = out / "sites.gpkg"
     write_gpkg_layer_style(sites, "sites", sites_qml(title="Sites"))
     status = _read_columns(sites, "sites", ["budget_status"])["budget_status"]
