@@ -278,7 +278,8 @@ def _expect_vectors(path: Path) -> dict[str, dict[str, Any]]:
         stem = _isochrone_stem(path) if "_isochrone_" in path.stem else path.stem
         layer = ("isochrone_bands" if path.stem.endswith("_isochrone_bands") else
                  "isochrone_lines" if path.stem.endswith("_isochrone_lines") else
-                 "sites" if path.stem == "sites" else COAST_LAYER_NAME)
+                 "sites" if path.stem == "sites" else
+                 "wave_paths" if path.stem == "wave_paths" else COAST_LAYER_NAME)
         out[path.name] = _expect_layer(str(path), path, None, stem=stem, layer_kind=layer)
     return out
 
@@ -300,6 +301,8 @@ def _expect_layer(uri: str, path: Path, layer: str | None, *, stem: str, layer_k
                 "colors": [r[2] for r in classes] + [r[2] for r in rules if r[0] is None],
                 "class_values": [r[0] for r in classes],
                 "feature_class": [None if v is None or not np.isfinite(v) else float(v) for v in cols["class_min"]]}
+    if kind == "wave_paths":  # the first wave's routes: one line symbol, labelled by site name
+        return {"kind": "vector", "uri": uri, "renderer": "singleSymbol", "classes": 1, "label_field": "name"}
     if kind == "sites":
         status = _read_columns(path, layer, ["budget_status"])["budget_status"]
         return {"kind": "vector", "uri": uri, "renderer": "categorizedSymbol",

@@ -22,7 +22,9 @@ def demo(ctx: click.Context, out_dir: str, overwrite: bool, no_report: bool) -> 
     """Run the main job on the bundled demo bathymetry of an invented coast.
 
     Writes the arrival products of an invented earthquake, the site table
-    and timeline chart of the invented towns, the coastal arrival layer, and
+    and timeline chart of the invented towns, the coastal arrival layer, a
+    nested fine grid of the invented harbour of Saltmarrow Bay (its town read
+    in the harbour, not offshore), the wave paths to every town, and
     the site-centred map of the first town (in site_maps/), each with its
     report.html and layers that open styled in QGIS. The region, its
     towns and the earthquake are invented for demonstration; do not use any

@@ -15,6 +15,7 @@ from ttmap.cli.options import (
     bathymetry_options,
     option_default,
     pair_callback,
+    parse_pair,
     period_speed_option,
     positive_callback,
     product_options,
@@ -77,6 +78,14 @@ def build_source(opts: dict[str, Any]) -> Any:
     return Source.rupture(lon, lat, strike_deg=strike, length_km=opts["length_km"], width_km=opts["width_km"])
 
 
+def _pairs_callback(ctx: click.Context, param: click.Parameter, value: Any) -> Any:
+    """Repeated LON,LAT pairs."""
+    try:
+        return tuple(parse_pair(v, ("LON", "LAT")) for v in value or ())
+    except ValueError as err:
+        raise click.BadParameter(str(err), ctx=ctx, param=param) from None
+
+
 def _scaling_keys() -> list[str]:
     from ttmap.physics.scaling import SCALING_RELATIONS
 
@@ -114,6 +123,14 @@ def _scaling_keys() -> list[str]:
 @click.option("--coast-interval-min", type=float, default=option_default("coast_interval_min"), show_default=True,
               callback=positive_callback, help="Width of the coastal arrival classes, minutes.")
 @site_table_options
+@click.option("--nest", "nests", type=click.Path(dir_okay=False), multiple=True, metavar="PATH",
+              help="A finer raster inside the basin raster (any CRS, read like the basin); repeat for "
+                   "several (they must not overlap). Each is solved from the basin's times on its edge; "
+                   "sites inside it are read on it.")
+@click.option("--wave-paths/--no-wave-paths", default=True, show_default=True,
+              help="Write the first wave's route to each site (wave_paths.gpkg) and draw it on the maps.")
+@click.option("--path-from", metavar="LON,LAT", multiple=True, callback=_pairs_callback,
+              help="Also trace the first wave's route to this point; repeat for several.")
 @bathymetry_options
 @click.option("--out", "out_dir", type=OutputFolder(), default="ttmap_out", show_default=True,
               help="Output folder.")
@@ -173,6 +190,9 @@ def job_from_options(bathymetry: str, opts: dict[str, Any]) -> Any:
         source_snap_radius_m=None if opts.get("snap_radius_km") is None else opts["snap_radius_km"] * 1000.0,
         overwrite=opts.get("overwrite", False),
         command_line=shlex.join(["ttmap", *sys.argv[1:]]),
+        nests=tuple(opts.get("nests") or ()),
+        wave_paths=opts.get("wave_paths", True),
+        path_from=tuple(opts.get("path_from") or ()),
     )
 
 
@@ -189,6 +209,13 @@ def report_map(rep: Any, result: Any) -> None:
         )
         if s.get("source_moved_m"):
             rep.notice(f"the source was moved {s['source_moved_m'] / 1000:.2f} km to open water")
+    for n in result.record.get("nests", []):
+        front: dict[str, Any] = n["summary"].get("front") or next(iter(n["summary"].values()), {})
+        rng = front.get("boundary_time_min_range")
+        span = f", edge times {rng[0]:.1f}-{rng[1]:.1f} min" if rng else ""
+        rep.stage(f"nest {n['name']}: {n['grid']['shape']['rows']} x {n['grid']['shape']['cols']} cells, "
+                  f"{front.get('boundary_cells', 0)} edge cells from the basin{span}, "
+                  f"{front.get('cells_reached', 0)} cells reached")
     if result.sites:
         report_sites(rep, result.sites)
     rep.stage(f"{len(result.products)} files written to {result.out_dir} (run record: {result.record_path.name})")
@@ -206,6 +233,11 @@ def report_sites(rep: Any, sites: dict[str, Any]) -> None:
             rep.stage(f"  {name}  no arrival computed ({s['status']})")
             continue
         moved = f" (read {s['moved_m']:.0f} m away)" if s["moved_m"] else ""
+        if s.get("grid") not in (None, "basin"):
+            alone = s.get("basin_front_min")
+            diff = "" if alone is None else (f"; basin grid alone {alone:.1f} min, "
+                                             f"{s['front_min'] - alone:+.1f} min")
+            moved += f" [nest {s['grid']}{diff}]"
         margin = "" if s["margin_min"] is None else f", margin {s['margin_min']:+.1f} min"
         rep.stage(f"  {name}  front {s['front_min']:.1f} min{moved}{margin}: {s['budget_status']}")
     rep.stage("margins are planning figures, not promises; strong or long shaking is itself the warning")

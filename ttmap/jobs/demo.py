@@ -37,11 +37,12 @@ DEMO_SITE_MAP_DIR: str = "site_maps"
 
 @dataclass(frozen=True)
 class DemoPaths:
-    """The demo files: folder, bathymetry GeoTIFF and site CSV."""
+    """The demo files: folder, bathymetry GeoTIFF, site CSV and the harbour nest."""
 
     folder: Path
     bathymetry: Path
     sites: Path
+    harbour: Path
 
 
 def demo_data_dir() -> Path:
@@ -69,12 +70,14 @@ def demo_data_dir() -> Path:
 def demo_paths() -> DemoPaths:
     """The demo's bathymetry and site file (see :func:`demo_data_dir`)."""
     folder = demo_data_dir()
-    return DemoPaths(folder, folder / "demo_bathymetry.tif", folder / "demo_sites.csv")
+    return DemoPaths(folder, folder / "demo_bathymetry.tif", folder / "demo_sites.csv",
+                     folder / "demo_harbour.tif")
 
 
 def demo_jobs(out_dir: str, *, overwrite: bool = False, command_line: str = "",
               report: bool = True) -> tuple[MapJob, SiteMapJob]:
-    """The demo's map job (front and 300 s energy, site table) and site-map job (first town).
+    """The demo's map job (front and 300 s energy, site table, the invented harbour nest of
+    Saltmarrow Bay, wave paths) and site-map job (first town).
 
     The site-map job writes into ``<out_dir>/site_maps``. Each writes its
     ``report.html`` unless ``report`` is False.
@@ -94,6 +97,7 @@ def demo_jobs(out_dir: str, *, overwrite: bool = False, command_line: str = "",
         overwrite=overwrite,
         command_line=command_line,
         timeline_title="Time budget at the invented demo towns (INVENTED coast, not a real place)",
+        nests=(str(paths.harbour),) if paths.harbour.is_file() else (),
     )
     towns = read_sites(paths.sites)
     site_job = SiteMapJob(

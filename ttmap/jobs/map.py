@@ -24,6 +24,13 @@ with sites (``MapJob.sites``), once for the run:
 - ``timeline.png`` (and .pdf when PDF is among the map formats): the time
   budget of every site against the wave's arrival;
 
+with nests (``MapJob.nests``, finer rasters inside the basin; see
+:mod:`ttmap.jobs.nests`), each set's products again per nest on the nest's
+own grid (``arrival_<set>_nest-<name>.tif`` ...), the site table read on the
+finest grid covering each site; with sites or ``path_from`` points and
+``wave_paths`` on, ``wave_paths.gpkg`` (layer ``wave_paths``) and
+``wave_paths.sld``, the routes drawn on the front maps;
+
 then ``run.json`` (:mod:`ttmap.jobs.record`). Every output is written under
 a temporary name and renamed when complete; existing outputs are refused
 up-front unless ``overwrite`` is set.
@@ -49,10 +56,12 @@ from ttmap.jobs.plan import (
     REPORT_NAME,
     RUN_RECORD_NAME,
     ProductSetNames,
+    nest_set_key,
     product_set_names,
     refuse_outputs_up_front,
     site_table_names,
     style_files,
+    wave_path_names,
 )
 
 if TYPE_CHECKING:
@@ -112,6 +121,14 @@ class MapJob:
         Stored in the run record.
     timeline_title : str, optional
         Title of the timeline chart (default names the source).
+    nests : tuple of str
+        Finer rasters inside the basin raster (any CRS), read with the same
+        options; each set is solved again on each nest from the basin's
+        times on its edge (:mod:`ttmap.jobs.nests`).
+    wave_paths : bool
+        Write the first wave's route to each site and ``path_from`` point.
+    path_from : tuple of (lon, lat)
+        More points to trace a route to (longitude, latitude degrees).
 
     Examples
     --------
@@ -133,8 +150,13 @@ class MapJob:
     overwrite: bool = False
     command_line: str = ""
     timeline_title: str | None = None
+    nests: tuple[str, ...] = ()
+    wave_paths: bool = True
+    path_from: tuple[tuple[float, float], ...] = ()
 
     def __post_init__(self) -> None:
+        object.__setattr__(self, "nests", tuple(str(p) for p in self.nests))
+        object.__setattr__(self, "path_from", tuple((float(a), float(b)) for a, b in self.path_from))
         if self.sites is not None and self.sites.path is None:
             raise InputDataError("the map job reads its sites from a file; give SiteOptions(path=...)")
 
@@ -152,6 +174,10 @@ class MapJob:
         if len(set(keys)) != len(keys):
             raise InputDataError(f"wave periods repeat ({', '.join(keys)}); give each period once")
         return sets
+
+    def writes_wave_paths(self) -> bool:
+        """True when the job writes the wave-path layer (routes need the front)."""
+        return self.wave_paths and self.front and (self.sites is not None or bool(self.path_from))
 
     def names(self, pset: ProductSet) -> ProductSetNames:
         """The file names of one product set."""
@@ -190,8 +216,14 @@ class MapJobResult:
 def planned_outputs(job: MapJob) -> list[Path]:
     """Every file the job will write, so existing ones are refused up-front."""
     paths: list[Path] = []
+    from ttmap.jobs.nests import nest_name
+
     for s in job.product_sets():
         paths += job.names(s).files()
+        for n in job.nests:
+            paths += job.names(ProductSet(nest_set_key(s.key, nest_name(n)), s.mode, s.period_s)).files()
+    if job.writes_wave_paths():
+        paths += wave_path_names(job.out_dir).files()
     if job.sites is not None:
         paths += site_table_names(job.out_dir, vector_formats=job.products.vector_formats,
                                   map_formats=job.products.map_formats).files()
@@ -202,7 +234,8 @@ def planned_outputs(job: MapJob) -> list[Path]:
     return paths
 
 
-def _tags(job: MapJob, pset: ProductSet, result: TravelTimeResult) -> dict[str, str]:
+def _tags(job: MapJob, pset: ProductSet, result: TravelTimeResult,
+          bathymetry_path: str | None = None) -> dict[str, str]:
     import ttmap
     from ttmap.products.cautions import CAUTION_SHORT
 
@@ -217,7 +250,8 @@ def _tags(job: MapJob, pset: ProductSet, result: TravelTimeResult) -> dict[str, 
         "FAR_FIELD_CORRECTION": "effective depth h(1-gh/cs^2), cs=1500 m/s" if job.speed.far_field else "none",
         "EARTH_MODEL": str(s.get("earth") or "projected grid (plane)"),
         "MAX_TIME_MIN": "" if job.speed.max_time_s is None else f"{job.speed.max_time_s / 60.0:g}",
-        "BATHYMETRY": os.path.basename(job.reading.path),
+        "BATHYMETRY": os.path.basename(bathymetry_path or job.reading.path),
+        **({"BASIN_BATHYMETRY": os.path.basename(job.reading.path)} if bathymetry_path else {}),
         "SOFTWARE": f"ttmap {ttmap.__version__}",
         "CAUTION": CAUTION_SHORT,
     }
@@ -278,8 +312,18 @@ def run_map_job(job: MapJob, *, progress: Callable[[str], None] | None = None) -
     bathy = job.reading.read()
     grid = bathy.grid
     check_memory(grid, earth=job.speed.earth)  # refuse, with the estimate, before a solve that cannot fit
+    nests = []
+    if job.nests:
+        from ttmap.jobs.nests import check_nest_layout, read_nests
+
+        say(f"reading {len(job.nests)} nest raster(s)")
+        nests = read_nests(job.nests, job.reading)
+        check_nest_layout(grid, nests, job.source)  # refuse a bad layout before any solve
     timings["read_s"] = time.perf_counter() - t0
     site_marks = _site_marks(sites, grid) if sites is not None else None
+    nest_kept: dict[str, dict[str, Any]] = {}  # set key -> nest name -> NestResult (site table)
+    nest_summaries: dict[str, dict[str, Any]] = {}
+    routes: list[Any] = []
 
     written: list[Path] = []
     summaries: dict[str, Any] = {}
@@ -312,8 +356,22 @@ def run_map_job(job: MapJob, *, progress: Callable[[str], None] | None = None) -
             front_depth_m = medium.depth_m
             front_water = (medium.water, medium.open_water)
         del medium  # the speeds and labels are not needed for the products: free them first
-        written += _write_products(job, pset, result, water, site_marks)
+        solved_nests = _solve_nests(job, pset, result, nests, say, tag) if nests else {}
+        if pset.mode == "long-wave" and job.writes_wave_paths():
+            routes = _trace_routes(job, sites, result, solved_nests)
+        written += _write_products(job, pset, result, water, site_marks, routes,
+                                   nest_outlines=_nest_outlines(nests, grid))
         del water
+        for nname, nres in solved_nests.items():
+            from ttmap.jobs.nests import as_travel_time
+
+            npset = ProductSet(nest_set_key(pset.key, nname), pset.mode, pset.period_s)
+            marks = _site_marks(sites, nres.grid) if sites is not None else None
+            written += _write_products(job, npset, as_travel_time(result, nres), nres.medium.water,
+                                       marks, routes, grid.crs, _nest_path(nests, nname))
+        nest_summaries[pset.key] = {k: v.summary.as_dict() for k, v in solved_nests.items()}
+        if sites is not None and pset.mode in ("long-wave", "group"):
+            nest_kept[pset.key] = solved_nests
         if sites is not None and pset.mode in ("long-wave", "group"):
             kept[pset.key] = result
         t4 = time.perf_counter()
@@ -335,17 +393,27 @@ def run_map_job(job: MapJob, *, progress: Callable[[str], None] | None = None) -
     if sites is not None and job.sites is not None and job.sites.path is not None:
         t5 = time.perf_counter()
         say(f"site table and timeline for {len(sites)} site(s)")
-        files, site_block = _write_site_table(job, sites, sets, kept, front_depth_m, grid, front_water)
+        files, site_block = _write_site_table(job, sites, sets, kept, front_depth_m, grid, front_water,
+                                              nest_kept)
         written += files
         kept.clear()
         front_water = None
         timings["sites_s"] = time.perf_counter() - t5
         inputs["sites"] = file_entry(job.sites.path, layer=job.sites.layer, name_field=job.sites.name_field,
                                      crs=sites.crs.to_string(), count=len(sites))
+    if routes:
+        written += _write_wave_paths(job, routes, grid)
     timings["total_s"] = time.perf_counter() - t0
     if job.products.report:
         written.append(out / REPORT_NAME)  # written from the record, just before run.json
     blocks: dict[str, Any] = {"product_sets": summaries}
+    if nests:
+        from ttmap.jobs.nests import nests_record
+
+        blocks["nests"] = nests_record(nests, nest_summaries)
+        for n in nests:
+            inputs[f"nest-{n.name}"] = file_entry(n.path, sha256=n.bathymetry.sha256, band=n.bathymetry.band,
+                                                  notes=list(n.bathymetry.notes))
     if site_block is not None:
         blocks["sites"] = site_block
     record = build_run_record(
@@ -383,6 +451,9 @@ def map_job_parameters(job: MapJob) -> dict[str, Any]:
         "speed": options_record(job.speed),
         "products": options_record(job.products),
         "sites": None if job.sites is None else options_record(job.sites),
+        "nests": list(job.nests),
+        "wave_paths": job.writes_wave_paths(),
+        "path_from": [list(p) for p in job.path_from],
         "overwrite": job.overwrite,
     }
 
@@ -423,6 +494,7 @@ def _write_site_table(
     front_depth_m: np.ndarray | None,
     grid: Any,
     front_water: tuple[np.ndarray, np.ndarray] | None = None,
+    nest_kept: dict[str, dict[str, Any]] | None = None,
 ) -> tuple[list[Path], dict[str, Any]]:
     """Snap the sites, build the table, write CSV, GeoPackage (GeoJSON) and the timeline."""
     from ttmap.io.atomic import atomic_output
@@ -440,10 +512,7 @@ def _write_site_table(
     periods = {float(s.period_s): kept[s.key] for s in sets
                if s.mode == "group" and s.key in kept and s.period_s is not None}
     water, open_water = front_water if front_water is not None else (None, None)
-    snapped = snap_sites(sites, grid, front, search_radius_m=opts.search_radius_m, depth_m=front_depth_m,
-                         water=water, open_water=open_water)
-    table = site_table(
-        sites, snapped, front, periods,
+    table_options: dict[str, Any] = dict(
         speed_uncertainty=opts.speed_uncertainty,
         origin_time_utc=opts.origin_time_utc,
         notification_delay_min=opts.notification_delay_min,
@@ -451,6 +520,17 @@ def _write_site_table(
         walking_speed_m_s=opts.walking_speed_m_s,
         little_margin_min=opts.little_margin_min,
     )
+    if nest_kept and nest_kept.get("front"):
+        from ttmap.jobs.nests import nested_site_table
+
+        table = nested_site_table(
+            sites, front, periods, front_depth_m, nest_kept["front"],
+            _nest_periods(sets, nest_kept), search_radius_m=opts.search_radius_m, **table_options,
+        )
+    else:
+        snapped = snap_sites(sites, grid, front, search_radius_m=opts.search_radius_m,
+                             depth_m=front_depth_m, water=water, open_water=open_water)
+        table = site_table(sites, snapped, front, periods, **table_options)
     # (cast: the writer's protocol declares settable attributes; SiteTable is frozen)
     written: list[Path] = [write_site_table_csv(names.csv, cast(Any, table), overwrite=job.overwrite)]
     layer = site_table_layer(table, name="sites")
@@ -474,6 +554,8 @@ def _write_site_table(
         {
             "name": cols["name"][i],
             "status": cols["status"][i],
+            **({"grid": cols["grid"][i], "basin_front_min": _finite_or_none(cols["basin_front_min"][i])}
+               if "grid" in cols else {}),
             "moved_m": _finite_or_none(cols["moved_m"][i]),
             "front_min": _finite_or_none(cols["front_min"][i]),
             "earliest_min": _finite_or_none(cols["earliest_min"][i]),
@@ -529,8 +611,86 @@ def _with_sign_hint(err: SourceError, job: MapJob, depth_m: np.ndarray) -> Sourc
     return SourceError(f"{err}; note {100.0 * land_share:.0f} % of the grid reads as land: {hint}")
 
 
+def _nest_outlines(nests: list[Any], grid: Any) -> list[np.ndarray]:
+    """Each nest's outline in the basin's CRS, drawn dashed on the basin's maps."""
+    from ttmap.nesting import nest_footprint
+
+    return [np.asarray(nest_footprint(n.grid, grid).exterior.coords) for n in nests]
+
+
+def _nest_path(nests: list[Any], name: str) -> str:
+    """The raster path of nest ``name`` (titles and tags of its products)."""
+    return next(str(n.path) for n in nests if n.name == name)
+
+
+def _nest_periods(sets: list[ProductSet], nest_kept: dict[str, dict[str, Any]]) -> dict[str, dict[float, Any]]:
+    """Nest name -> period -> the nest's group-speed result (the site table's energy columns)."""
+    out: dict[str, dict[float, Any]] = {}
+    for s in sets:
+        if s.mode == "group" and s.period_s is not None:
+            for name, res in nest_kept.get(s.key, {}).items():
+                out.setdefault(name, {})[float(s.period_s)] = res
+    return out
+
+
+def _solve_nests(job: MapJob, pset: ProductSet, result: TravelTimeResult, nests: list[Any],
+                 say: Callable[[str], None], tag: str) -> dict[str, Any]:
+    from ttmap.jobs.nests import solve_nests
+
+    say(f"{tag} solving {len(nests)} nest(s) from the basin times on their edges")
+    return solve_nests(result, nests, mode=pset.mode, period_s=pset.period_s, speed=job.speed)
+
+
+def _trace_routes(job: MapJob, sites: Any, front: TravelTimeResult, solved_nests: dict[str, Any]) -> list[Any]:
+    """The first wave's route to every site and ``path_from`` point, in the basin's CRS."""
+    from ttmap.io.sites import Site, SiteList
+    from ttmap.jobs.nests import trace_routes
+
+    radius = job.sites.search_radius_m if job.sites is not None else SiteOptions().search_radius_m
+    groups = [] if sites is None else [sites]
+    if job.path_from:
+        groups.append(SiteList(tuple(Site(f"point {k} ({lon:g}, {lat:g})", lon, lat)
+                                     for k, (lon, lat) in enumerate(job.path_from, 1))))
+    routes: list[Any] = []
+    for g in groups:
+        routes += trace_routes(g, front, solved_nests, earth=job.speed.earth, search_radius_m=radius)
+    return routes
+
+
+def _write_wave_paths(job: MapJob, routes: list[Any], grid: Any) -> list[Path]:
+    """``wave_paths.gpkg`` (layer ``wave_paths``, in the basin's CRS) and its SLD."""
+    from ttmap.jobs.layers import write_one_layer
+    from ttmap.products.paths import wave_path_layer, wave_paths_sld
+    from ttmap.products.styles import write_sld
+
+    from ttmap.jobs.styling import style_wave_paths
+
+    names = wave_path_names(job.out_dir)
+    written = [write_one_layer(names.gpkg, wave_path_layer(routes), grid.crs, job.overwrite)]
+    sld = wave_paths_sld()
+    write_sld(names.sld, sld, overwrite=job.overwrite)
+    written.append(names.sld)
+    style_wave_paths(names.gpkg, sld_text=sld)  # opens styled in QGIS (layer_styles)
+    return written
+
+
+def _routes_in(routes: Sequence[Any], from_crs: Any, grid: Any) -> list[np.ndarray]:
+    """Route coordinates carried into ``grid``'s CRS, for drawing."""
+    if not routes:
+        return []
+    if grid.crs == from_crs:
+        return [r.xy for r in routes]
+    from pyproj import Transformer
+
+    tr = Transformer.from_crs(from_crs, grid.crs, always_xy=True)
+    return [np.column_stack(tr.transform(r.xy[:, 0], r.xy[:, 1])) for r in routes]
+
+
 def _write_products(job: MapJob, pset: ProductSet, result: TravelTimeResult, water: np.ndarray,
-                    site_marks: Sequence[tuple[str, float, float]] | None = None) -> list[Path]:
+                    site_marks: Sequence[tuple[str, float, float]] | None = None,
+                    routes: Sequence[Any] = (), routes_crs: Any = None,
+                    bathymetry_path: str | None = None,
+                    nest_outlines: Sequence[np.ndarray] = ()) -> list[Path]:
     from ttmap.io.atomic import atomic_output
     from ttmap.io.raster import write_arrival_geotiff
     from ttmap.jobs.layers import arrival_levels, isochrone_layers, write_arrival_style, write_isochrones
@@ -549,7 +709,7 @@ def _write_products(job: MapJob, pset: ProductSet, result: TravelTimeResult, wat
     # depend on the timing; an error in the GeoTIFF is raised here.
     with ThreadPoolExecutor(max_workers=1, thread_name_prefix="ttmap-geotiff") as pool:
         tif_done = pool.submit(
-            write_arrival_geotiff, names.arrival_tif, time_min, grid, tags=_tags(job, pset, result),
+            write_arrival_geotiff, names.arrival_tif, time_min, grid, tags=_tags(job, pset, result, bathymetry_path),
             band_description=f"arrival time of the {pset.title}, minutes after origin",
             overwrite=job.overwrite,
         )
@@ -591,9 +751,16 @@ def _write_products(job: MapJob, pset: ProductSet, result: TravelTimeResult, wat
             time_min, grid.transform, land_mask=~water, lines=lines, source_geometry=src_geom,
             sites=site_marks or None,
             title=f"Tsunami arrival time: {pset.title}",
-            subtitle=f"Source: {job.source.label}  |  bathymetry: {os.path.basename(job.reading.path)}",
+            subtitle=f"Source: {job.source.label}  |  bathymetry: "
+                     f"{os.path.basename(bathymetry_path or job.reading.path)}",
             is_geographic=grid.is_geographic,
         )
+        if routes and pset.mode == "long-wave":
+            from ttmap.products.maps import draw_wave_paths
+
+            draw_wave_paths(fig.axes[0], _routes_in(routes, routes_crs or grid.crs, grid))
+        for outline in nest_outlines:  # where the nests are, on the basin's maps
+            fig.axes[0].plot(outline[:, 0], outline[:, 1], color="#1a1a1a", lw=0.8, ls="--", zorder=5)
         try:
             for target in names.maps.values():
                 with atomic_output(target, overwrite=job.overwrite) as tmp:

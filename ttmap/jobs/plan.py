@@ -38,6 +38,9 @@ __all__ = [
     "SiteNames",
     "CombinedNames",
     "SiteTableNames",
+    "WavePathNames",
+    "nest_set_key",
+    "wave_path_names",
     "product_set_names",
     "site_table_names",
     "site_names",
@@ -173,6 +176,36 @@ def site_table_names(out_dir: str | os.PathLike[str], *, vector_formats: Sequenc
     if "pdf" in map_formats:
         timelines["pdf"] = out / "timeline.pdf"
     return SiteTableNames(out / "sites.csv", tuple(layers), timelines)
+
+
+def nest_set_key(key: str, nest_name: str) -> str:
+    """The product-set key of one nest's products (its files: ``arrival_<key>.tif``, ...).
+
+    >>> nest_set_key("front", "harbour")
+    'front_nest-harbour'
+    """
+    return f"{key}_nest-{nest_name}"
+
+
+@dataclass(frozen=True)
+class WavePathNames:
+    """The wave-path layer (one GeoPackage, layer ``wave_paths``) and its SLD."""
+
+    gpkg: Path
+    sld: Path
+
+    def files(self) -> list[Path]:
+        return [self.gpkg, self.sld]
+
+
+def wave_path_names(out_dir: str | os.PathLike[str]) -> WavePathNames:
+    """Names of the wave-path files.
+
+    >>> [p.name for p in wave_path_names("out").files()]
+    ['wave_paths.gpkg', 'wave_paths.sld']
+    """
+    out = Path(out_dir)
+    return WavePathNames(out / "wave_paths.gpkg", out / "wave_paths.sld")
 
 
 def site_file_stem(name: str) -> str:

@@ -51,6 +51,7 @@ __all__ = [
     "style_scenario_run",
     "style_site_combined",
     "style_site_set",
+    "style_wave_paths",
     "write_arrival_raster_style",
     "write_difference_style",
     "write_isochrone_styles",
@@ -206,6 +207,16 @@ def style_map_sites(names: SiteTableNames, *, little_margin_min: float, overwrit
         else:
             _beside(target, qml, overwrite, done)
     return done
+
+
+def style_wave_paths(gpkg: Path, *, sld_text: str | None = None) -> None:
+    """The wave-path layer's default style inside its GeoPackage: one line symbol, labelled by site."""
+    from ttmap.io.styles import write_gpkg_layer_style
+    from ttmap.products.qml import wave_paths_qml
+
+    write_gpkg_layer_style(gpkg, "wave_paths",
+                           wave_paths_qml(title="Path of the first wave to each site", label_attribute="name"),
+                           description=_caution(), sld_text=sld_text)
 
 
 def style_site_set(

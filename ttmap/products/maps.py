@@ -38,6 +38,7 @@ if TYPE_CHECKING:
 __all__ = [
     "COLORBAR_LABEL",
     "DEFAULT_CMAP",
+    "draw_wave_paths",
     "render_arrival_map",
     "save_figure",
 ]
@@ -902,3 +903,41 @@ def save_figure(
         # the default level 6, for a file about 12 % larger.
         extra["pil_kwargs"] = {"compress_level": _PNG_COMPRESS_LEVEL}
     fig.savefig(path, format=fmt, dpi=fig.dpi, metadata=metadata, facecolor="white", **extra)
+
+
+def draw_wave_paths(ax: Axes, paths: Sequence[NDArray[np.float64]]) -> list[Any]:
+    """Draw wave paths on a map: thin dark lines with small arrowheads towards the site.
+
+    Parameters
+    ----------
+    ax : matplotlib Axes
+        The map's axes (map coordinates).
+    paths : sequence of ndarray of shape (n, 2)
+        Each route's vertices in map coordinates, source end first.
+
+    Returns
+    -------
+    list
+        The artists drawn.
+    """
+    artists: list[Any] = []
+    for xy in paths:
+        xy = np.asarray(xy, dtype=np.float64)
+        if xy.shape[0] < 2:
+            continue
+        (line,) = ax.plot(xy[:, 0], xy[:, 1], color="#1a1a1a", lw=0.7, alpha=0.9, zorder=6,
+                          solid_capstyle="round")
+        artists.append(line)
+        # arrowheads at a third, two thirds and the end of the route's length
+        seg = np.hypot(*np.diff(xy, axis=0).T)
+        s = np.concatenate([[0.0], np.cumsum(seg)])
+        if s[-1] <= 0.0:
+            continue
+        for frac in (1.0 / 3.0, 2.0 / 3.0, 1.0):
+            k = int(np.clip(np.searchsorted(s, frac * s[-1]), 1, xy.shape[0] - 1))
+            artists.append(ax.annotate(
+                "", xy=(xy[k, 0], xy[k, 1]), xytext=(xy[k - 1, 0], xy[k - 1, 1]), zorder=6,
+                arrowprops={"arrowstyle": "-|>,head_length=0.5,head_width=0.22", "color": "#1a1a1a",
+                            "lw": 0.7, "shrinkA": 0, "shrinkB": 0},
+            ))
+    return artists
