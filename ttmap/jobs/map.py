@@ -436,7 +436,13 @@ def _write_site_table(
     for target in names.layers:
         written.append(write_one_layer(target, layer, "EPSG:4326", job.overwrite))
 
-    fig = render_timeline(table, title=job.timeline_title or f"Time budget per site: {job.source.label}")
+    from ttmap.products.maps import source_text
+
+    fig = render_timeline(
+        table,
+        title=job.timeline_title or f"Time budget per site: {source_text(job.source.label, job.source.params)}",
+        source_kind=job.source.kind,
+    )
     try:
         for fmt, target in names.timelines.items():
             with atomic_output(target, overwrite=job.overwrite) as tmp:
@@ -553,7 +559,7 @@ def _write_products(job: MapJob, pset: ProductSet, result: TravelTimeResult, wat
         written += _write_coast(job, pset, names, coast, time_min, grid)
 
     if names.maps:
-        from ttmap.products.maps import render_arrival_map, save_figure
+        from ttmap.products.maps import render_arrival_map, save_figure, source_text
 
         src_geom = job.source.in_crs(grid.crs)
         if job.source.kind == "point":
@@ -564,8 +570,10 @@ def _write_products(job: MapJob, pset: ProductSet, result: TravelTimeResult, wat
             time_min, grid.transform, land_mask=~water, lines=lines, source_geometry=src_geom,
             sites=site_marks or None,
             title=f"Tsunami arrival time: {pset.title}",
-            subtitle=f"Source: {job.source.label}  |  bathymetry: {os.path.basename(job.reading.path)}",
+            subtitle=f"Source: {source_text(job.source.label, job.source.params)}  |  "
+            f"bathymetry: {os.path.basename(job.reading.path)}",
             is_geographic=grid.is_geographic,
+            source_kind=job.source.kind,
         )
         try:
             for target in names.maps.values():
