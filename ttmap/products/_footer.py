@@ -25,6 +25,7 @@ __all__ = [
     "draw_caution_footer",
     "draw_title_block",
     "fit_text_width",
+    "fit_yticklabels",
     "place_legend",
     "with_natural_warning",
 ]
@@ -263,3 +264,35 @@ def place_legend(
         ncol -= 1
     assert legend is not None
     return legend, float(legend.get_window_extent(renderer).height) / dpi
+
+
+def fit_yticklabels(ax: Any, max_width_px: float, *, min_fontsize: float = 6.0) -> None:
+    """Make the y tick labels of ``ax`` at most ``max_width_px`` wide (shrink, then re-wrap).
+
+    For row names (site names) at the left of a chart: the font shrinks to
+    at most ``min_fontsize``; a name still too wide is wrapped onto more lines.
+    """
+    fig = ax.get_figure()
+    renderer = _renderer(fig)
+    labels = list(ax.get_yticklabels())
+    if not labels:
+        return
+    widest = max(float(t.get_window_extent(renderer).width) for t in labels)
+    if widest <= max_width_px:
+        return
+    size = float(labels[0].get_fontsize())
+    new_size = max(min_fontsize, size * max_width_px / widest)
+    texts = []
+    for t in labels:
+        t.set_fontsize(new_size)
+        if t.get_window_extent(renderer).width > max_width_px:
+            one = " ".join(t.get_text().split())
+            chars = max(6, int(len(one) * max_width_px / t.get_window_extent(renderer).width))
+            while chars > 6:
+                t.set_text(_wrap(one, chars))
+                if t.get_window_extent(renderer).width <= max_width_px:
+                    break
+                chars -= 1
+        texts.append(t.get_text())
+    ax.set_yticks(ax.get_yticks())
+    ax.set_yticklabels(texts, fontsize=new_size)

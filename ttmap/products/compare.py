@@ -506,7 +506,12 @@ def render_sites_by_scenarios(
     from matplotlib.figure import Figure
     from matplotlib.lines import Line2D
 
-    from ttmap.products._footer import caution_footer, draw_caution_footer, draw_title_block
+    from ttmap.products._footer import (
+        caution_footer,
+        draw_caution_footer,
+        draw_title_block,
+        fit_yticklabels,
+    )
     from ttmap.products.cautions import CAUTION_SHORT, minutes_after
 
     caution = CAUTION_SHORT if caution is None else caution
@@ -582,6 +587,7 @@ def render_sites_by_scenarios(
         return "\n".join(parts)
 
     ax.set_yticklabels([shown(site_names[i]) for i in order], fontsize=8.5)
+    fit_yticklabels(ax, (left_in - 0.15) * dpi)
     ax.set_xlabel(f"Front arrival, {minutes_after(source_kind)}", fontsize=9)
     ax.tick_params(axis="x", labelsize=8)
     ax.tick_params(axis="y", length=0)

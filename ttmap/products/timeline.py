@@ -36,6 +36,7 @@ from ttmap.products._footer import (
     caution_footer,
     draw_caution_footer,
     draw_title_block,
+    fit_yticklabels,
     place_legend,
 )
 from ttmap.products.cautions import CAUTION_SHORT, minutes_after
@@ -369,6 +370,7 @@ def render_timeline(
     ax.set_ylim(n - 0.5, -0.5)
     ax.set_yticks(range(n))
     ax.set_yticklabels(names, fontsize=8.5)
+    fit_yticklabels(ax, (left_in - 0.15) * dpi)
     ax.set_xlim(0.0, xmax)
     phrase = minutes_after(source_kind)
     ax.set_xlabel(phrase[0].upper() + phrase[1:], fontsize=9)
