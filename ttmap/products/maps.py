@@ -555,6 +555,9 @@ def _rotated_box(
     return (cx - bw / 2.0, cy - bh / 2.0, cx + bw / 2.0, cy + bh / 2.0)
 
 
+_Place = tuple[int, int, Literal["left", "center", "right"], Literal["bottom", "center", "top"]]
+
+
 def _place_site_names(
     ax: Axes,
     names: Sequence[str],
@@ -575,7 +578,7 @@ def _place_site_names(
     halo = [patheffects.withStroke(linewidth=2.6, foreground="white")]
     frame = ax.get_window_extent(renderer)
     # (dx, dy) in points from the marker, ha, va
-    candidates = [
+    candidates: list[_Place] = [
         (6, 0, "left", "center"), (-6, 0, "right", "center"),
         (0, 6, "center", "bottom"), (0, -6, "center", "top"),
         (5, 5, "left", "bottom"), (5, -5, "left", "top"),
@@ -590,12 +593,12 @@ def _place_site_names(
             fontsize=fontsize, color="black", zorder=9.5, path_effects=halo,
             annotation_clip=False, gid="site-label",
         )
-        chosen: tuple[int, int, str, str] | None = None
-        fallback: tuple[int, int, str, str] | None = None
+        chosen: _Place | None = None
+        fallback: _Place | None = None
         for cand in candidates:
             text.xyann = (cand[0], cand[1])
-            text.set_ha(cand[2])
-            text.set_va(cand[3])
+            text.set_horizontalalignment(cand[2])
+            text.set_verticalalignment(cand[3])
             bb = text.get_window_extent(renderer)
             box = (bb.x0, bb.y0, bb.x1, bb.y1)
             if not _inside(box, frame, 1.0):
@@ -610,11 +613,11 @@ def _place_site_names(
             text.set_fontsize(fontsize * 0.8)
             right = px < 0.5 * (frame.x0 + frame.x1)
             fallback = (6, 0, "left", "center") if right else (-6, 0, "right", "center")
-        cand = chosen or fallback
-        assert cand is not None
-        text.xyann = (cand[0], cand[1])
-        text.set_ha(cand[2])
-        text.set_va(cand[3])
+        final = chosen or fallback
+        assert final is not None
+        text.xyann = (final[0], final[1])
+        text.set_horizontalalignment(final[2])
+        text.set_verticalalignment(final[3])
         bb = text.get_window_extent(renderer)
         taken.add((bb.x0, bb.y0, bb.x1, bb.y1))
 
@@ -1018,7 +1021,7 @@ def render_class_map(
     fig_w, fig_h = float(figsize[0]), float(figsize[1])
     fig = Figure(figsize=(fig_w, fig_h), dpi=dpi, facecolor="white")
     FigureCanvasAgg(fig)
-    renderer = fig.canvas.get_renderer()
+    renderer = fig.canvas.get_renderer()  # type: ignore[attr-defined]  # Agg canvas
     footer = caution_footer(caution, fig_w)
     footer_top = footer.top_in(0.06)
     draw_caution_footer(fig, footer, fig_h)
@@ -1162,7 +1165,7 @@ def render_class_map(
     colorbar = fig.colorbar(image, cax=cax, spacing="proportional", boundaries=edges)
     colorbar.set_label(classes.label, fontsize=9)
     ticks = np.asarray(classes.ticks if classes.ticks is not None else edges, dtype=np.float64)
-    colorbar.ax.yaxis.set_major_locator(FixedLocator(ticks))
+    colorbar.ax.yaxis.set_major_locator(FixedLocator([float(v) for v in ticks]))
     colorbar.ax.yaxis.set_minor_locator(FixedLocator([]))
     if classes.tick_labels is not None:
         labels = list(classes.tick_labels)
