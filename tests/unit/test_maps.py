@@ -383,3 +383,38 @@ def test_caution_texts_cover_the_required_points():
         "never go to the shore",
     ):
         assert words in full, words
+
+
+# ---------------------------------------------------------------------------
+# Source names, colour classes (issue 14)
+# ---------------------------------------------------------------------------
+
+
+def test_scaling_laws_have_human_names_that_match_their_citations():
+    from ttmap.physics.scaling import SCALING_RELATIONS
+    from ttmap.products.maps import source_text
+
+    for rel in SCALING_RELATIONS.values():
+        first_author = rel.citation.split(",")[0]
+        year = rel.citation.split("(")[1][:4]
+        assert rel.display_name.startswith(first_author) and year in rel.display_name, rel.key
+        label = f"Mw 8 ({rel.key}) rupture 160 x 84 km"
+        shown = source_text(label, {"scaling_relation": rel.key})
+        assert rel.key not in shown and rel.display_name in shown
+    assert source_text("invented demo earthquake", {}) == "invented demo earthquake"
+
+
+def test_diverging_classes_are_red_below_zero_and_blue_above():
+    from ttmap.products.maps import diverging_classes
+
+    classes = diverging_classes(-12.0, 47.0, step=5.0, label="x")
+    edges = np.asarray(classes.edges)
+    assert 0.0 in edges and edges[0] <= -12.0 and edges[-1] >= 47.0
+    np.testing.assert_allclose(np.diff(edges), 5.0)
+    rgb = np.array([to_rgb(c) for c in classes.colors])
+    below = (edges[:-1] + edges[1:]) / 2.0 < 0.0
+    assert (rgb[below, 0] > rgb[below, 2]).all()  # red over blue
+    assert (rgb[~below, 2] > rgb[~below, 0]).all()  # blue over red
+    # darker away from zero on both sides (sum of channels falls)
+    assert np.all(np.diff(rgb[below].sum(axis=1)) > 0)
+    assert np.all(np.diff(rgb[~below].sum(axis=1)) < 0)

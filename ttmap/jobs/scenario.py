@@ -397,8 +397,6 @@ def write_envelope(
     OutputExistsError
         An output exists and ``overwrite`` is False (checked before reading).
     """
-    import numpy as np
-
     from ttmap.io.atomic import check_writable
     from ttmap.io.compare import ENVELOPE_FILES, read_minutes, write_envelope_files
     from ttmap.products.cautions import CAUTION_SHORT

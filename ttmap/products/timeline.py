@@ -209,8 +209,7 @@ def render_timeline(
     """
     from matplotlib.backends.backend_agg import FigureCanvasAgg
     from matplotlib.figure import Figure
-    from matplotlib.lines import Line2D
-    from matplotlib.patches import Patch, Rectangle
+    from matplotlib.patches import Rectangle
     from matplotlib.transforms import blended_transform_factory
 
     cols = _columns(table)
