@@ -27,6 +27,7 @@ __all__ = [
     "NOTIFICATION_DELAY_MIN",
     "MAX_NOTIFICATION_DELAY_MIN",
     "LITTLE_MARGIN_MIN",
+    "ENVELOPE_TIE_TOLERANCE_MIN",
     "COAST_CLASS_INTERVAL_MIN",
     "VECTOR_FORMATS",
     "VECTOR_FORMAT",
@@ -106,6 +107,11 @@ MAX_NOTIFICATION_DELAY_MIN: float = 1440.0
 
 #: Margins below this many minutes are flagged as little (common practice, no source).
 LITTLE_MARGIN_MIN: float = 5.0
+
+#: Scenarios whose fronts reach a cell within this many minutes of the earliest
+#: form a tie class in the envelope's first-scenario raster (not a winner picked
+#: by numerical noise, which paints stripes where two sources overlap).
+ENVELOPE_TIE_TOLERANCE_MIN: float = 0.5
 
 #: Width of an arrival class along the coast, minutes.
 COAST_CLASS_INTERVAL_MIN: float = 5.0

@@ -188,6 +188,20 @@ def test_run_writes_rasters_envelope_difference_and_record(small_run):
     diff = _read(out / "difference_arc-01_minus_seamount-point.tif")
     np.testing.assert_allclose(diff, fronts[0] - fronts[2], atol=1e-3, equal_nan=True)
 
+    # every comparison file comes with a style and a map, and the summary names each file
+    written = [
+        "envelope_min.tif", "envelope_first_scenario.tif", "envelope_first_scenario.csv",
+        "envelope_min.sld", "envelope_min.png", "envelope_first_scenario.sld",
+        "envelope_first_scenario.png", "difference_arc-01_minus_seamount-point.tif",
+        "difference_arc-01_minus_seamount-point.sld", "difference_arc-01_minus_seamount-point.png",
+    ]
+    for name in written:
+        assert (out / name).is_file(), name
+        assert str(out / name) in result.stderr, name
+    record = json.loads((out / "run.json").read_text())
+    listed = {Path(p).name for p in record["products"]}
+    assert set(written) <= listed
+
 
 def test_run_record(small_run):
     out, path = small_run["out"], small_run["path"]

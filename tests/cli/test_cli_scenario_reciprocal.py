@@ -176,7 +176,11 @@ def test_one_solve_envelope_equals_direct_envelope(runs):
     # scenario's own direct arrival within 1 minute of the minimum on >= 99 %.
     lab = _read(one / "envelope_first_scenario.tif")
     ref_lab = _read(ref_dir / "envelope_first_scenario.tif")
-    assert np.mean(lab[both] == ref_lab[both]) >= 0.95
+    # The direct raster marks cells where scenarios arrive within 0.5 min of each other as
+    # tie classes (codes >= the number of scenarios): labels are compared where it names one.
+    clear = both & (ref_lab < len(NAMES))
+    assert clear.sum() > 0.2 * both.sum()
+    assert np.mean(lab[clear] == ref_lab[clear]) >= 0.95
     li = np.where(both, lab, 0).astype(int)
     own = np.take_along_axis(fronts, li[None], 0)[0]
     assert np.mean(own[both] - direct_min[both] <= 1.0) >= 0.99

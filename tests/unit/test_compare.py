@@ -12,6 +12,7 @@ import pytest
 import rasterio
 from affine import Affine
 
+from ttmap.defaults import ENVELOPE_TIE_TOLERANCE_MIN
 from ttmap.errors import InputDataError, OutputExistsError
 from ttmap.grid import Grid
 from ttmap.io.raster import write_arrival_geotiff, write_raster
@@ -135,25 +136,44 @@ def test_write_envelope_round_trip(tmp_path):
         t = src.tags()
     assert [t[f"SCENARIO_{i}"] for i in range(4)] == names
     np.testing.assert_array_equal(idx == -1, none)
-    rows, cols = np.nonzero(~none)
-    np.testing.assert_array_equal(stored[idx[rows, cols], rows, cols], env[rows, cols])
 
     with open(out["lookup_csv"], newline="") as fh:
         lines = [ln for ln in fh if not ln.startswith("#")]
     table = list(csv.DictReader(lines))
-    assert [r["name"] for r in table] == names
-    assert [int(r["index"]) for r in table] == [0, 1, 2, 3]
+    # one row per scenario, then one per tie class ("tie: a;b"), every code of the raster listed
+    assert [r["name"] for r in table[:4]] == names
+    assert [int(r["index"]) for r in table] == list(range(len(table)))
+    assert set(np.unique(idx[~none])) <= {int(r["index"]) for r in table}
     assert sum(int(r["cells_first"]) for r in table) == int((~none).sum())
-    for r in table:
-        i = int(r["index"])
-        assert int(r["cells_first"]) == int((idx == i).sum())
-        assert float(r["earliest_min"]) == pytest.approx(float(env[idx == i].min()), abs=1e-3)
+    # the members of each code, from the CSV: a scenario alone, or every scenario of a tie
+    members = {int(r["index"]): [names.index(x) for x in r["name"].removeprefix("tie: ").split(";")]
+               for r in table}
+    assert all(len(m) >= 2 for k, m in members.items() if k >= 4)
+    tol = ENVELOPE_TIE_TOLERANCE_MIN
+    with np.errstate(invalid="ignore"):
+        within = stored <= env + tol  # (scenario, row, col)
+    for code, m in members.items():
+        cells = idx == code
+        assert int(cells.sum()) == int(table[code]["cells_first"])
+        if not cells.any():
+            continue
+        # exactly the listed scenarios arrive within the tolerance of the earliest there
+        expect = np.zeros(len(names), bool)
+        expect[m] = True
+        np.testing.assert_array_equal(within[:, cells].T, np.broadcast_to(expect, (cells.sum(), 4)))
+        assert float(table[code]["earliest_min"]) == pytest.approx(float(env[cells].min()), abs=1e-3)
+    assert any(k >= 4 for k in members), "the fields overlap: some cells must be ties"
+    # styles and maps come with the rasters
+    for key in ("envelope_sld", "envelope_map", "first_scenario_sld", "first_scenario_map"):
+        assert Path(out[key]).is_file()
+    sld = Path(out["first_scenario_sld"]).read_text()
+    assert f"tie (within {tol:g} min)" in sld and 'type="values"' in sld
 
     with pytest.raises(OutputExistsError, match="--overwrite"):
         write_envelope(tmp_path, paths, names, GRID, False)
     write_envelope(tmp_path, paths[:2], names[:2], None, True)
     with rasterio.open(out["first_scenario"]) as src:
-        assert set(np.unique(src.read(1))) <= {-1, 0, 1}
+        assert set(np.unique(src.read(1))) <= {-1, 0, 1, 2}  # 2: the tie class of the two
 
 
 def test_write_envelope_refuses_a_raster_on_another_grid(tmp_path):

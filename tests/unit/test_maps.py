@@ -18,7 +18,7 @@ import pytest
 import shapely
 from affine import Affine
 from matplotlib.collections import QuadMesh
-from matplotlib.colors import to_hex
+from matplotlib.colors import to_hex, to_rgb
 from matplotlib.image import AxesImage
 from matplotlib.text import Text
 from numpy.testing import assert_allclose
@@ -34,6 +34,8 @@ from ttmap.products.maps import (
     _decimation,
     _display_stride,
     _resolve_cmap,
+    arrival_classes,
+    class_edges_min,
     render_arrival_map,
     save_figure,
 )
@@ -96,8 +98,9 @@ def test_png_has_map_colours_texts_and_caution(tmp_path):
     rgb = image[..., :3].reshape(-1, 3)
     assert len(np.unique(np.round(rgb * 255).astype(int), axis=0)) > 300
     # Colours from the middle of the ramp and the land grey are drawn.
-    cmap = _resolve_cmap(DEFAULT_CMAP)
-    for color in (cmap(0.5)[:3], cmap(0.25)[:3], (0.80, 0.79, 0.77)):
+    edges = class_edges_min(np.arange(1.0, 7.0), float(np.nanmax(time_min)))
+    colors = [to_rgb(c) for c in arrival_classes(edges, label="").colors]
+    for color in (colors[1], colors[len(colors) // 2], (0.80, 0.79, 0.77)):
         nearest = np.min(np.abs(rgb - np.asarray(color)).max(axis=1))
         assert nearest < 0.02, color
     texts = figure_texts(fig)
@@ -106,7 +109,9 @@ def test_png_has_map_colours_texts_and_caution(tmp_path):
     assert {"Test scenario", "constant depth 4000 m", "Easting (m)", "Northing (m)"} <= set(texts)
     assert {"Port North", "Cove"} <= set(texts)
     labels = [t for t in texts if t in {f"0:0{m}" for m in range(1, 7)}]
-    assert 1 <= len(labels) <= 6
+    # at most two labels a line: one near the sites (the coast), one in open water
+    assert 1 <= len(labels) <= 12
+    assert max(labels.count(t) for t in labels) <= 2
 
 
 def test_custom_caution_appears_instead():
@@ -378,3 +383,38 @@ def test_caution_texts_cover_the_required_points():
         "never go to the shore",
     ):
         assert words in full, words
+
+
+# ---------------------------------------------------------------------------
+# Source names, colour classes (issue 14)
+# ---------------------------------------------------------------------------
+
+
+def test_scaling_laws_have_human_names_that_match_their_citations():
+    from ttmap.physics.scaling import SCALING_RELATIONS
+    from ttmap.products.maps import source_text
+
+    for rel in SCALING_RELATIONS.values():
+        first_author = rel.citation.split(",")[0]
+        year = rel.citation.split("(")[1][:4]
+        assert rel.display_name.startswith(first_author) and year in rel.display_name, rel.key
+        label = f"Mw 8 ({rel.key}) rupture 160 x 84 km"
+        shown = source_text(label, {"scaling_relation": rel.key})
+        assert rel.key not in shown and rel.display_name in shown
+    assert source_text("invented demo earthquake", {}) == "invented demo earthquake"
+
+
+def test_diverging_classes_are_red_below_zero_and_blue_above():
+    from ttmap.products.maps import diverging_classes
+
+    classes = diverging_classes(-12.0, 47.0, step=5.0, label="x")
+    edges = np.asarray(classes.edges)
+    assert 0.0 in edges and edges[0] <= -12.0 and edges[-1] >= 47.0
+    np.testing.assert_allclose(np.diff(edges), 5.0)
+    rgb = np.array([to_rgb(c) for c in classes.colors])
+    below = (edges[:-1] + edges[1:]) / 2.0 < 0.0
+    assert (rgb[below, 0] > rgb[below, 2]).all()  # red over blue
+    assert (rgb[~below, 2] > rgb[~below, 0]).all()  # blue over red
+    # darker away from zero on both sides (sum of channels falls)
+    assert np.all(np.diff(rgb[below].sum(axis=1)) > 0)
+    assert np.all(np.diff(rgb[~below].sum(axis=1)) < 0)

@@ -292,8 +292,11 @@ def test_site_products_are_written_and_read_back(tmp_path, medium, harbour):
         root = ET.fromstring((tmp_path / sld).read_bytes())
         assert CAUTION_SHORT in ET.tostring(root, encoding="unicode")
     left_sld = (tmp_path / "minutes_left_Harbour.sld").read_text()
-    assert 'type="intervals"' in left_sld and 'label="-0:10 to 0:00"' in left_sld
+    # diverging classes around zero, 5 min wide below it (a 10-min delay: two red classes)
+    assert 'type="intervals"' in left_sld and 'label="-5 to 0 min"' in left_sld
+    assert 'label="-10 to -5 min"' in left_sld and 'label="0 ' in left_sld
     assert (tmp_path / "map_site_Harbour.png").read_bytes()[:8] == PNG_MAGIC
+    assert (tmp_path / "map_minutes_left_Harbour.png").read_bytes()[:8] == PNG_MAGIC
     assert (tmp_path / "map_site_Harbour.pdf").read_bytes()[:5] == b"%PDF-"
 
 
@@ -306,9 +309,14 @@ def test_site_map_names_the_site_and_carries_the_caution(medium, harbour):
     fig = render_site_map("Harbour", harbour, lines, water_mask=medium.water, title_prefix="Demo: ")
     texts = {t.get_text() for t in fig.findobj(Text)}
     assert "Demo: Minutes from a source here to Harbour" in texts
-    assert "Minutes from a source here to Harbour" in texts  # colour bar
-    assert "Site: Harbour" in texts and "Isochrone (h:mm to reach Harbour)" in texts
-    assert "Source" not in texts and "Arrival time (minutes after origin)" not in texts
+    assert "Minutes for a wave from here to reach the site" in texts  # colour bar
+    assert "Site" in texts and "Isochrone (h:mm to reach the site)" in texts
+    assert "Harbour" in texts  # the site's name beside its symbol
+    assert not any(t.startswith("Source") for t in texts)
+    assert "Arrival time (minutes after the earthquake)" not in texts
+    # the site is drawn with the site symbol (white circle), never the source's star
+    markers = {ln.get_marker() for ln in fig.axes[0].get_lines()}
+    assert "o" in markers and "*" not in markers
     assert any(CAUTION_SHORT.split(".")[0] in t for t in texts)
 
 

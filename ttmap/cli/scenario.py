@@ -225,9 +225,11 @@ def run_command(
         rep.stage(f"table method: {params['table_method']} ({params['table_method_reason']})")
         products = record["comparisons"]
         if products.get("envelope"):
-            rep.stage(f"envelope: {_first_path(products['envelope'])}")
+            rep.stage("envelope: " + ", ".join(_all_paths(products["envelope"])))
         for d in products.get("differences", []):
-            rep.stage(f"difference {d['a']} vs {d['b']}: {_first_path(d['files'])}")
+            rep.stage(f"difference {d['a']} vs {d['b']}: " + ", ".join(_all_paths(d["files"])))
+        if products.get("sites"):
+            rep.stage("site tables: " + ", ".join(_all_paths(products["sites"])))
         for note in products.get("skipped", []):
             rep.notice(f"skipped {note}")
         rep.stage(f"run record: {record['run_json']}")
@@ -239,10 +241,10 @@ def run_command(
         ctx.exit(1)
 
 
-def _first_path(value: Any) -> str:
-    """A readable path out of whatever a comparison writer returned."""
+def _all_paths(value: Any) -> list[str]:
+    """Every path in whatever a comparison writer returned, in order."""
     if isinstance(value, dict):
-        value = next(iter(value.values()), "")
-    if isinstance(value, list):
-        value = value[0] if value else ""
-    return str(value)
+        return [p for v in value.values() for p in _all_paths(v)]
+    if isinstance(value, (list, tuple)):
+        return [p for v in value for p in _all_paths(v)]
+    return [str(value)] if value else []

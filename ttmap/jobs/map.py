@@ -540,7 +540,13 @@ def _write_site_table(
 
     written += style_map_sites(names, little_margin_min=opts.little_margin_min, overwrite=job.overwrite)
 
-    fig = render_timeline(table, title=job.timeline_title or f"Time budget per site: {job.source.label}")
+    from ttmap.products.maps import source_text
+
+    fig = render_timeline(
+        table,
+        title=job.timeline_title or f"Time budget per site: {source_text(job.source.label, job.source.params)}",
+        source_kind=job.source.kind,
+    )
     try:
         for fmt, target in names.timelines.items():
             with atomic_output(target, overwrite=job.overwrite) as tmp:
@@ -740,7 +746,7 @@ def _write_products(job: MapJob, pset: ProductSet, result: TravelTimeResult, wat
         written += _write_coast(job, pset, names, coast, time_min, grid)
 
     if names.maps:
-        from ttmap.products.maps import render_arrival_map, save_figure
+        from ttmap.products.maps import render_arrival_map, save_figure, source_text
 
         src_geom = job.source.in_crs(grid.crs)
         if job.source.kind == "point":
@@ -751,9 +757,10 @@ def _write_products(job: MapJob, pset: ProductSet, result: TravelTimeResult, wat
             time_min, grid.transform, land_mask=~water, lines=lines, source_geometry=src_geom,
             sites=site_marks or None,
             title=f"Tsunami arrival time: {pset.title}",
-            subtitle=f"Source: {job.source.label}  |  bathymetry: "
-                     f"{os.path.basename(bathymetry_path or job.reading.path)}",
+            subtitle=f"Source: {source_text(job.source.label, job.source.params)}  |  "
+            f"bathymetry: {os.path.basename(bathymetry_path or job.reading.path)}",
             is_geographic=grid.is_geographic,
+            source_kind=job.source.kind,
         )
         if routes and pset.mode == "long-wave":
             from ttmap.products.maps import draw_wave_paths

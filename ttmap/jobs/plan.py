@@ -272,11 +272,12 @@ class SiteNames:
     left_sld: Path
     isochrones: _Isochrones
     maps: dict[str, Path]
+    left_maps: dict[str, Path]
 
     def files(self) -> list[Path]:
         """Every file, in writing order."""
         return [self.site_tif, self.site_sld, self.left_tif, self.left_sld, *self.isochrones.files(),
-                *self.maps.values()]
+                *self.maps.values(), *self.left_maps.values()]
 
 
 def site_names(out_dir: str | os.PathLike[str], name: str, *, vector_formats: Sequence[str] = ("gpkg",),
@@ -288,7 +289,7 @@ def site_names(out_dir: str | os.PathLike[str], name: str, *, vector_formats: Se
     >>> [p.name for p in site_names("out", "Bay A").files()]  # doctest: +NORMALIZE_WHITESPACE
     ['site_centred_Bay_A.tif', 'site_centred_Bay_A.sld', 'minutes_left_Bay_A.tif',
      'minutes_left_Bay_A.sld', 'isochrones_site_Bay_A.gpkg', 'isochrones_site_Bay_A_lines.sld',
-     'isochrones_site_Bay_A_bands.sld', 'map_site_Bay_A.png']
+     'isochrones_site_Bay_A_bands.sld', 'map_site_Bay_A.png', 'map_minutes_left_Bay_A.png']
     """
     out = Path(out_dir)
     stem = site_file_stem(name)
@@ -300,6 +301,7 @@ def site_names(out_dir: str | os.PathLike[str], name: str, *, vector_formats: Se
         left_sld=out / f"minutes_left_{stem}.sld",
         isochrones=_isochrones(out, f"isochrones_site_{stem}", vector_formats),
         maps={fmt: out / f"map_site_{stem}.{fmt}" for fmt in map_formats},
+        left_maps={fmt: out / f"map_minutes_left_{stem}.{fmt}" for fmt in map_formats},
     )
 
 

@@ -177,11 +177,15 @@ def run_scenario_file(
     # scenario names in the order the envelope's first-scenario index uses
     names: list[str] = [sc.name for sc in sf.scenarios] if plan.envelope_one_solve else []
     if sf.outputs.envelope or sf.outputs.compare:
+        from ttmap.jobs.scenario_maps import scenario_water_mask
+
+        water = scenario_water_mask(spec) if fronts else None
         if sf.outputs.envelope and not plan.envelope_one_solve:
             if len(fronts) >= 2:
                 names = list(fronts)
                 env = write_envelope(
-                    str(out), [fronts[n] for n in names], names, None, derived_overwrite
+                    str(out), [fronts[n] for n in names], names, None, derived_overwrite,
+                    water_mask=water,
                 )
                 products["envelope"] = _product_paths(env)
             else:
@@ -195,7 +199,8 @@ def run_scenario_file(
                     f"difference {a} vs {b}: no front for {', '.join(missing)} (failed)"
                 )
                 continue
-            diff = write_difference(str(out), fronts[a], fronts[b], a, b, derived_overwrite)
+            diff = write_difference(str(out), fronts[a], fronts[b], a, b, derived_overwrite,
+                                    water_mask=water)
             products["differences"].append({"a": a, "b": b, "files": _product_paths(diff)})
     sites_summary: dict[str, Any] | None = None
     if reciprocal_sites is not None:
@@ -452,13 +457,20 @@ def write_envelope(
     names: Sequence[str],
     grid: Grid | None = None,
     overwrite: bool = False,
+    *,
+    water_mask: Any = None,
+    tie_tolerance_min: float | None = None,
 ) -> dict[str, str]:
     """Write the earliest-arrival envelope of several arrival rasters.
 
     Writes ``envelope_min.tif`` (float32 minutes), ``envelope_first_scenario.tif``
-    (int16 index, nodata -1, tags ``SCENARIO_<i>=<name>``) and
-    ``envelope_first_scenario.csv`` (index, name, raster, cells where it is
-    first, its earliest minute).
+    (int16, nodata -1, tags ``SCENARIO_<i>=<name>``: the scenario index where
+    one scenario alone arrives within the tie tolerance of the earliest, a
+    tie class ``n + k`` where two or more do) and ``envelope_first_scenario.csv``
+    (one row per scenario and one per tie class: index, name, raster, cells,
+    earliest minute), and their styles and maps (``envelope_min.sld/.png``,
+    ``envelope_first_scenario.sld/.png``, :mod:`ttmap.jobs.scenario_maps`;
+    ``water_mask`` draws land on the maps).
 
     Parameters
     ----------
@@ -486,8 +498,6 @@ def write_envelope(
     OutputExistsError
         An output exists and ``overwrite`` is False (checked before reading).
     """
-    import numpy as np
-
     from ttmap.io.atomic import check_writable
     from ttmap.io.compare import ENVELOPE_FILES, read_minutes, write_envelope_files
     from ttmap.products.cautions import CAUTION_SHORT
@@ -510,8 +520,13 @@ def write_envelope(
         raise InputDataError(
             f"an envelope indexes at most {MAX_SCENARIOS} scenarios, got {len(rasters)}"
         )
+    from ttmap.defaults import ENVELOPE_TIE_TOLERANCE_MIN
+    from ttmap.jobs.scenario_maps import envelope_extra_files, write_envelope_extras
+    from ttmap.products.scenario_maps import first_scenario_ties
+
+    tol = ENVELOPE_TIE_TOLERANCE_MIN if tie_tolerance_min is None else float(tie_tolerance_min)
     targets = [Path(out_dir) / name for name in ENVELOPE_FILES]
-    check_writable(targets, overwrite)
+    check_writable([*targets, *envelope_extra_files(out_dir)], overwrite)
 
     ref: dict[str, Grid] = {} if grid is None else {"grid": grid}
 
@@ -521,12 +536,14 @@ def write_envelope(
             ref.setdefault("grid", g)
             yield values
 
-    earliest, first = envelope(fields())
-    counts = np.bincount(first[first >= 0].astype(np.int64), minlength=len(rasters))
-    earliest_by = [
-        f"{float(earliest[first == i].min()):.3f}" if counts[i] else "" for i in range(len(rasters))
-    ]
+    earliest, _ = envelope(fields())
+    ties = first_scenario_ties(earliest, fields(), n_scenarios=len(rasters), tolerance_min=tol)
+    first = ties.codes
     n = len(names)
+    counts = [*ties.cells_first, *ties.tie_cells]
+    earliest_by = [
+        f"{float(earliest[first == i].min()):.3f}" if counts[i] else "" for i in range(len(counts))
+    ]
     scenario_tags = {"SCENARIOS": str(n), **{f"SCENARIO_{i}": x for i, x in enumerate(names)}}
     write_envelope_files(
         targets,
@@ -539,29 +556,36 @@ def write_envelope(
         },
         index_tags={
             **comparison_tags(
-                "index of the scenario that arrives first (ties: lowest index); names in the "
+                f"index of the scenario that arrives first; {n} and above: a tie class of "
+                f"scenarios arriving within {tol:g} min of each other; names in the "
                 "SCENARIO_<i> tags and envelope_first_scenario.csv"
             ),
             **scenario_tags,
         },
         lookup={
-            "index": list(range(n)),
-            "name": names,
-            "raster": [os.path.basename(p) for p in rasters],
+            "index": list(range(n + len(ties.tie_sets))),
+            "name": [*names, *(f"tie: {';'.join(names[i] for i in m)}" for m in ties.tie_sets)],
+            "raster": [os.path.basename(p) for p in rasters] + [""] * len(ties.tie_sets),
             "cells_first": [int(c) for c in counts],
             "earliest_min": earliest_by,
         },
         comments=(
             CAUTION_SHORT,
             "index: value in envelope_first_scenario.tif; cells_first: cells where this "
-            "scenario arrives first; earliest_min: its earliest arrival there, minutes",
+            f"scenario alone arrives within {tol:g} min of the earliest; earliest_min: the "
+            "earliest arrival there, minutes",
+            f"rows named 'tie: a;b;...' list every tie: cells where those scenarios all arrive "
+            f"within {tol:g} min of the earliest (no single first scenario)",
         ),
         overwrite=overwrite,
     )
+    extras = write_envelope_extras(out_dir, earliest, ties, names, ref["grid"],
+                                   water_mask=water_mask, overwrite=overwrite)
     return {
         "envelope_min": str(targets[0]),
         "first_scenario": str(targets[1]),
         "lookup_csv": str(targets[2]),
+        **extras,
     }
 
 
@@ -572,8 +596,13 @@ def write_difference(
     name_a: str,
     name_b: str,
     overwrite: bool = False,
+    *,
+    water_mask: Any = None,
 ) -> dict[str, str]:
     """Write ``difference_<a>_minus_<b>.tif``: arrival of a minus arrival of b, minutes.
+
+    With its style and map (``.sld``, ``.png``: a diverging ramp centred on
+    zero, :mod:`ttmap.jobs.scenario_maps`).
 
     Positive where b arrives earlier (a later) by that many minutes, negative
     where a arrives earlier; nodata where either has no arrival. Tags
@@ -597,8 +626,10 @@ def write_difference(
     from ttmap.products.compare import check_scenario_names, comparison_tags, difference
 
     a_name, b_name = check_scenario_names([name_a, name_b], "scenario")
+    from ttmap.jobs.scenario_maps import difference_extra_files, write_difference_extras
+
     target = Path(out_dir) / difference_file_name(a_name, b_name)
-    check_writable([target], overwrite)
+    check_writable([target, *difference_extra_files(target)], overwrite)
     a, grid_a, _ = read_minutes(path_a)
     b, _, _ = read_minutes(path_b, grid_a)
     diff = difference(a, b)
@@ -627,7 +658,9 @@ def write_difference(
     from ttmap.jobs.styling import write_difference_style
 
     write_difference_style(target, diff, a_name, b_name, overwrite=overwrite)
-    return {"difference": str(target), "style": str(style)}
+    extras = write_difference_extras(target, diff, grid_a, a_name, b_name,
+                                     water_mask=water_mask, overwrite=overwrite)
+    return {"difference": str(target), "style": str(style), **extras}
 
 
 def write_sites_by_scenarios(

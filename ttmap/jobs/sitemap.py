@@ -425,6 +425,8 @@ def write_site_products(
       layers ``isochrone_lines`` and ``isochrone_bands`` (attributes
       ``minutes``, ``label``, ``site``), styles ``..._lines.sld`` and
       ``..._bands.sld`` (``..._bands_shp.sld`` for Shapefiles).
+    - ``map_minutes_left_<site>.png`` (and/or ``.pdf``): the minutes-left map
+      (diverging classes around zero; red: the wave comes before the message).
     - ``map_site_<site>.png`` (and/or ``.pdf``): the map titled "Minutes from
       a source here to <site>", the site drawn as the start marker.
 
@@ -505,7 +507,7 @@ def _write_site_set(
     from ttmap.jobs.layers import arrival_levels, isochrone_layers, write_arrival_style, write_isochrones
     from ttmap.products.cautions import CAUTION_SHORT
     from ttmap.products.isochrones import isochrone_bands, isochrone_lines
-    from ttmap.products.site_maps import minutes_left_sld, render_site_map
+    from ttmap.products.site_maps import minutes_left_sld, render_minutes_left_map, render_site_map
     from ttmap.products.styles import write_sld
     from ttmap.sitemap import minutes_left
 
@@ -564,6 +566,11 @@ def _write_site_set(
 
         fig = render_site_map(name, result, lines, water_mask=water_mask, title_prefix=title_prefix)
         for fmt, target in names.maps.items():
+            with atomic_output(target, overwrite=False) as tmp:
+                save_figure(fig, tmp, format=fmt)  # type: ignore[arg-type]
+        fig = render_minutes_left_map(name, left, result, delay, water_mask=water_mask,
+                                      title_prefix=title_prefix)
+        for fmt, target in names.left_maps.items():
             with atomic_output(target, overwrite=False) as tmp:
                 save_figure(fig, tmp, format=fmt)  # type: ignore[arg-type]
 

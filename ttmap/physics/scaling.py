@@ -64,6 +64,8 @@ class ScalingRelation:
     note : str
         Data set, scatter, and which parts of the citation or sigma were
         not checked against the source (marked "from memory").
+    display_name : str
+        Short name for maps and reports, e.g. "Strasser et al. 2010 (interface)".
 
     Examples
     --------
@@ -79,6 +81,7 @@ class ScalingRelation:
     width_a: float
     width_b: float
     note: str = ""
+    display_name: str = ""
 
     def length_km(self, mw: float) -> float:
         """Median rupture length in km for moment magnitude *mw* (no range check)."""
@@ -118,6 +121,7 @@ _AUTHORS_TITLE_FROM_MEMORY = (
 _RELATIONS: tuple[ScalingRelation, ...] = (
     ScalingRelation(
         key="strasser2010-interface",
+        display_name="Strasser et al. 2010 (interface)",
         citation=_STRASSER_2010,
         length_a=-2.477,
         length_b=0.585,
@@ -130,6 +134,7 @@ _RELATIONS: tuple[ScalingRelation, ...] = (
     ),
     ScalingRelation(
         key="blaser2010-reverse",
+        display_name="Blaser et al. 2010 (reverse)",
         citation=_BLASER_2010,
         length_a=-2.37,
         length_b=0.57,
@@ -142,6 +147,7 @@ _RELATIONS: tuple[ScalingRelation, ...] = (
     ),
     ScalingRelation(
         key="blaser2010-reverse-oceanic",
+        display_name="Blaser et al. 2010 (reverse, oceanic subduction)",
         citation=_BLASER_2010,
         length_a=-2.81,
         length_b=0.62,
@@ -153,6 +159,7 @@ _RELATIONS: tuple[ScalingRelation, ...] = (
     ),
     ScalingRelation(
         key="blaser2010-all",
+        display_name="Blaser et al. 2010 (all mechanisms)",
         citation=_BLASER_2010,
         length_a=-2.31,
         length_b=0.57,
@@ -162,6 +169,7 @@ _RELATIONS: tuple[ScalingRelation, ...] = (
     ),
     ScalingRelation(
         key="wells-coppersmith1994-reverse",
+        display_name="Wells and Coppersmith 1994 (reverse)",
         citation=_WELLS_COPPERSMITH_1994,
         length_a=-2.42,
         length_b=0.58,
@@ -175,6 +183,7 @@ _RELATIONS: tuple[ScalingRelation, ...] = (
     ),
     ScalingRelation(
         key="wells-coppersmith1994-all",
+        display_name="Wells and Coppersmith 1994 (all slip types)",
         citation=_WELLS_COPPERSMITH_1994,
         length_a=-2.44,
         length_b=0.59,
@@ -187,6 +196,7 @@ _RELATIONS: tuple[ScalingRelation, ...] = (
     ),
     ScalingRelation(
         key="papazachos2004-subduction",
+        display_name="Papazachos et al. 2004 (subduction)",
         citation=_PAPAZACHOS_2004,
         length_a=-2.19,
         length_b=0.55,

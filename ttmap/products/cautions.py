@@ -15,7 +15,14 @@ True
 
 from __future__ import annotations
 
-__all__ = ["CAUTION_LINES", "CAUTION_SHORT", "CAUTION_TEXT"]
+__all__ = [
+    "CAUTION_LINES",
+    "CAUTION_SHORT",
+    "CAUTION_TEXT",
+    "NATURAL_WARNING",
+    "event_word",
+    "minutes_after",
+]
 
 #: One line for raster tags, figure footers and CSV headers (< 200 characters).
 CAUTION_SHORT: str = (
@@ -60,3 +67,43 @@ CAUTION_LINES: tuple[str, ...] = (
 
 #: The full cautions as one text, one entry per line.
 CAUTION_TEXT: str = "\n".join(CAUTION_LINES)
+
+#: The natural-warning line every chart and map carries (the figure footer adds
+#: it to any caution that lacks it).
+NATURAL_WARNING: str = (
+    "Strong or long shaking, or a sudden fall or rise of the sea, is itself the warning: "
+    "go to high ground at once."
+)
+
+#: Source kinds that are earthquakes (a point epicentre or a rupture rectangle).
+_EARTHQUAKE_KINDS = frozenset({"point", "rupture"})
+
+
+def event_word(source_kind: str | None) -> str:
+    """What time zero is, in words: "earthquake" for points and ruptures, else "event".
+
+    Point and rupture sources stand for an earthquake; an area or line read
+    from a file may be a landslide or an eruption, so its clock starts at "the
+    event". ``None`` (unknown) reads "earthquake", the common case.
+
+    Examples
+    --------
+    >>> event_word("rupture"), event_word("area"), event_word(None)
+    ('earthquake', 'event', 'earthquake')
+    """
+    if source_kind is None or source_kind in _EARTHQUAKE_KINDS:
+        return "earthquake"
+    return "event"
+
+
+def minutes_after(source_kind: str | None = None) -> str:
+    """The one wording of the time axis: "minutes after the earthquake" (or "the event").
+
+    Examples
+    --------
+    >>> minutes_after("point")
+    'minutes after the earthquake'
+    >>> minutes_after("line")
+    'minutes after the event'
+    """
+    return f"minutes after the {event_word(source_kind)}"

@@ -554,14 +554,18 @@ def render_sites_by_scenarios(
     caution: str | None = None,
     width_in: float = 9.0,
     dpi: float = 120.0,
+    source_kind: str | None = None,
 ) -> Any:
     """Chart of :func:`sites_by_scenarios`: one row per site, a dot per scenario.
 
     Sites are ordered by their earliest front arrival (earliest at the top;
     sites without any arrival last). With up to 10 scenarios each has its
     own colour and the earliest at a site is ringed in black; with more,
-    dots are grey and the earliest is red. The caution is printed at the
-    bottom of the figure.
+    dots are grey and the earliest is red. The caution (with the natural-warning
+    line) is printed at the bottom of the figure; the title shrinks and wraps
+    to the width. ``source_kind`` picks the axis wording ("minutes after the
+    earthquake" for points and ruptures, "after the event" otherwise; None:
+    earthquake).
 
     Returns
     -------
@@ -574,8 +578,13 @@ def render_sites_by_scenarios(
     from matplotlib.figure import Figure
     from matplotlib.lines import Line2D
 
-    from ttmap.products._footer import caution_footer, draw_caution_footer
-    from ttmap.products.cautions import CAUTION_SHORT
+    from ttmap.products._footer import (
+        caution_footer,
+        draw_caution_footer,
+        draw_title_block,
+        fit_yticklabels,
+    )
+    from ttmap.products.cautions import CAUTION_SHORT, minutes_after
 
     caution = CAUTION_SHORT if caution is None else caution
     sites_col = [str(s) for s in table["name"]]
@@ -605,7 +614,12 @@ def render_sites_by_scenarios(
     legend_items = len(scen_names) if coloured else 2
     legend_h = 0.22 * math.ceil((legend_items + 1) / 3) + 0.1
     bottom_in = footer_top + legend_h + 0.55
-    top_in = 0.75
+    subtitle = ("Sites sorted by earliest front arrival over the scenarios. Planning figures, "
+                "not promises.")
+    scratch = Figure(figsize=(width_in, 10.0), dpi=dpi)
+    FigureCanvasAgg(scratch)
+    top_in = draw_title_block(scratch, title, subtitle, top_in=0.16, title_pt=12.0,
+                              subtitle_pt=8.5) + 0.12
     axes_h = max(1.2, 0.34 * n)
     fig_h = top_in + axes_h + bottom_in
     left_in = min(3.0, 0.45 + 0.075 * max(len(s) for s in site_names))
@@ -634,8 +648,19 @@ def render_sites_by_scenarios(
     ax.set_xlim(0.0, xmax)
     ax.set_ylim(n - 0.5, -0.5)
     ax.set_yticks(range(n))
-    ax.set_yticklabels([site_names[i] for i in order], fontsize=8.5)
-    ax.set_xlabel("Front arrival, minutes after the earthquake (origin time)", fontsize=9)
+    per_line = max(10, int((left_in - 0.3) / 0.072))
+
+    def shown(name: str) -> str:  # long names on two lines, the rest shortened
+        import textwrap
+
+        parts = textwrap.wrap(name, per_line, break_long_words=True) or [name]
+        if len(parts) > 2:
+            parts = [parts[0], textwrap.shorten(" ".join(parts[1:]), per_line, placeholder="...")]
+        return "\n".join(parts)
+
+    ax.set_yticklabels([shown(site_names[i]) for i in order], fontsize=8.5)
+    fit_yticklabels(ax, (left_in - 0.15) * dpi)
+    ax.set_xlabel(f"Front arrival, {minutes_after(source_kind)}", fontsize=9)
     ax.tick_params(axis="x", labelsize=8)
     ax.tick_params(axis="y", length=0)
     ax.grid(axis="x", color="#d9d9d9", linewidth=0.6, zorder=1)
@@ -663,9 +688,6 @@ def render_sites_by_scenarios(
     fig.legend(handles=items, loc="center", ncol=3,
                bbox_to_anchor=(0.5, (footer_top + legend_h / 2.0) / fig_h),
                frameon=False, fontsize=7.5)
-    fig.text(0.5, 1.0 - 0.2 / fig_h, title, ha="center", va="top", fontsize=12, fontweight="bold")
-    fig.text(0.5, 1.0 - 0.48 / fig_h,
-             "Sites sorted by earliest front arrival over the scenarios. Planning figures, "
-             "not promises.", ha="center", va="top", fontsize=8.5, color="#333333")
+    draw_title_block(fig, title, subtitle, top_in=0.16, title_pt=12.0, subtitle_pt=8.5)
     draw_caution_footer(fig, footer, fig_h)
     return fig

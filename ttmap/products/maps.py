@@ -16,15 +16,22 @@ from __future__ import annotations
 
 import math
 import os
+import textwrap
 from collections.abc import Sequence
+from dataclasses import dataclass
 from typing import TYPE_CHECKING, Any, Literal
 
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 from ttmap.errors import InputDataError
-from ttmap.products._footer import caution_footer, draw_caution_footer
-from ttmap.products.cautions import CAUTION_SHORT
+from ttmap.products._footer import (
+    caution_footer,
+    draw_caution_footer,
+    draw_title_block,
+    place_legend,
+)
+from ttmap.products.cautions import CAUTION_SHORT, event_word, minutes_after
 from ttmap.products.isochrones import IsochroneLine
 from ttmap.products.palette import ARRIVAL_CMAP
 
@@ -38,9 +45,18 @@ if TYPE_CHECKING:
 __all__ = [
     "COLORBAR_LABEL",
     "DEFAULT_CMAP",
+    "ColourClasses",
+    "DIVERGING_CMAP",
+    "MINUTES_LEFT_EDGES",
+    "arrival_classes",
+    "class_edges_min",
+    "diverging_classes",
     "draw_wave_paths",
+    "fit_colorbar_label",
     "render_arrival_map",
+    "render_class_map",
     "save_figure",
+    "source_text",
 ]
 
 #: Default colour map: the arrival ramp shared with the style files
@@ -49,15 +65,22 @@ __all__ = [
 #: faint white casing, which keeps them visible at both ends of the ramp.
 DEFAULT_CMAP: str = ARRIVAL_CMAP
 
-#: Label of the colour bar.
-COLORBAR_LABEL = "Arrival time (minutes after origin)"
+#: Diverging ramp of the maps centred on zero (minutes left, differences):
+#: red below zero, blue above, pale near zero; readable with the common forms
+#: of colour-vision deficiency (red-blue, not red-green).
+DIVERGING_CMAP: str = "RdBu"
+
+#: Label of the colour bar of an earthquake's arrival map (an area or line
+#: source reads "after the event", see :func:`ttmap.products.cautions.minutes_after`).
+COLORBAR_LABEL = "Arrival time (minutes after the earthquake)"
 
 _LAND_RGBA = (0.80, 0.79, 0.77, 1.0)  # warm neutral grey
 _UNREACHED_RGB = "#f2f4f7"  # water with no arrival: near white, cool
 _COAST_COLOR = "#3a3a3a"
 _LINE_COLOR = "#141414"
 _SOURCE_COLOR = "#e8175d"  # red-magenta: not in the arrival ramp, clear on it
-_MAX_LABELS = 14
+_SITE_EDGE = "#1a1a1a"  # sites: white circles with a dark edge (never the source's star)
+_MAX_LABELS = 24
 _MAX_LINE_VERTICES = 300_000  # above this, lines are simplified for drawing
 _PNG_COMPRESS_LEVEL = 3
 
@@ -295,237 +318,523 @@ def _draw_raster(
     )
 
 
-def _label_positions(
-    lines: Sequence[IsochroneLine],
-    parts_by_line: Sequence[list[NDArray[np.float64]]],
-    bounds: tuple[float, float, float, float],
-    aspect: float,
-    obstacles_xy: Sequence[tuple[float, float]] = (),
-) -> list[tuple[str, float, float, float]]:
-    """Choose (label, x, y, angle_deg) for a readable subset of the lines.
+def source_text(label: str, params: dict[str, Any] | None = None) -> str:
+    """A source's label for a map or chart: scaling-law keys replaced by their human names.
 
-    Labels keep a minimum distance from each other and from ``obstacles_xy``
-    (the source and the sites), and stay off the map edges.
+    Parameters
+    ----------
+    label : str
+        :attr:`ttmap.sources.Source.label`.
+    params : dict, optional
+        :attr:`ttmap.sources.Source.params`; its ``scaling_relation`` (if any)
+        is named as in :data:`ttmap.physics.scaling.SCALING_RELATIONS`.
+
+    Examples
+    --------
+    >>> source_text("Mw 8.5 (strasser2010-interface) rupture 313 x 126 km",
+    ...             {"scaling_relation": "strasser2010-interface"})
+    'Mw 8.5 rupture 313 x 126 km (size: Strasser et al. 2010 (interface))'
     """
-    xmin, xmax, ymin, ymax = bounds
-    span_x = xmax - xmin
-    span_y = (ymax - ymin) * aspect
-    scale = max(span_x, span_y)
+    from ttmap.physics.scaling import SCALING_RELATIONS
 
-    def norm_xy(x: float, y: float) -> tuple[float, float]:
-        return (x - xmin) / scale, (y - ymin) * aspect / scale
+    key = (params or {}).get("scaling_relation")
+    rel = SCALING_RELATIONS.get(str(key)) if key else None
+    if rel is None or not rel.display_name:
+        return label
+    tag = f" ({rel.key})"
+    if tag in label:
+        return " ".join(label.replace(tag, "").split()) + f" (size: {rel.display_name})"
+    return label.replace(rel.key, rel.display_name)
 
-    order = [i for i, parts in enumerate(parts_by_line) if parts]
-    step = max(1, math.ceil(len(order) / _MAX_LABELS))
-    chosen = order[::step]
-    min_gap = 0.07  # fraction of the longer map side between two labels
-    placed: list[tuple[float, float]] = [norm_xy(x, y) for x, y in obstacles_xy]
-    out: list[tuple[str, float, float, float]] = []
-    fractions = (0.5, 0.3, 0.7, 0.15, 0.85, 0.4, 0.6, 0.05, 0.95)
-    for k, i in enumerate(chosen):
-        parts = parts_by_line[i]
-        lengths = [float(np.hypot(*np.diff(p, axis=0).T).sum()) for p in parts]
-        best = int(np.argmax(lengths))
-        if lengths[best] < 0.04 * scale:
+
+# ---------------------------------------------------------------------------
+# Colour classes
+# ---------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class ColourClasses:
+    """Classes of a map's colours and how its colour bar shows them.
+
+    Attributes
+    ----------
+    edges : tuple of float
+        Strictly increasing class edges (minutes); class ``k`` holds values in
+        ``[edges[k], edges[k + 1])``.
+    colors : tuple of str
+        One ``"#rrggbb"`` colour per class (``len(edges) - 1``).
+    label : str
+        Colour-bar label.
+    ticks : tuple of float, optional
+        Colour-bar ticks; by default the class edges.
+    tick_labels : tuple of str, optional
+        Text at each tick; by default the tick values (a long list shows
+        every second or third label, every tick still drawn).
+    """
+
+    edges: tuple[float, ...]
+    colors: tuple[str, ...]
+    label: str
+    ticks: tuple[float, ...] | None = None
+    tick_labels: tuple[str, ...] | None = None
+
+    def __post_init__(self) -> None:
+        e = np.asarray(self.edges, dtype=np.float64)
+        if e.ndim != 1 or e.size < 2 or not np.all(np.isfinite(e)) or np.any(np.diff(e) <= 0):
+            raise InputDataError(f"class edges {self.edges!r} must be >= 2 increasing finite values")
+        if len(self.colors) != e.size - 1:
+            raise InputDataError(
+                f"{len(self.colors)} colours for {e.size - 1} classes; give one colour per class"
+            )
+
+
+def class_edges_min(levels_min: ArrayLike | None, vmax_min: float, vmin_min: float = 0.0) -> list[float]:
+    """Class edges of an arrival map: ``vmin_min``, the isochrone levels, one level past the data.
+
+    The colour classes are the isochrone intervals, so a colour-bar tick, a
+    class edge and an isochrone are the same minute. Levels beyond the
+    latest arrival are dropped but for the first, which closes the last class;
+    if there is none, the last step is repeated until it passes ``vmax_min``.
+
+    Examples
+    --------
+    >>> class_edges_min([10, 20, 30, 40], 25.0)
+    [0.0, 10.0, 20.0, 30.0]
+    >>> class_edges_min([10, 20], 47.0)
+    [0.0, 10.0, 20.0, 30.0, 40.0, 50.0]
+    >>> class_edges_min(None, 47.0)
+    [0.0, 10.0, 20.0, 30.0, 40.0, 50.0]
+    """
+    from ttmap.products.isochrones import default_levels_min
+
+    top = max(float(vmax_min), float(vmin_min) + 1e-9)
+    if levels_min is None:
+        levels = [float(v) for v in default_levels_min(max(top, 1.0))]
+    else:
+        levels = sorted({float(v) for v in np.ravel(np.asarray(levels_min, dtype=np.float64))})
+    edges = [float(vmin_min)]
+    for v in levels:
+        if v <= edges[-1]:
             continue
-        part = parts[best]
+        edges.append(v)
+        if v >= top:
+            break
+    if edges[-1] < top:
+        step = edges[-1] - edges[-2] if len(edges) >= 2 else _tick_step_min(top - edges[0])
+        step = step if step > 0 else 10.0
+        while edges[-1] < top:
+            edges.append(edges[-1] + step)
+    if len(edges) < 2:
+        edges.append(edges[0] + 10.0)
+    return edges
+
+
+def arrival_classes(
+    edges_min: Sequence[float], *, label: str, cmap: str | Colormap = DEFAULT_CMAP
+) -> ColourClasses:
+    """Arrival colour classes: one colour per class from the arrival ramp, earliest first."""
+    from matplotlib.colors import to_hex
+
+    colormap = _resolve_cmap(cmap)
+    n = len(edges_min) - 1
+    pos = np.linspace(0.0, 1.0, n) if n > 1 else np.zeros(1)
+    colors = tuple(to_hex(colormap(float(p)), keep_alpha=False) for p in pos)
+    return ColourClasses(tuple(float(e) for e in edges_min), colors, label)
+
+
+def diverging_classes(
+    lowest: float,
+    highest: float,
+    *,
+    step: float | None = None,
+    positive_edges: Sequence[float] | None = None,
+    label: str,
+    cmap: str = DIVERGING_CMAP,
+) -> ColourClasses:
+    """Classes around zero: red below zero, blue above, darker away from zero on each side.
+
+    Zero is always a class edge. Negative classes are ``step`` wide (by
+    default a round step giving about 8 classes on the longer side); the
+    positive side uses the same step, or ``positive_edges`` (increasing, from
+    0) when given, extended by its last step until it passes ``highest``.
+    The class nearest zero on the negative side is always a clear red, so a
+    single "before the message" class is never pale.
+
+    Examples
+    --------
+    >>> diverging_classes(-7.0, 23.0, step=10.0, label="x").edges
+    (-10.0, 0.0, 10.0, 20.0, 30.0)
+    >>> diverging_classes(-7.0, 50.0, step=5.0, positive_edges=[0, 10, 30], label="x").edges
+    (-10.0, -5.0, 0.0, 10.0, 30.0, 50.0)
+    """
+    import matplotlib
+    from matplotlib.colors import to_hex
+
+    lo, hi = min(float(lowest), 0.0), max(float(highest), 0.0)
+    if step is None or not (step > 0):
+        step = _tick_step_min(max(abs(lo), abs(hi), 1.0))
+    n_neg = int(math.ceil(-lo / step - 1e-9)) if lo < 0 else 0
+    neg_edges = [float(-k * step) for k in range(n_neg, 0, -1)]
+    if positive_edges is not None:
+        pos = [float(v) for v in positive_edges if float(v) > 0.0]
+        last_step = (pos[-1] - (pos[-2] if len(pos) > 1 else 0.0)) if pos else float(step)
+        pos = [p for p in pos if p < hi] if pos else []
+        top = pos[-1] if pos else 0.0
+        following = [float(v) for v in positive_edges if float(v) >= hi and float(v) > 0.0]
+        if hi > top:
+            pos.append(following[0] if following else top + last_step * math.ceil((hi - top) / last_step))
+    else:
+        n_pos = int(math.ceil(hi / step - 1e-9)) if hi > 0 else 0
+        pos = [float(k * step) for k in range(1, n_pos + 1)]
+    if not neg_edges and not pos:
+        pos = [float(step)]
+    edges = (*neg_edges, 0.0, *pos)
+    ramp = matplotlib.colormaps[cmap]
+    n_n, n_p = len(neg_edges), len(pos)
+    neg_colors = [to_hex(ramp(max(0.0, 0.5 - (0.22 + 0.33 * k / n_n))), keep_alpha=False)
+                  for k in range(n_n, 0, -1)]
+    pos_colors = [to_hex(ramp(min(1.0, 0.5 + (0.12 + 0.38 * k / n_p))), keep_alpha=False)
+                  for k in range(1, n_p + 1)]
+    return ColourClasses(tuple(edges), tuple(neg_colors + pos_colors), label)
+
+
+#: Positive class edges of the minutes-left map: fine near zero, where the
+#: decision is, then wider (minutes).
+MINUTES_LEFT_EDGES: tuple[float, ...] = (0, 5, 10, 15, 20, 30, 45, 60, 90, 120, 180, 240, 360)
+
+
+# ---------------------------------------------------------------------------
+# Label placement (display pixels)
+# ---------------------------------------------------------------------------
+
+
+def _overlaps(box: tuple[float, float, float, float], boxes: NDArray[np.float64], pad: float) -> bool:
+    """True if ``box`` (x0, y0, x1, y1) comes within ``pad`` px of any row of ``boxes``."""
+    if boxes.size == 0:
+        return False
+    x0, y0, x1, y1 = box
+    return bool(
+        np.any(
+            (boxes[:, 0] - pad < x1)
+            & (boxes[:, 2] + pad > x0)
+            & (boxes[:, 1] - pad < y1)
+            & (boxes[:, 3] + pad > y0)
+        )
+    )
+
+
+class _Boxes:
+    """Placed boxes in display pixels (site markers, names, labels, the source)."""
+
+    def __init__(self) -> None:
+        self._rows: list[tuple[float, float, float, float]] = []
+        self._array: NDArray[np.float64] = np.zeros((0, 4))
+
+    def add(self, box: tuple[float, float, float, float]) -> None:
+        self._rows.append(box)
+        self._array = np.asarray(self._rows, dtype=np.float64)
+
+    def hits(self, box: tuple[float, float, float, float], pad: float) -> bool:
+        return _overlaps(box, self._array, pad)
+
+
+def _inside(box: tuple[float, float, float, float], frame: Any, margin: float) -> bool:
+    return bool(
+        box[0] >= frame.x0 + margin
+        and box[2] <= frame.x1 - margin
+        and box[1] >= frame.y0 + margin
+        and box[3] <= frame.y1 - margin
+    )
+
+
+def _rotated_box(
+    cx: float, cy: float, w: float, h: float, angle_deg: float
+) -> tuple[float, float, float, float]:
+    a = math.radians(angle_deg)
+    bw = abs(w * math.cos(a)) + abs(h * math.sin(a))
+    bh = abs(w * math.sin(a)) + abs(h * math.cos(a))
+    return (cx - bw / 2.0, cy - bh / 2.0, cx + bw / 2.0, cy + bh / 2.0)
+
+
+_Place = tuple[int, int, Literal["left", "center", "right"], Literal["bottom", "center", "top"]]
+
+
+def _place_site_names(
+    ax: Axes,
+    names: Sequence[str],
+    xy: NDArray[np.float64],
+    xy_px: NDArray[np.float64],
+    taken: _Boxes,
+    renderer: Any,
+    fontsize: float,
+) -> None:
+    """Put each site name beside its marker where it overlaps nothing and stays in the map.
+
+    Tries right, left, above, below, then the diagonals; the first place
+    inside the map that overlaps no marker, name or source wins; if every
+    place overlaps something, the first one inside the map is kept.
+    """
+    from matplotlib import patheffects
+
+    halo = [patheffects.withStroke(linewidth=2.6, foreground="white")]
+    frame = ax.get_window_extent(renderer)
+    # (dx, dy) in points from the marker, ha, va
+    candidates: list[_Place] = [
+        (6, 0, "left", "center"), (-6, 0, "right", "center"),
+        (0, 6, "center", "bottom"), (0, -6, "center", "top"),
+        (5, 5, "left", "bottom"), (5, -5, "left", "top"),
+        (-5, 5, "right", "bottom"), (-5, -5, "right", "top"),
+        (12, 10, "left", "bottom"), (-12, -10, "right", "top"),
+        (12, -10, "left", "top"), (-12, 10, "right", "bottom"),
+    ]
+    for name, (x, y), (px, _py) in zip(names, xy, xy_px, strict=True):
+        shown = "\n".join(textwrap.wrap(name, 24)) if len(name) > 28 else name
+        text = ax.annotate(
+            shown, (float(x), float(y)), xytext=(6, 0), textcoords="offset points",
+            fontsize=fontsize, color="black", zorder=9.5, path_effects=halo,
+            annotation_clip=False, gid="site-label",
+        )
+        chosen: _Place | None = None
+        fallback: _Place | None = None
+        for cand in candidates:
+            text.xyann = (cand[0], cand[1])
+            text.set_horizontalalignment(cand[2])
+            text.set_verticalalignment(cand[3])
+            bb = text.get_window_extent(renderer)
+            box = (bb.x0, bb.y0, bb.x1, bb.y1)
+            if not _inside(box, frame, 1.0):
+                continue
+            if fallback is None:
+                fallback = cand
+            if not taken.hits(box, 2.0):
+                chosen = cand
+                break
+        if chosen is None and fallback is None:
+            # no place inside the map: a smaller name on the side with more room
+            text.set_fontsize(fontsize * 0.8)
+            right = px < 0.5 * (frame.x0 + frame.x1)
+            fallback = (6, 0, "left", "center") if right else (-6, 0, "right", "center")
+        final = chosen or fallback
+        assert final is not None
+        text.xyann = (final[0], final[1])
+        text.set_horizontalalignment(final[2])
+        text.set_verticalalignment(final[3])
+        bb = text.get_window_extent(renderer)
+        taken.add((bb.x0, bb.y0, bb.x1, bb.y1))
+
+
+def _line_candidates(
+    parts_px: Sequence[NDArray[np.float64]], spacing_px: float
+) -> list[tuple[float, float, float, float]]:
+    """(x, y, angle_deg, fraction) every ``spacing_px`` along each part, in display pixels."""
+    out: list[tuple[float, float, float, float]] = []
+    for part in parts_px:
+        if len(part) < 2:
+            continue
         seg = np.hypot(*np.diff(part, axis=0).T)
         cum = np.concatenate([[0.0], np.cumsum(seg)])
-        # Rotate the start so neighbouring levels do not stack their labels.
-        shifted = fractions[k % len(fractions) :] + fractions[: k % len(fractions)]
-        for frac in shifted:
-            target = frac * cum[-1]
+        total = float(cum[-1])
+        if total < 2.0 * spacing_px:
+            continue
+        for target in np.arange(spacing_px, total - spacing_px + 1e-9, spacing_px / 2.0):
             j = int(np.clip(np.searchsorted(cum, target) - 1, 0, len(seg) - 1))
             t = 0.0 if seg[j] == 0 else (target - cum[j]) / seg[j]
             x, y = part[j] + t * (part[j + 1] - part[j])
-            nx, ny = norm_xy(x, y)
-            if not (0.03 < nx < span_x / scale - 0.03 and 0.03 < ny < span_y / scale - 0.03):
-                continue
-            if any(math.hypot(nx - px, ny - py) < min_gap for px, py in placed):
-                continue
-            # direction from a few vertices either side, in display proportions
-            j0, j1 = max(0, j - 3), min(len(part) - 1, j + 4)
-            dx, dy = part[j1] - part[j0]
-            angle = math.degrees(math.atan2(dy * aspect, dx))
+            # direction over about half a label either side
+            k0 = int(np.clip(np.searchsorted(cum, target - spacing_px / 2.0), 0, len(part) - 1))
+            k1 = int(np.clip(np.searchsorted(cum, target + spacing_px / 2.0), 0, len(part) - 1))
+            if k1 <= k0:
+                k0, k1 = max(0, j), min(len(part) - 1, j + 1)
+            dx, dy = part[k1] - part[k0]
+            angle = math.degrees(math.atan2(dy, dx))
             if angle > 90:
                 angle -= 180
             elif angle < -90:
                 angle += 180
-            placed.append((nx, ny))
-            out.append((lines[i].label, float(x), float(y), angle))
-            break
+            out.append((float(x), float(y), angle, float(target / total)))
     return out
 
 
-def _obstacle_points(
-    source_geometry: BaseGeometry | None, sites: Sequence[tuple[str, float, float]] | None
-) -> list[tuple[float, float]]:
-    """Points where no isochrone label should go: along the source, and at the sites."""
-    import shapely
+def _place_isochrone_labels(
+    ax: Axes,
+    lines: Sequence[IsochroneLine],
+    parts_by_line: Sequence[list[NDArray[np.float64]]],
+    targets_px: NDArray[np.float64],
+    taken: _Boxes,
+    renderer: Any,
+    fontsize: float = 7.5,
+    max_labels: int = _MAX_LABELS,
+) -> int:
+    """Label isochrones ``h:mm`` where they pass near the coast (the sites) and in open water.
 
-    points: list[tuple[float, float]] = []
-    if source_geometry is not None and not source_geometry.is_empty:
-        for part in shapely.get_parts(shapely.get_parts(source_geometry)):
-            if part.is_empty:
+    Each line gets at most one label near a target (a site, or the coast
+    when there are no sites) and one far from it. A label goes where its
+    box overlaps no site marker, site name, source or other label; where the
+    lines crowd, some lines stay without a label rather than labels
+    overlapping. Returns the number of labels drawn.
+    """
+    from matplotlib.text import Text
+
+    if not lines:
+        return 0
+    frame = ax.get_window_extent(renderer)
+    probe = Text(0, 0, "0:00", fontsize=fontsize, figure=ax.figure)
+    pbb = probe.get_window_extent(renderer)
+    char_w = pbb.width / 4.0
+    h = pbb.height + 3.0  # the white box pads the text
+    to_px = ax.transData.transform
+    candidates: list[list[tuple[float, float, float, float]]] = []
+    widths: list[float] = []
+    for ln, parts in zip(lines, parts_by_line, strict=True):
+        w = char_w * len(ln.label) + 4.0
+        widths.append(w)
+        px_parts = [to_px(p) for p in parts]
+        candidates.append(_line_candidates(px_parts, w * 1.2))
+    near_px = 0.12 * max(frame.width, frame.height)
+
+    def dist(c: tuple[float, float, float, float]) -> float:
+        if targets_px.size == 0:
+            return math.inf
+        return float(np.min(np.hypot(targets_px[:, 0] - c[0], targets_px[:, 1] - c[1])))
+
+    placed: list[tuple[int, float, float, float]] = []
+    first_at: dict[int, tuple[float, float]] = {}
+
+    def try_place(i: int, ordered: list[tuple[float, float, float, float]]) -> bool:
+        for x, y, angle, _ in ordered:
+            box = _rotated_box(x, y, widths[i], h, angle)
+            if not _inside(box, frame, 3.0) or taken.hits(box, 2.0):
                 continue
-            if part.geom_type == "Point":
-                points.append((part.x, part.y))
+            if i in first_at and math.hypot(x - first_at[i][0], y - first_at[i][1]) < 0.25 * max(
+                frame.width, frame.height
+            ):
                 continue
-            outline = part.exterior if part.geom_type == "Polygon" else part
-            along = shapely.line_interpolate_point(
-                outline, np.linspace(0.0, 1.0, 17), normalized=True
-            )
-            points.extend(map(tuple, shapely.get_coordinates(along)))
-            centre = part.centroid
-            points.append((centre.x, centre.y))
-    for item in sites or []:
-        try:
-            points.append((float(item[1]), float(item[2])))
-        except (TypeError, ValueError, IndexError):
-            continue  # reported by _draw_sites
-    return points
+            taken.add(box)
+            placed.append((i, x, y, angle))
+            first_at.setdefault(i, (x, y))
+            return True
+        return False
+
+    # 1. near the coast: the part of each line closest to a site (or the coast)
+    if targets_px.size:
+        for i, cands in enumerate(candidates):
+            if len(placed) >= max_labels:
+                break
+            near = sorted((c for c in cands if dist(c) <= near_px), key=dist)
+            try_place(i, near)
+    # 2. in open water: mid-line first
+    for i, cands in enumerate(candidates):
+        if len(placed) >= max_labels:
+            break
+        far = [c for c in cands if dist(c) > near_px]
+        far.sort(key=lambda c: abs(c[3] - 0.5))
+        try_place(i, far)
+    inv = ax.transData.inverted()
+    for i, x, y, angle in placed:
+        dx, dy = inv.transform((x, y))
+        ax.text(
+            float(dx), float(dy), lines[i].label, fontsize=fontsize, color="black",
+            ha="center", va="center", rotation=angle, rotation_mode="anchor", zorder=5,
+            clip_on=True, gid="isochrone-label",
+            bbox={"boxstyle": "round,pad=0.12", "facecolor": "white", "edgecolor": "none",
+                  "alpha": 0.85},
+        )
+    return len(placed)
 
 
-def _draw_source(ax: Axes, geometry: BaseGeometry) -> list[Any]:
-    """Draw a source geometry; return legend handles."""
+# ---------------------------------------------------------------------------
+# Source and site symbols
+# ---------------------------------------------------------------------------
+
+
+def _source_handles(geometry: BaseGeometry | None, event: str) -> list[Any]:
+    """Legend entries of the source: a star for a point, a red outline for a line or area."""
     import shapely
     from matplotlib.lines import Line2D
 
-    handles: list[Any] = []
-    parts = [p for p in shapely.get_parts(shapely.get_parts(geometry)) if not p.is_empty]
+    if geometry is None or geometry.is_empty:
+        return []
     kinds = set()
-    for part in parts:
+    for part in shapely.get_parts(shapely.get_parts(geometry)):
+        if part.is_empty:
+            continue
         kind = part.geom_type
         if kind == "Point":
-            ax.plot(
-                part.x,
-                part.y,
-                marker="*",
-                markersize=17,
-                markerfacecolor=_SOURCE_COLOR,
-                markeredgecolor="black",
-                markeredgewidth=0.9,
-                linestyle="none",
-                zorder=8,
-            )
             kinds.add("point")
         elif kind in ("LineString", "LinearRing"):
-            xy = np.asarray(part.coords)
-            ax.plot(
-                xy[:, 0], xy[:, 1], color="black", linewidth=4.2, zorder=7, solid_capstyle="round"
-            )
-            ax.plot(
-                xy[:, 0],
-                xy[:, 1],
-                color=_SOURCE_COLOR,
-                linewidth=2.6,
-                zorder=7.1,
-                solid_capstyle="round",
-            )
             kinds.add("line")
         elif kind == "Polygon":
-            for ring in [part.exterior, *part.interiors]:
-                xy = np.asarray(ring.coords)
-                ax.fill(
-                    xy[:, 0],
-                    xy[:, 1],
-                    facecolor=_SOURCE_COLOR,
-                    alpha=0.25,
-                    zorder=6.9,
-                    edgecolor="none",
-                )
-                ax.plot(xy[:, 0], xy[:, 1], color="black", linewidth=3.0, zorder=7)
-                ax.plot(xy[:, 0], xy[:, 1], color=_SOURCE_COLOR, linewidth=1.8, zorder=7.1)
             kinds.add("area")
         else:
             raise InputDataError(
                 f"source_geometry part of type {kind} cannot be drawn; "
                 "pass a Point, LineString or Polygon (or Multi- of them) in map coordinates"
             )
+    handles: list[Any] = []
     if "point" in kinds:
-        handles.append(
-            Line2D(
-                [],
-                [],
-                marker="*",
-                markersize=12,
-                markerfacecolor=_SOURCE_COLOR,
-                markeredgecolor="black",
-                linestyle="none",
-                label="Source",
-            )
-        )
+        handles.append(Line2D([], [], marker="*", markersize=13, markerfacecolor=_SOURCE_COLOR,
+                              markeredgecolor="black", markeredgewidth=0.9, linestyle="none",
+                              label=f"Source ({event})"))
     if kinds & {"line", "area"}:
-        handles.append(
-            Line2D(
-                [],
-                [],
-                color=_SOURCE_COLOR,
-                linewidth=2.6,
-                label="Source area" if "area" in kinds else "Source line",
-            )
-        )
+        handles.append(Line2D([], [], color=_SOURCE_COLOR, linewidth=2.6,
+                              label="Source area" if "area" in kinds else "Source line"))
     return handles
 
 
-def _draw_sites(ax: Axes, sites: Sequence[tuple[str, float, float]]) -> list[Any]:
-    from matplotlib import patheffects
-    from matplotlib.lines import Line2D
+def _draw_source(ax: Axes, geometry: BaseGeometry) -> list[tuple[float, float]]:
+    """Draw a source geometry; return its points (map coordinates) that labels keep clear of."""
+    import shapely
 
-    if not sites:
-        return []
-    names, xs, ys = [], [], []
+    keep_clear: list[tuple[float, float]] = []
+    for part in shapely.get_parts(shapely.get_parts(geometry)):
+        if part.is_empty:
+            continue
+        kind = part.geom_type
+        if kind == "Point":
+            ax.plot(part.x, part.y, marker="*", markersize=17, markerfacecolor=_SOURCE_COLOR,
+                    markeredgecolor="black", markeredgewidth=0.9, linestyle="none", zorder=8,
+                    gid="source")
+            keep_clear.append((part.x, part.y))
+        elif kind in ("LineString", "LinearRing"):
+            xy = np.asarray(part.coords)
+            ax.plot(xy[:, 0], xy[:, 1], color="black", linewidth=4.2, zorder=7, solid_capstyle="round")
+            ax.plot(xy[:, 0], xy[:, 1], color=_SOURCE_COLOR, linewidth=2.6, zorder=7.1,
+                    solid_capstyle="round", gid="source")
+            keep_clear.extend(map(tuple, shapely.get_coordinates(
+                shapely.line_interpolate_point(part, np.linspace(0, 1, 17), normalized=True))))
+        elif kind == "Polygon":
+            for ring in [part.exterior, *part.interiors]:
+                xy = np.asarray(ring.coords)
+                ax.fill(xy[:, 0], xy[:, 1], facecolor=_SOURCE_COLOR, alpha=0.25, zorder=6.9,
+                        edgecolor="none")
+                ax.plot(xy[:, 0], xy[:, 1], color="black", linewidth=3.0, zorder=7)
+                ax.plot(xy[:, 0], xy[:, 1], color=_SOURCE_COLOR, linewidth=1.8, zorder=7.1,
+                        gid="source")
+            keep_clear.extend(map(tuple, shapely.get_coordinates(shapely.line_interpolate_point(
+                part.exterior, np.linspace(0, 1, 17), normalized=True))))
+    return keep_clear
+
+
+def _check_sites(sites: Sequence[tuple[str, float, float]]) -> tuple[list[str], NDArray[np.float64]]:
+    names: list[str] = []
+    xy: list[tuple[float, float]] = []
     for item in sites:
         try:
             name, x, y = item
-            xf, yf = float(x), float(y)
+            xy.append((float(x), float(y)))
         except (TypeError, ValueError) as err:
             raise InputDataError(
                 f"each site must be (name, x, y) in map coordinates, got {item!r}"
             ) from err
         names.append(str(name))
-        xs.append(xf)
-        ys.append(yf)
-    ax.plot(
-        xs,
-        ys,
-        marker="o",
-        markersize=5.5,
-        markerfacecolor="white",
-        markeredgecolor="black",
-        markeredgewidth=1.1,
-        linestyle="none",
-        zorder=9,
-    )
-    halo = [patheffects.withStroke(linewidth=2.6, foreground="white")]
-    x0, x1 = sorted(ax.get_xlim())
-    for name, x, y in zip(names, xs, ys, strict=True):
-        # Labels of sites in the right quarter go to the left, so the frame does not cut them.
-        right = (x - x0) > 0.75 * (x1 - x0)
-        ax.annotate(
-            name,
-            (x, y),
-            xytext=(-5, 4) if right else (5, 4),
-            ha="right" if right else "left",
-            textcoords="offset points",
-            fontsize=8,
-            color="black",
-            zorder=9.5,
-            path_effects=halo,
-            clip_on=True,
-        )
-    return [
-        Line2D(
-            [],
-            [],
-            marker="o",
-            markersize=5.5,
-            markerfacecolor="white",
-            markeredgecolor="black",
-            linestyle="none",
-            label="Site",
-        )
-    ]
+    return names, np.asarray(xy, dtype=np.float64).reshape(-1, 2)
+
+
+def _site_handle(label: str) -> Any:
+    from matplotlib.lines import Line2D
+
+    return Line2D([], [], marker="o", markersize=6, markerfacecolor="white",
+                  markeredgecolor=_SITE_EDGE, markeredgewidth=1.3, linestyle="none", label=label)
 
 
 # ---------------------------------------------------------------------------
@@ -549,14 +858,19 @@ def render_arrival_map(
     cmap: str | Colormap = DEFAULT_CMAP,
     figsize: tuple[float, float] = (10.0, 8.0),
     dpi: float = 150.0,
+    levels_min: ArrayLike | None = None,
+    source_kind: str | None = None,
+    colorbar_label: str | None = None,
+    line_legend: str | None = None,
+    site_legend: str = "Site",
 ) -> Figure:
-    """Draw an arrival-time map: colours, land, coast, isochrones, source, sites, caution.
+    """Draw an arrival-time map: colour classes, land, coast, isochrones, source, sites, caution.
 
     Parameters
     ----------
     time_min : ndarray of shape (rows, cols), float, minutes
-        Arrival time after origin; NaN on land and where the wave never
-        arrives.
+        Arrival time after the earthquake (or event); NaN on land and where
+        the wave never arrives.
     transform : affine.Affine
         Maps pixel-corner ``(col, row)`` to map ``(x, y)`` (rasterio
         convention). North-up, south-up and mirrored grids are drawn as
@@ -567,41 +881,44 @@ def render_arrival_map(
     lines : sequence of IsochroneLine
         Isochrones in map coordinates, from
         :func:`ttmap.products.isochrones.isochrone_lines`; drawn as thin dark
-        lines, a readable subset labelled ``h:mm``.
+        lines, labelled ``h:mm`` near the sites (or the coast) and in open
+        water where a label overlaps nothing else.
     source_geometry : shapely geometry, optional
-        The source in map coordinates (the raster's CRS): a Point is drawn as
-        a star, a LineString as a thick line, a Polygon as an outline with a
+        The source in map coordinates: a Point is drawn as a black-edged red
+        star, a LineString as a thick line, a Polygon as an outline with a
         light fill; Multi- geometries and collections of these work too.
     sites : sequence of (name, x, y), optional
-        Named places in map coordinates, drawn as circles with their names.
-    title : str
-        Main title, e.g. the scenario name.
-    subtitle : str, optional
-        Second line under the title, e.g. the source and speed model.
+        Named places in map coordinates, drawn as white circles with a dark
+        edge, their names placed clear of each other and of the labels.
+    title, subtitle : str
+        Title and second line; both are shrunk a little and then wrapped to
+        fit the figure width.
     is_geographic : bool
         True if ``x, y`` are longitude, latitude in degrees: axes are labelled
-        in degrees and stretched by ``1 / cos(mid-latitude)`` so that shapes
-        near the centre are not squashed. False for projected metres.
+        in degrees and stretched by ``1 / cos(mid-latitude)``.
     caution : str, optional
-        Text of the caution footer, wrapped to the figure width. A text of
-        several lines (such as
-        :data:`ttmap.products.cautions.CAUTION_TEXT`) is shown as a list, one
-        bullet per line.
+        Text of the caution footer, wrapped to the figure width, with the
+        natural-warning line added (:func:`ttmap.products._footer.with_natural_warning`).
     max_pixels : int, optional
-        Largest number of raster cells drawn. A grid with more cells, or
-        (north-up, south-up or mirrored grids) with at least twice as many
-        cells per axis as the drawn map box has pixels, is sampled every
-        ``s``-th row and column (the middle cell of each ``s x s`` block),
-        with ``s`` as large as keeps at least one cell per pixel. Only the
-        picture is sampled: isochrones are drawn as given.
+        Largest number of raster cells drawn (see Notes).
     cmap : str or matplotlib Colormap, optional
-        Colour map of the arrival times, first colour = earliest. The default
-        is the ramp shared with the style files,
-        :data:`ttmap.products.palette.ARRIVAL_CMAP`.
+        Colour map of the classes, first colour = earliest
+        (:data:`ttmap.products.palette.ARRIVAL_CMAP` by default).
     figsize : (float, float), optional
         Figure width and height, inches.
     dpi : float, optional
         Resolution used by :func:`save_figure` for PNG files.
+    levels_min : array-like of float, optional
+        Class edges in minutes; by default the levels of ``lines`` (or the
+        default isochrone levels if there are none). Colour classes,
+        colour-bar ticks and isochrones share these edges
+        (:func:`class_edges_min`).
+    source_kind : str, optional
+        ``"point"``, ``"rupture"``, ``"line"`` or ``"area"``: the time axis
+        reads "minutes after the earthquake" for points and ruptures, "after
+        the event" otherwise (:func:`ttmap.products.cautions.minutes_after`).
+    colorbar_label, line_legend, site_legend : str, optional
+        Replace the colour-bar label, the isochrone and the site legend entries.
 
     Returns
     -------
@@ -616,31 +933,81 @@ def render_arrival_map(
 
     Notes
     -----
-    The colour scale runs from 0 to the latest arrival in ``time_min``; the
-    isochrone levels are marked on the colour bar as dark ticks. Lines with
-    more than 300 000 vertices in total are simplified to about a third of a
-    drawn pixel before drawing.
+    A grid with more than ``max_pixels`` cells, or with at least twice as
+    many cells per axis as the drawn map box has pixels, is sampled every
+    ``s``-th row and column (the middle cell of each block); isochrones are
+    drawn as given (simplified to a third of a pixel above 300 000 vertices).
+    """
+    field, _ = _check_inputs(time_min, transform, land_mask, max_pixels, figsize, dpi)
+    finite = np.isfinite(field)
+    vmax = float(np.max(field, where=finite, initial=-np.inf)) if finite.any() else 60.0
+    if levels_min is None and lines:
+        levels_min = [ln.minutes for ln in lines]
+    edges = class_edges_min(levels_min, max(vmax, 1e-6))
+    phrase = minutes_after(source_kind)
+    classes = arrival_classes(
+        edges, label=colorbar_label or f"Arrival time ({phrase})", cmap=cmap
+    )
+    return render_class_map(
+        time_min, transform, classes=classes, land_mask=land_mask, lines=lines,
+        source_geometry=source_geometry, sites=sites, title=title, subtitle=subtitle,
+        is_geographic=is_geographic, caution=caution, max_pixels=max_pixels, figsize=figsize,
+        dpi=dpi, source_kind=source_kind,
+        line_legend=line_legend or f"Isochrone (h:mm after the {event_word(source_kind)})",
+        site_legend=site_legend,
+    )
+
+
+def render_class_map(
+    values: ArrayLike,
+    transform: Affine,
+    *,
+    classes: ColourClasses,
+    land_mask: ArrayLike | None,
+    lines: Sequence[IsochroneLine] = (),
+    source_geometry: BaseGeometry | None = None,
+    sites: Sequence[tuple[str, float, float]] | None = None,
+    title: str,
+    subtitle: str = "",
+    is_geographic: bool,
+    caution: str = CAUTION_SHORT,
+    max_pixels: int = 2_000_000,
+    figsize: tuple[float, float] = (10.0, 8.0),
+    dpi: float = 150.0,
+    source_kind: str | None = None,
+    line_legend: str = "Isochrone (h:mm)",
+    site_legend: str = "Site",
+    nodata_legend: str = "No arrival computed",
+    extra_legend: Sequence[Any] = (),
+) -> Figure:
+    """Draw a raster in colour classes with land, coast, lines, source, sites and the caution.
+
+    The shared engine of :func:`render_arrival_map` and the other maps
+    (minutes left, scenario envelope, first scenario, differences). Values
+    below the first edge take the first class's colour and values above the
+    last the last one's; NaN cells are drawn as "no value" (``nodata_legend``).
+    The colour bar shows the classes in proportion with a tick on every edge
+    (or ``classes.ticks``). Layout: the title block, the legend and the
+    caution footer are measured first, the map takes the rest.
+
+    Parameters are those of :func:`render_arrival_map`; ``extra_legend``
+    adds matplotlib legend handles.
     """
     from matplotlib.backends.backend_agg import FigureCanvasAgg
     from matplotlib.cm import ScalarMappable
     from matplotlib.collections import LineCollection
-    from matplotlib.colors import ListedColormap, Normalize
+    from matplotlib.colors import BoundaryNorm, ListedColormap, Normalize
     from matplotlib.figure import Figure
     from matplotlib.lines import Line2D
     from matplotlib.patches import Patch
-    from matplotlib.ticker import FuncFormatter, MultipleLocator
+    from matplotlib.ticker import FixedLocator, FuncFormatter
 
-    field, land = _check_inputs(time_min, transform, land_mask, max_pixels, figsize, dpi)
-    colormap = _resolve_cmap(cmap)
-
-    # --- data preparation ---------------------------------------------------
-    finite = np.isfinite(field)
-    has_values = bool(finite.any())
-    vmax_min = float(np.max(field, where=finite, initial=-np.inf)) if has_values else 60.0
-    vmin_min = 0.0
-    if vmax_min <= vmin_min:
-        vmax_min = vmin_min + 1.0
-    norm = Normalize(vmin=vmin_min, vmax=vmax_min)
+    field, land = _check_inputs(values, transform, land_mask, max_pixels, figsize, dpi)
+    edges = np.asarray(classes.edges, dtype=np.float64)
+    colormap = ListedColormap(list(classes.colors)).with_extremes(
+        bad=(0.0, 0.0, 0.0, 0.0), under=classes.colors[0], over=classes.colors[-1]
+    )
+    norm = BoundaryNorm(edges, colormap.N, extend="neither", clip=True)
     bounds = _grid_bounds(transform, field.shape)
     xmin, xmax, ymin, ymax = bounds
     if is_geographic:
@@ -648,17 +1015,38 @@ def render_arrival_map(
         aspect = 1.0 / math.cos(math.radians(mid_lat))
     else:
         aspect = 1.0
+    site_names, site_xy = _check_sites(list(sites or []))
+    event = event_word(source_kind)
 
-    # --- figure layout (inches -> figure fractions) ---------------------------
+    # --- figure, then the parts around the map, measured ------------------------
     fig_w, fig_h = float(figsize[0]), float(figsize[1])
     fig = Figure(figsize=(fig_w, fig_h), dpi=dpi, facecolor="white")
     FigureCanvasAgg(fig)
+    renderer = fig.canvas.get_renderer()  # type: ignore[attr-defined]  # Agg canvas
     footer = caution_footer(caution, fig_w)
     footer_top = footer.top_in(0.06)
-    top_h = 0.62 + (0.25 if subtitle else 0.0)
-    legend_h = 0.3
-    legend_y = footer_top + 0.1 + legend_h / 2.0
-    bottom_h = footer_top + 0.1 + legend_h + 0.5  # footer, legend, x label and ticks
+    draw_caution_footer(fig, footer, fig_h)
+    top_h = draw_title_block(fig, title, subtitle)
+
+    all_finite = np.isfinite(field)
+    unreached_any = bool((~all_finite & (~land if land is not None else True)).any())
+    legend_items: list[Any] = []
+    if lines:
+        legend_items.append(Line2D([], [], color=_LINE_COLOR, linewidth=0.9, label=line_legend))
+    if land is not None and land.any():
+        legend_items.append(
+            Patch(facecolor=_LAND_RGBA, edgecolor=_COAST_COLOR, linewidth=0.6, label="Land")
+        )
+    if unreached_any:
+        legend_items.append(Patch(facecolor=_UNREACHED_RGB, edgecolor="#9aa0a6", linewidth=0.6,
+                                  label=nodata_legend))
+    legend_items += _source_handles(source_geometry, event)
+    if site_names:
+        legend_items.append(_site_handle(site_legend))
+    legend_items += list(extra_legend)
+    _, legend_h = place_legend(fig, legend_items, footer_top + 0.08, fontsize=8.0,
+                               handlelength=1.6, columnspacing=1.6)
+    bottom_h = footer_top + 0.08 + legend_h + 0.55  # footer, legend, x label and ticks
     left_in, right_in = 0.95, 1.35
     ax_rect = (
         left_in / fig_w,
@@ -673,12 +1061,14 @@ def render_arrival_map(
         )
     ax = fig.add_axes(ax_rect)
     ax.set_facecolor(_UNREACHED_RGB)
+    ax.set_xlim(xmin, xmax)
+    ax.set_ylim(ymin, ymax)
+    ax.set_aspect(aspect, adjustable="box", anchor="C")
+    ax.apply_aspect()
 
     # --- the image, sampled down to the drawn box's pixels (or max_pixels) -------
-    ax_w_in = ax_rect[2] * fig_w
-    ax_h_in = ax_rect[3] * fig_h
-    box_scale = min(ax_w_in / (xmax - xmin), ax_h_in / ((ymax - ymin) * aspect)) * dpi
-    box_px = (box_scale * (xmax - xmin), box_scale * (ymax - ymin) * aspect)
+    box = ax.get_window_extent(renderer)
+    box_px = (float(box.width), float(box.height))
     a_, b_, _, d_, e_, _ = tuple(transform)[:6]
     axis_aligned = b_ == 0.0 and d_ == 0.0
     stride = _decimation(field.shape, int(max_pixels))
@@ -688,8 +1078,7 @@ def render_arrival_map(
     shown = np.ma.masked_invalid(np.asarray(shown_values, dtype=np.float64))
     land_shown = _decimate(land, transform, stride)[0] if land is not None else None
 
-    # --- arrival colours, land, coast -----------------------------------------
-    image: Any = ScalarMappable(norm=norm, cmap=colormap)  # what the colour bar shows
+    image: Any = ScalarMappable(norm=norm, cmap=colormap)
     if axis_aligned:
         rgba = _arrival_rgba(shown.data, land_shown, colormap, norm)
         _draw_raster(ax, rgba, shown_transform, cmap=None, norm=None, zorder=1)
@@ -698,25 +1087,22 @@ def render_arrival_map(
         if land_shown is not None and land_shown.any():
             land_cmap = ListedColormap([_LAND_RGBA]).with_extremes(bad=(0, 0, 0, 0))
             land_values = np.ma.masked_array(np.zeros(land_shown.shape), mask=~land_shown)
-            _draw_raster(
-                ax,
-                land_values,
-                shown_transform,
-                cmap=land_cmap,
-                norm=Normalize(0.0, 1.0),
-                zorder=2,
-            )
+            _draw_raster(ax, land_values, shown_transform, cmap=land_cmap,
+                         norm=Normalize(0.0, 1.0), zorder=2)
+    # imshow resets the aspect: set it again, so the box drawn is the box measured
+    ax.set_xlim(xmin, xmax)
+    ax.set_ylim(ymin, ymax)
+    ax.set_aspect(aspect, adjustable="box", anchor="C")
+    ax.apply_aspect()
+    coast: list[NDArray[np.float64]] = []
     if land_shown is not None and land_shown.any():
         coast = _coastline_segments(land_shown, shown_transform)
         if coast:
-            ax.add_collection(
-                LineCollection(
-                    coast, colors=_COAST_COLOR, linewidths=0.6, zorder=3, gid="coastline"
-                )
-            )
+            ax.add_collection(LineCollection(coast, colors=_COAST_COLOR, linewidths=0.6,
+                                             zorder=3, gid="coastline"))
 
-    # --- isochrones -------------------------------------------------------------
-    data_per_pixel = max(xmax - xmin, (ymax - ymin) * aspect) / (ax_w_in * dpi)
+    # --- isochrones ---------------------------------------------------------------
+    data_per_pixel = max(xmax - xmin, (ymax - ymin) * aspect) / max(box_px[0], 1.0)
     total_vertices = 0
     if lines:
         import shapely
@@ -726,60 +1112,39 @@ def render_arrival_map(
     parts_by_line = [_line_parts(ln.geometry, simplify_m) for ln in lines]
     all_parts = [p for parts in parts_by_line for p in parts]
     if all_parts:
-        # The faint white casing is a collection of its own under the lines (not a
-        # path effect, which matplotlib draws path by path in Python: a second per
-        # 20 000 parts); both are drawn by Agg in one call each.
-        ax.add_collection(
-            LineCollection(
-                all_parts,
-                colors="white",
-                alpha=0.4,
-                linewidths=1.8,
-                capstyle="butt",
-                joinstyle="round",
-                zorder=3.9,
-                gid="isochrone-casing",
-            )
-        )
-        ax.add_collection(
-            LineCollection(
-                all_parts, colors=_LINE_COLOR, linewidths=0.75, zorder=4, gid="isochrones"
-            )
-        )
-    obstacles = _obstacle_points(source_geometry, sites)
-    for label, x, y, angle in _label_positions(lines, parts_by_line, bounds, aspect, obstacles):
-        ax.text(
-            x,
-            y,
-            label,
-            fontsize=7.5,
-            color="black",
-            ha="center",
-            va="center",
-            rotation=angle,
-            rotation_mode="anchor",
-            zorder=5,
-            clip_on=True,
-            bbox={
-                "boxstyle": "round,pad=0.12",
-                "facecolor": "white",
-                "edgecolor": "none",
-                "alpha": 0.85,
-            },
-        )
+        # casing first, then the lines: one Agg call each
+        ax.add_collection(LineCollection(all_parts, colors="white", alpha=0.4, linewidths=1.8,
+                                         capstyle="butt", joinstyle="round", zorder=3.9,
+                                         gid="isochrone-casing"))
+        ax.add_collection(LineCollection(all_parts, colors=_LINE_COLOR, linewidths=0.75,
+                                         zorder=4, gid="isochrones"))
 
-    # --- source and sites ---------------------------------------------------------
-    handles: list[Any] = []
+    # --- source, sites, names and labels (placed in display pixels) -------------------
+    taken = _Boxes()
+    keep_clear: list[tuple[float, float]] = []
     if source_geometry is not None and not source_geometry.is_empty:
-        handles += _draw_source(ax, source_geometry)
-    ax.set_xlim(xmin, xmax)
-    ax.set_ylim(ymin, ymax)
-    handles += _draw_sites(ax, list(sites or []))
+        keep_clear = _draw_source(ax, source_geometry)
+    for px, py in ax.transData.transform(np.asarray(keep_clear).reshape(-1, 2)):
+        taken.add((px - 9.0, py - 9.0, px + 9.0, py + 9.0))
+    site_px = ax.transData.transform(site_xy) if len(site_xy) else np.zeros((0, 2))
+    if len(site_xy):
+        ax.plot(site_xy[:, 0], site_xy[:, 1], marker="o", markersize=6.5,
+                markerfacecolor="white", markeredgecolor=_SITE_EDGE, markeredgewidth=1.4,
+                linestyle="none", zorder=9, gid="sites")
+        r = 6.5 * dpi / 72.0 / 2.0 + 1.0
+        for px, py in site_px:
+            taken.add((px - r, py - r, px + r, py + r))
+        _place_site_names(ax, site_names, site_xy, site_px, taken, renderer, 8.0)
+    if len(site_px):
+        targets = site_px
+    elif coast:
+        pts = np.concatenate(coast)
+        targets = ax.transData.transform(pts[:: max(1, len(pts) // 400)])
+    else:
+        targets = np.zeros((0, 2))
+    _place_isochrone_labels(ax, lines, parts_by_line, targets, taken, renderer)
 
-    # --- axes -----------------------------------------------------------------------
-    ax.set_xlim(xmin, xmax)
-    ax.set_ylim(ymin, ymax)
-    ax.set_aspect(aspect, adjustable="box", anchor="C")
+    # --- axes ---------------------------------------------------------------------
     if is_geographic:
         ax.set_xlabel("Longitude (°)")
         ax.set_ylabel("Latitude (°)")
@@ -796,62 +1161,44 @@ def render_arrival_map(
     for spine in ax.spines.values():
         spine.set_linewidth(0.8)
 
-    # --- colour bar (follows the drawn map box, whatever its aspect) -------------
+    # --- colour bar: the classes in proportion, a tick on every edge ------------------
     cax = ax.inset_axes((1.025, 0.0, 0.035, 1.0))
-    colorbar = fig.colorbar(image, cax=cax)
-    colorbar.set_label(COLORBAR_LABEL, fontsize=9)
-    colorbar.ax.yaxis.set_major_locator(MultipleLocator(_tick_step_min(vmax_min - vmin_min)))
+    colorbar = fig.colorbar(image, cax=cax, spacing="proportional", boundaries=edges)
+    colorbar.set_label(classes.label, fontsize=9)
+    ticks = np.asarray(classes.ticks if classes.ticks is not None else edges, dtype=np.float64)
+    colorbar.ax.yaxis.set_major_locator(FixedLocator([float(v) for v in ticks]))
+    colorbar.ax.yaxis.set_minor_locator(FixedLocator([]))
+    if classes.tick_labels is not None:
+        labels = list(classes.tick_labels)
+    else:
+        every = max(1, math.ceil(len(ticks) / 16))
+        labels = [f"{t:g}" if k % every == 0 or k == len(ticks) - 1 else ""
+                  for k, t in enumerate(ticks)]
+    colorbar.ax.yaxis.set_major_formatter(
+        FuncFormatter(lambda v, pos: labels[pos] if pos is not None and pos < len(labels) else "")
+    )
     colorbar.ax.tick_params(labelsize=8)
     colorbar.outline.set_linewidth(0.6)
-    levels = [ln.minutes for ln in lines if vmin_min <= ln.minutes <= vmax_min]
-    if levels:
-        colorbar.add_lines(
-            levels, colors=[_LINE_COLOR] * len(levels), linewidths=[0.7] * len(levels)
-        )
-
-    # --- legend -------------------------------------------------------------------
-    legend_items: list[Any] = []
-    if all_parts:
-        legend_items.append(
-            Line2D([], [], color=_LINE_COLOR, linewidth=0.9, label="Isochrone (h:mm after origin)")
-        )
-    if land_shown is not None and land_shown.any():
-        legend_items.append(
-            Patch(facecolor=_LAND_RGBA, edgecolor=_COAST_COLOR, linewidth=0.6, label="Land")
-        )
-    unreached = np.ma.getmaskarray(shown)
-    if land_shown is not None:
-        unreached = unreached & ~land_shown
-    if unreached.any():
-        legend_items.append(
-            Patch(
-                facecolor=_UNREACHED_RGB,
-                edgecolor="#9aa0a6",
-                linewidth=0.6,
-                label="No arrival computed",
-            )
-        )
-    legend_items += handles
-    if legend_items:
-        fig.legend(
-            handles=legend_items,
-            loc="center",
-            ncol=len(legend_items),
-            bbox_to_anchor=(0.5, legend_y / fig_h),
-            frameon=False,
-            fontsize=8,
-            handlelength=1.6,
-            columnspacing=1.6,
-        )
-
-    # --- titles and caution footer --------------------------------------------------
-    fig.text(0.5, 1.0 - 0.22 / fig_h, title, ha="center", va="top", fontsize=13, fontweight="bold")
-    if subtitle:
-        fig.text(
-            0.5, 1.0 - 0.55 / fig_h, subtitle, ha="center", va="top", fontsize=9.5, color="#333333"
-        )
-    draw_caution_footer(fig, footer, fig_h)
+    cax.set_gid("colorbar")
+    fit_colorbar_label(colorbar.ax.yaxis.label, box_px[1])
     return fig
+
+
+def fit_colorbar_label(label: Any, max_height_px: float) -> None:
+    """Shrink, then wrap, a vertical colour-bar label to the colour bar's height."""
+    fig = label.get_figure()
+    renderer = fig.canvas.get_renderer()
+    size = float(label.get_fontsize())
+    height = float(label.get_window_extent(renderer).height)
+    if height <= max_height_px:
+        return
+    label.set_fontsize(max(7.0, size * max_height_px / height))
+    if label.get_window_extent(renderer).height > max_height_px:
+        import textwrap
+
+        text = label.get_text()
+        chars = max(10, int(len(text) * max_height_px / label.get_window_extent(renderer).height))
+        label.set_text("\n".join(textwrap.wrap(text, chars)))
 
 
 def save_figure(

@@ -38,6 +38,8 @@ __all__ = [
     "OGC_NAMESPACE",
     "COLOR_MAP_TYPES",
     "raster_sld",
+    "class_raster_sld",
+    "categorical_raster_sld",
     "bands_sld",
     "lines_sld",
     "write_sld",
@@ -252,6 +254,129 @@ def raster_sld(
                 else f"{_label(level)} and later"
             )
             sld_element(cmap, "ColorMapEntry", color=color, quantity=sld_number(upper), opacity="1", label=text)
+    return sld_serialise(root)
+
+
+def _minutes_text(value: float) -> str:
+    return f"{value:+g}" if value != 0 else "0"
+
+
+def class_raster_sld(
+    edges: Sequence[float],
+    colors_hex: Sequence[str],
+    *,
+    layer_name: str,
+    title: str,
+    nodata: float = -9999.0,
+    unit: str = "min",
+    abstract: str | None = None,
+) -> str:
+    """SLD for a raster in classes that may go below zero (minutes left, differences).
+
+    Parameters
+    ----------
+    edges : sequence of float
+        Strictly increasing class edges; class ``k`` is
+        ``edges[k] <= v < edges[k + 1]`` and takes ``colors_hex[k]``.
+        Values from the last edge on keep the last colour; values below the
+        first edge (the nodata value among them) are transparent.
+    colors_hex : sequence of str
+        ``len(edges) - 1`` colours, ``"#rrggbb"``.
+    layer_name, title : str
+        Layer name and human-readable title.
+    nodata : float
+        Nodata value of the raster; must lie below the first edge.
+    unit : str
+        Unit written in the class labels, e.g. ``"-10 to 0 min"``.
+    abstract : str, optional
+        Style abstract; the short caution text by default.
+
+    Raises
+    ------
+    InputDataError
+        Edges not increasing, a colour count that does not match, bad colours,
+        or nodata not below the first edge.
+
+    Examples
+    --------
+    >>> xml = class_raster_sld([-10, 0, 10], ["#b2182b", "#2166ac"], layer_name="x", title="x")
+    >>> 'label="-10 to 0 min"' in xml and 'label="+10 min and more"' not in xml
+    True
+    """
+    lv = [float(v) for v in edges]
+    colors = check_hex_colors(list(colors_hex))
+    if len(lv) < 2 or not all(math.isfinite(v) for v in lv) or any(
+        b <= a for a, b in itertools.pairwise(lv)
+    ):
+        raise InputDataError(f"class edges {lv} must be two or more finite increasing values")
+    if len(colors) != len(lv) - 1:
+        raise InputDataError(
+            f"{len(lv) - 1} classes but {len(colors)} colours; give one colour per class"
+        )
+    if not math.isfinite(float(nodata)) or float(nodata) >= lv[0]:
+        raise InputDataError(
+            f"nodata {nodata!r} must be a finite value below the first edge {lv[0]:g}"
+        )
+    root, fts = sld_document(layer_name, title, default_abstract() if abstract is None else abstract)
+    rule = sld_element(fts, "Rule")
+    sld_element(rule, "Name", "classes")
+    sld_element(rule, "Title", title)
+    symbolizer = sld_element(rule, "RasterSymbolizer")
+    sld_element(symbolizer, "Opacity", "1.0")
+    cmap = sld_element(symbolizer, "ColorMap", type="intervals")
+    sld_element(cmap, "ColorMapEntry", color="#000000", quantity=sld_number(lv[0]), opacity="0",
+                label="no data")
+    open_end = lv[-1] + max(_OPEN_END_MIN, abs(lv[-1]) * 2.0 + 1.0)
+    for k, color in enumerate(colors):
+        last = k == len(colors) - 1
+        upper = open_end if last else lv[k + 1]
+        text = (f"{_minutes_text(lv[k])} {unit} and more" if last
+                else f"{_minutes_text(lv[k])} to {_minutes_text(lv[k + 1])} {unit}")
+        sld_element(cmap, "ColorMapEntry", color=color, quantity=sld_number(upper), opacity="1",
+                    label=text)
+    return sld_serialise(root)
+
+
+def categorical_raster_sld(
+    values: Sequence[int],
+    colors_hex: Sequence[str],
+    labels: Sequence[str],
+    *,
+    layer_name: str,
+    title: str,
+    nodata: int = -1,
+    abstract: str | None = None,
+) -> str:
+    """SLD for a raster of category codes: one colour and label per code, nodata transparent.
+
+    Examples
+    --------
+    >>> xml = categorical_raster_sld([0, 1], ["#1f77b4", "#ff7f0e"], ["a", "b"],
+    ...                              layer_name="x", title="x")
+    >>> xml.count("ColorMapEntry")
+    3
+    """
+    codes = [int(v) for v in values]
+    colors = check_hex_colors(list(colors_hex))
+    if not (len(codes) == len(colors) == len(labels)) or not codes:
+        raise InputDataError(
+            f"{len(codes)} codes, {len(colors)} colours and {len(labels)} labels; give one "
+            "colour and one label per code"
+        )
+    if len(set(codes)) != len(codes) or int(nodata) in codes:
+        raise InputDataError(f"codes {codes} must be unique and differ from nodata {nodata}")
+    root, fts = sld_document(layer_name, title, default_abstract() if abstract is None else abstract)
+    rule = sld_element(fts, "Rule")
+    sld_element(rule, "Name", "categories")
+    sld_element(rule, "Title", title)
+    symbolizer = sld_element(rule, "RasterSymbolizer")
+    sld_element(symbolizer, "Opacity", "1.0")
+    cmap = sld_element(symbolizer, "ColorMap", type="values")
+    sld_element(cmap, "ColorMapEntry", color="#000000", quantity=str(int(nodata)), opacity="0",
+                label="no data")
+    for code, color, label in zip(codes, colors, labels, strict=True):
+        sld_element(cmap, "ColorMapEntry", color=color, quantity=str(code), opacity="1",
+                    label=str(label))
     return sld_serialise(root)
 
 

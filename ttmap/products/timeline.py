@@ -32,8 +32,14 @@ import numpy as np
 
 from ttmap.errors import InputDataError
 from ttmap.defaults import LITTLE_MARGIN_MIN
-from ttmap.products._footer import caution_footer, draw_caution_footer
-from ttmap.products.cautions import CAUTION_SHORT
+from ttmap.products._footer import (
+    caution_footer,
+    draw_caution_footer,
+    draw_title_block,
+    fit_yticklabels,
+    place_legend,
+)
+from ttmap.products.cautions import CAUTION_SHORT, minutes_after
 
 if TYPE_CHECKING:
     from matplotlib.figure import Figure
@@ -160,6 +166,7 @@ def render_timeline(
     caution: str = CAUTION_SHORT,
     width_in: float = 10.0,
     dpi: float = 150.0,
+    source_kind: str | None = None,
 ) -> Figure:
     """Draw the per-site timeline chart.
 
@@ -179,6 +186,16 @@ def render_timeline(
         Figure width in inches; the height follows the number of sites.
     dpi : float
         Resolution for PNG output.
+    source_kind : str, optional
+        Kind of the source (``"point"``, ``"rupture"``, ``"line"``,
+        ``"area"``): the axis reads "minutes after the earthquake" for
+        points and ruptures, "after the event" otherwise.
+
+    Notes
+    -----
+    Title and subtitle shrink and wrap to the width; long site names wrap
+    onto two or three lines (rows grow to hold them); the caution footer
+    carries the natural-warning line.
 
     Returns
     -------
@@ -192,8 +209,7 @@ def render_timeline(
     """
     from matplotlib.backends.backend_agg import FigureCanvasAgg
     from matplotlib.figure import Figure
-    from matplotlib.lines import Line2D
-    from matplotlib.patches import Patch, Rectangle
+    from matplotlib.patches import Rectangle
     from matplotlib.transforms import blended_transform_factory
 
     cols = _columns(table)
@@ -211,17 +227,30 @@ def render_timeline(
     n = len(order)
 
     # --- layout in inches -------------------------------------------------------
-    row_h = 0.36
+    if subtitle is None:
+        subtitle = (
+            "Sorted by margin, smallest first. Margin = earliest arrival - (message delay + "
+            "preparation + walking). Planning figures, not promises."
+        )
     name_chars = max(len(s) for s in names)
     left_in = min(3.0, 0.45 + 0.075 * name_chars)
+    per_line = max(10, int((left_in - 0.3) / 0.072))
+    names = [_wrap_name(s, per_line) for s in names]
+    lines_per_row = max(s.count("\n") + 1 for s in names)
+    row_h = max(0.36, 0.17 * lines_per_row + 0.08)
     right_in = 1.7
     fig_w = float(width_in)
     footer = caution_footer(" ".join(caution.split()), fig_w)
     footer_top = footer.top_in(0.1)
-    legend_rows = math.ceil((6 + len(periods)) / 3)
-    legend_h = 0.22 * legend_rows + 0.1
-    bottom_in = footer_top + 0.1 + legend_h + 0.5
-    top_in = 0.95
+    legend_items = _legend_items(periods)
+    # title block and legend are measured on a scratch figure of the same width
+    scratch = Figure(figsize=(fig_w, 10.0), dpi=dpi)
+    FigureCanvasAgg(scratch)
+    top_in = draw_title_block(scratch, title, subtitle, top_in=0.16, title_pt=12.5,
+                              subtitle_pt=8.5) + 0.15
+    _, legend_h = place_legend(scratch, legend_items, 0.0, fontsize=7.5, max_ncol=3,
+                               handlelength=1.8, columnspacing=1.4)
+    bottom_in = footer_top + 0.12 + legend_h + 0.5
     axes_h = max(1.2, n * row_h)
     fig_h = top_in + axes_h + bottom_in
     fig = Figure(figsize=(fig_w, fig_h), dpi=dpi, facecolor="white")
@@ -340,8 +369,10 @@ def render_timeline(
     ax.set_ylim(n - 0.5, -0.5)
     ax.set_yticks(range(n))
     ax.set_yticklabels(names, fontsize=8.5)
+    fit_yticklabels(ax, (left_in - 0.15) * dpi)
     ax.set_xlim(0.0, xmax)
-    ax.set_xlabel("Minutes after the earthquake (origin time)", fontsize=9)
+    phrase = minutes_after(source_kind)
+    ax.set_xlabel(phrase[0].upper() + phrase[1:], fontsize=9)
     ax.tick_params(axis="x", labelsize=8)
     ax.tick_params(axis="y", length=0)
     ax.grid(axis="x", color="#d9d9d9", linewidth=0.6, zorder=1)
@@ -349,7 +380,28 @@ def render_timeline(
     for side in ("top", "right"):
         ax.spines[side].set_visible(False)
 
-    # --- legend --------------------------------------------------------------------------
+    # --- legend, titles and caution ------------------------------------------------------
+    place_legend(fig, _legend_items(periods), footer_top + 0.12, fontsize=7.5, max_ncol=3,
+                 handlelength=1.8, columnspacing=1.4)
+    draw_title_block(fig, title, subtitle, top_in=0.16, title_pt=12.5, subtitle_pt=8.5)
+    draw_caution_footer(fig, footer, fig_h)
+    return fig
+
+
+def _wrap_name(name: str, per_line: int) -> str:
+    """A site name on up to three lines of about ``per_line`` characters (the rest cut with ...)."""
+    import textwrap
+
+    lines = textwrap.wrap(name, width=per_line, break_long_words=True) or [name]
+    if len(lines) > 3:
+        lines = [*lines[:2], textwrap.shorten(" ".join(lines[2:]), per_line, placeholder="...")]
+    return "\n".join(lines)
+
+
+def _legend_items(periods: Sequence[tuple[str, Any]]) -> list[Any]:
+    from matplotlib.lines import Line2D
+    from matplotlib.patches import Patch
+
     items: list[Any] = [
         Patch(facecolor=_NOTIFY, label="until an official message can reach people"),
         Patch(facecolor=_PREPARE, label="preparation"),
@@ -367,38 +419,7 @@ def render_timeline(
             )
         )
     items.append(
-        Line2D(
-            [],
-            [],
-            color=_ALERT,
-            linewidth=2.6,
-            marker="v",
-            markersize=6,
-            label="wave before people can leave",
-        )
+        Line2D([], [], color=_ALERT, linewidth=2.6, marker="v", markersize=6,
+               label="wave before people can leave")
     )
-    legend_y = footer_top + 0.1 + legend_h / 2.0
-    fig.legend(
-        handles=items,
-        loc="center",
-        ncol=3,
-        bbox_to_anchor=(0.5, legend_y / fig_h),
-        frameon=False,
-        fontsize=7.5,
-        handlelength=1.8,
-        columnspacing=1.4,
-    )
-
-    # --- titles and caution ---------------------------------------------------------------
-    fig.text(0.5, 1.0 - 0.2 / fig_h, title, ha="center", va="top", fontsize=12.5, fontweight="bold")
-    if subtitle is None:
-        subtitle = (
-            "Sorted by margin, smallest first. Margin = earliest arrival - (message delay + "
-            "preparation + walking). Planning figures, not promises."
-        )
-    if subtitle:
-        fig.text(
-            0.5, 1.0 - 0.52 / fig_h, subtitle, ha="center", va="top", fontsize=8.5, color="#333333"
-        )
-    draw_caution_footer(fig, footer, fig_h)
-    return fig
+    return items
