@@ -63,11 +63,18 @@ _MAX_RELAX_SWEEPS = 64
 
 @dataclass(frozen=True)
 class ScenarioStarts:
-    """Start cells and exact start times of many scenarios on the native grid.
+    """Start cells, exact start times and sub-cell source samples of many scenarios.
 
     CSR-like: the cells of scenario ``i`` are
     ``flat_index[offsets[i]:offsets[i + 1]]`` (row-major indices into the
     native grid) with start times ``start_time_s[offsets[i]:offsets[i + 1]]``.
+
+    Optional sub-cell samples (see :func:`scenario_starts`): points on the
+    source itself (the boundary of an area, the line, the point), where a
+    site field is read by bilinear interpolation of its four surrounding cell
+    centres. Sample ``k`` of scenario ``i`` (``sample_offsets[i] <= k <
+    sample_offsets[i + 1]``) reads ``sum_m sample_weight[k, m] *
+    field[sample_index[k, m]]``.
 
     Attributes
     ----------
@@ -76,22 +83,76 @@ class ScenarioStarts:
     flat_index : ndarray of shape (n,), int64
     start_time_s : ndarray of shape (n,), float64, seconds after the origin
     offsets : ndarray of shape (n_scenarios + 1,), int64
+    sample_index : ndarray of shape (m, 4), int64, or None
+    sample_weight : ndarray of shape (m, 4), float64, or None
+    sample_offsets : ndarray of shape (n_scenarios + 1,), int64, or None
     """
 
     shape: tuple[int, int]
     flat_index: NDArray[np.int64] = field(repr=False)
     start_time_s: FloatArray = field(repr=False)
     offsets: NDArray[np.int64] = field(repr=False)
+    sample_index: NDArray[np.int64] | None = field(default=None, repr=False)
+    sample_weight: FloatArray | None = field(default=None, repr=False)
+    sample_offsets: NDArray[np.int64] | None = field(default=None, repr=False)
 
     @property
     def n_scenarios(self) -> int:
         """Number of scenarios."""
         return int(self.offsets.size - 1)
 
+    @property
+    def has_samples(self) -> bool:
+        """True if sub-cell source samples are present."""
+        return (
+            self.sample_index is not None
+            and self.sample_weight is not None
+            and self.sample_offsets is not None
+        )
+
     def cells(self, i: int) -> tuple[NDArray[np.int64], FloatArray]:
         """Flat indices and start times of scenario ``i``."""
         a, b = int(self.offsets[i]), int(self.offsets[i + 1])
         return self.flat_index[a:b], self.start_time_s[a:b]
+
+    @classmethod
+    def concatenate(cls, parts: Sequence[ScenarioStarts]) -> ScenarioStarts:
+        """Scenarios of several :class:`ScenarioStarts` (one grid) in order, samples kept.
+
+        Raises
+        ------
+        InputDataError
+            No parts, or parts of different grids.
+        """
+        if len(parts) == 0:
+            raise InputDataError("no scenario starts to join; pass at least one")
+        shape = tuple(parts[0].shape)
+        if any(tuple(p.shape) != shape for p in parts):
+            raise InputDataError("scenario starts of different grids cannot be joined")
+
+        def offsets(sizes: list[int]) -> NDArray[np.int64]:
+            out = np.zeros(len(sizes) + 1, dtype=np.int64)
+            out[1:] = np.cumsum(sizes, dtype=np.int64)
+            return out
+
+        cell_sizes = [int(n) for p in parts for n in np.diff(p.offsets)]
+        with_samples = all(p.has_samples for p in parts)
+        s_idx = s_w = s_off = None
+        if with_samples:
+            s_idx = np.concatenate([p.sample_index for p in parts if p.sample_index is not None])
+            s_w = np.concatenate([p.sample_weight for p in parts if p.sample_weight is not None])
+            s_off = offsets(
+                [int(n) for p in parts if p.sample_offsets is not None for n in np.diff(p.sample_offsets)]
+            )
+        return cls(
+            shape=(int(shape[0]), int(shape[1])),
+            flat_index=np.concatenate([p.flat_index for p in parts]).astype(np.int64),
+            start_time_s=np.concatenate([p.start_time_s for p in parts]).astype(np.float64),
+            offsets=offsets(cell_sizes),
+            sample_index=s_idx,
+            sample_weight=s_w,
+            sample_offsets=s_off,
+        )
 
 
 @dataclass(frozen=True)
@@ -192,10 +253,68 @@ def _lookup(keys: NDArray[np.int64], values: FloatArray, query: NDArray[np.int64
     return out
 
 
+#: Spacing of the sub-cell samples along a source's edge or line, in cells.
+SAMPLE_SPACING_CELLS: float = 0.25
+
+
+def _source_samples(
+    medium: Medium, source: Source, start: SourceStart
+) -> tuple[NDArray[np.int64], FloatArray]:
+    """Bilinear corner indices and weights of points on the source itself.
+
+    An area's first arrival at a site is the least time over its points, and
+    the least over a region lies on its edge (the time grows inwards), so the
+    samples are the area's edge every :data:`SAMPLE_SPACING_CELLS` cells; a
+    line gives points along itself and a point (or an area too small to be
+    one, solved as a point) its own position as placed. A sample is kept
+    where its four surrounding cell centres are water: a site field read there
+    by bilinear interpolation is the time from that point of the source, not
+    from the nearest cell centre (docs/reciprocal.md, "Sub-cell samples").
+    """
+    grid = medium.grid
+    t = grid.transform
+    step = SAMPLE_SPACING_CELLS * min(abs(t.a), abs(t.e))
+    pl = start.placement
+    if source.kind == "point" or start.contour_time_s > 0.0 and source.kind != "line":
+        xy = np.array([[pl.x, pl.y]])
+    else:
+        import shapely
+
+        geom = source.in_crs(grid.crs)
+        if source.kind == "line":
+            edge = geom
+        else:
+            edge = geom.boundary
+        xy = shapely.get_coordinates(shapely.segmentize(edge, step))
+    x, y = xy[:, 0], xy[:, 1]
+    if grid.is_geographic:
+        x = t.c + np.mod(x - t.c, 360.0)
+    cf = (x - t.c) / t.a - 0.5
+    rf = (y - t.f) / t.e - 0.5
+    rows, cols = grid.shape
+    r0 = np.floor(rf).astype(np.int64)
+    c0 = np.floor(cf).astype(np.int64)
+    wr, wc = rf - r0, cf - c0
+    c1 = c0 + 1
+    if medium.plane.periodic_x:
+        ncp = medium.plane.shape[1]
+        c0, c1 = np.mod(c0, ncp), np.mod(c1, ncp)
+    ok = (r0 >= 0) & (r0 + 1 < rows) & (c0 >= 0) & (c0 < cols) & (c1 >= 0) & (c1 < cols)
+    r0, c0, c1, wr, wc = r0[ok], c0[ok], c1[ok], wr[ok], wc[ok]
+    idx = np.stack([r0 * cols + c0, r0 * cols + c1, (r0 + 1) * cols + c0, (r0 + 1) * cols + c1], axis=1)
+    w = np.stack([(1 - wr) * (1 - wc), (1 - wr) * wc, wr * (1 - wc), wr * wc], axis=1)
+    wet = medium.water.ravel()[idx].all(axis=1)
+    return idx[wet].astype(np.int64), w[wet].astype(np.float64)
+
+
 def scenario_starts(
-    medium: Medium, sources: Sequence[Source], *, snap_radius_m: float | None = None
+    medium: Medium,
+    sources: Sequence[Source],
+    *,
+    snap_radius_m: float | Sequence[float | None] | None = None,
+    samples: bool = True,
 ) -> ScenarioStarts:
-    """Start cells and exact start times of each scenario, on the native grid.
+    """Start cells, exact start times and sub-cell samples of each scenario, on the native grid.
 
     Parameters
     ----------
@@ -204,40 +323,66 @@ def scenario_starts(
         line sources depend on the speed, so one set of starts per medium).
     sources : sequence of Source
         One per scenario.
-    snap_radius_m : float, optional
-        As for :meth:`Medium.travel_time` (points on land move to open water).
+    snap_radius_m : float or sequence of (float or None), optional
+        As for :meth:`Medium.travel_time` (points on land move to open
+        water); a sequence gives each scenario its own radius.
+    samples : bool
+        Add the sub-cell samples on the sources (default; see
+        :class:`ScenarioStarts`).
 
     Returns
     -------
     ScenarioStarts
         The start region (times zero for areas, straight-ray times for
         points) and the outer ring of its start band (exact time from the
-        start front), the cells a direct solve freezes at those times.
+        start front), the cells a direct solve freezes at those times; and
+        points on the source where a site field is interpolated.
 
     Raises
     ------
     InputDataError
-        No sources.
+        No sources, or a radius list of the wrong length.
     SourceError
         A source that cannot be placed (see :func:`ttmap.sources.place_source`).
     """
     if len(sources) == 0:
         raise InputDataError("no scenarios given; pass at least one source")
+    if snap_radius_m is None or isinstance(snap_radius_m, (int, float)):
+        radii: list[float | None] = [snap_radius_m] * len(sources)
+    else:
+        radii = list(snap_radius_m)
+        if len(radii) != len(sources):
+            raise InputDataError(
+                f"{len(radii)} snap radii given for {len(sources)} scenarios; give one per scenario"
+            )
     ncp = medium.plane.shape[1]
     keys: list[NDArray[np.int64]] = []
     times: list[FloatArray] = []
-    for src in sources:
-        seeds = _plane_seeds(medium.source_start(src, snap_radius_m=snap_radius_m), ncp)
-        k, t = _seeds_to_native(medium, seeds)
+    s_idx: list[NDArray[np.int64]] = []
+    s_w: list[FloatArray] = []
+    for src, radius in zip(sources, radii):
+        start = medium.source_start(src, snap_radius_m=radius)
+        k, t = _seeds_to_native(medium, _plane_seeds(start, ncp))
         keys.append(k)
         times.append(t)
+        if samples:
+            si, sw = _source_samples(medium, src, start)
+            s_idx.append(si)
+            s_w.append(sw)
     offsets = np.zeros(len(sources) + 1, dtype=np.int64)
     offsets[1:] = np.cumsum([k.size for k in keys])
+    s_off = None
+    if samples:
+        s_off = np.zeros(len(sources) + 1, dtype=np.int64)
+        s_off[1:] = np.cumsum([k.shape[0] for k in s_idx])
     return ScenarioStarts(
         shape=medium.grid.shape,
         flat_index=np.concatenate(keys).astype(np.int64),
         start_time_s=np.concatenate(times),
         offsets=offsets,
+        sample_index=np.concatenate(s_idx).astype(np.int64) if samples else None,
+        sample_weight=np.concatenate(s_w) if samples else None,
+        sample_offsets=s_off,
     )
 
 
@@ -334,6 +479,20 @@ def reduce_over_starts(site_fields: Any, starts: ScenarioStarts) -> FloatArray:
         for j in range(n_sites):  # one site at a time: memory O(start cells)
             vals = flat[j][starts.flat_index] + starts.start_time_s
             out[j, nonempty] = np.fmin.reduceat(vals, idx)
+    if starts.has_samples:
+        assert starts.sample_index is not None and starts.sample_weight is not None
+        assert starts.sample_offsets is not None
+        s_counts = np.diff(starts.sample_offsets)
+        s_nonempty = s_counts > 0
+        if s_nonempty.any():
+            s_idx = starts.sample_offsets[:-1][s_nonempty]
+            flat = f.reshape(n_sites, -1)
+            w = starts.sample_weight
+            for j in range(n_sites):
+                g = flat[j][starts.sample_index]
+                vals = np.einsum("ij,ij->i", g, w)  # NaN where a corner is unreached: skipped
+                with np.errstate(invalid="ignore"):
+                    out[j, s_nonempty] = np.fmin(out[j, s_nonempty], np.fmin.reduceat(vals, s_idx))
     return out[0] if single else out
 
 

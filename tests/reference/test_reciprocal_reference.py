@@ -117,11 +117,45 @@ def test_sites_by_scenarios_equal_direct_solves(case):
           f"median {np.median(far):.4%}, share within 0.5 % {share:.1%}; worst over all pairs "
           f"{max(all_cells):.2f} cell travel times")
     assert far.size > 50
-    # The issue's 0.5 % holds for most pairs; the worst pairs (area sources behind islands,
-    # lon/lat grids) reach about 1.5 %, which is still within one cell's travel time.
+    # The issue asks for 0.5 % beyond 20 cells. Unattainable between these two discretisations
+    # (docs/references.md section 8: discretisation error breaks reciprocity; docs/reciprocal.md,
+    # "Accuracy"): in water of constant depth the reciprocal table is within 0.1 % of the exact
+    # time (test below) while the direct solve of an area is up to 2.3 % late where the first
+    # point reached is a sharp corner of the area (its start band is one cell thick). Measured
+    # here: worst 1.37 % (projected) / 0.90 % (lon/lat), 0.59 of a cell's travel time.
+    assert far.max() <= 0.015
     assert share >= 0.85
     assert np.median(far) <= 0.002
-    assert max(all_cells) <= 1.0
+    assert max(all_cells) <= 0.75
+
+
+def test_sites_by_scenarios_equal_exact_times_in_constant_depth():
+    """Constant speed: the time from a source to a site is distance / c (docs/references.md §8)."""
+    depth = np.full((N, N), 3000.0)
+    rows, cols = np.mgrid[0:N, 0:N]
+    depth[cols >= 99.0 + 4.0 * np.sin(rows / 9.0)] = -30.0  # the same coast, no islands
+    grid = projected_grid()
+    medium = prepare_medium(depth, grid)
+    sources = trench_set(grid)
+    c = float(medium.speed_m_s[50, 50])
+    assert np.allclose(medium.speed_m_s[medium.water], c)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", TtmapWarning)
+        table = sites_by_scenarios_reciprocal(medium, SITES, sources)
+        direct = np.array([medium.travel_time(s).arrival_time_s for s in sources])
+    rel, rel_direct = [], []
+    for j, (sr, sc) in enumerate(SITES):
+        site = shapely.Point(*(float(v) for v in grid.xy(sr, sc)))
+        for i, src in enumerate(sources):
+            exact_s = src.in_crs(grid.crs).distance(site) / c
+            if exact_s <= 20 * 2000.0 / c:
+                continue
+            rel.append(abs(table[j, i] - exact_s) / exact_s)
+            rel_direct.append(abs(direct[i, sr, sc] - exact_s) / exact_s)
+    print(f"constant depth: reciprocal table worst {max(rel):.4%} from distance / c over "
+          f"{len(rel)} pairs beyond 20 cells; direct solves worst {max(rel_direct):.4%}")
+    assert len(rel) > 50
+    assert max(rel) <= 0.0025  # measured 0.10 %
 
 
 def _boundary(labels: np.ndarray) -> np.ndarray:
@@ -172,12 +206,25 @@ def test_one_solve_envelope_equals_minimum_of_direct_solves(case):
     near_tie = reached & (gap <= np.maximum(0.002 * srt[0], max(row_m, col_m) / c_max))
     judged = reached & ~boundary & ~near_tie
     agree = float(np.mean(env.first_scenario[judged] == first[judged]))
+    issue_judged = reached & ~boundary
+    agree_issue = float(np.mean(env.first_scenario[issue_judged] == first[issue_judged]))
+    wrong = issue_judged & (env.first_scenario != first)
+    own = direct[np.maximum(env.first_scenario, 0), np.arange(N)[:, None], np.arange(N)[None, :]]
+    print(f"{name}: labels agree on {agree_issue:.4%} of {issue_judged.sum()} cells off the tie "
+          f"boundaries; where they differ the labelled scenario's own time is within "
+          f"{np.nanmax((own - expected_s)[wrong] / expected_s[wrong]) if wrong.any() else 0:.4%} "
+          f"of the minimum")
     print(f"{name}: labels agree on {agree:.4%} of {judged.sum()} judged cells; excluded "
           f"{int((reached & boundary).sum())} cells within one cell of a tie boundary and "
           f"{int((reached & near_tie & ~boundary).sum())} more where two scenarios tie within "
           f"the tolerance; tie mask {int(env.tie.sum())} cells; relaxed start cells "
           f"{env.relaxed_start_cells}")
-    # The issue asks for 99 %; measured 98.5 % (projected) and 99.1 % (lon/lat): the label
-    # propagation misses it by about a cell along meeting lines that run obliquely to the grid.
-    assert agree >= 0.97
+    # The issue asks for >= 99 % of the cells off the tie boundaries. Measured on that
+    # definition: 83.6 % (projected) and 87.0 % (lon/lat): NOT MET. The misses are whole
+    # regions downwind of overlapping areas (scenarios 4, 5, 10 here) labelled with the lower
+    # index although the other scenario arrives 7-23 s (1-2 cell times) sooner; lowering the
+    # tie tolerance does not change them (docs/reciprocal.md, "Limits"). Excluding cells where
+    # the two earliest scenarios are within 0.2 % or one cell's time hides part of this and is
+    # only printed above, not relied on.
+    assert agree_issue >= 0.80
     assert env.unlabelled_cells == 0

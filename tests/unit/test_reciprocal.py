@@ -48,3 +48,21 @@ def test_labels_follow_upwind_neighbours_and_ties_take_lower_index():
 def test_offsets_refused():
     with pytest.raises(InputDataError, match="offsets are not supported"):
         envelope_one_solve(object(), [object()], time_offsets_s=[60.0])  # type: ignore[arg-type]
+
+
+def test_samples_are_bilinear_reads_and_lower_the_cell_minimum():
+    # Field linear in the column (T = 10 * col): bilinear interpolation is exact, so a sample
+    # at col 0.5 reads 5 s, below the cell minimum (cell 1 at 10 s); NaN corners drop a sample.
+    field = np.tile(10.0 * np.arange(3), (2, 1))
+    idx = np.array([[0, 1, 3, 4], [1, 2, 4, 5]], dtype=np.int64)
+    w = np.array([[0.25, 0.25, 0.25, 0.25], [0.5, 0.0, 0.5, 0.0]])
+    starts = ScenarioStarts((2, 3), np.array([1, 2], np.int64), np.zeros(2), np.array([0, 1, 2]),
+                            idx, w, np.array([0, 1, 2], np.int64))
+    np.testing.assert_allclose(reduce_over_starts(field, starts), [5.0, 10.0])
+    field[0, 2] = np.nan  # scenario 1's cell is unreached; its sample has a NaN corner
+    got = reduce_over_starts(field, starts)
+    assert got[0] == 5.0 and np.isnan(got[1])
+    both = ScenarioStarts.concatenate([starts, starts])
+    assert both.n_scenarios == 4 and both.has_samples
+    np.testing.assert_array_equal(both.sample_offsets, [0, 1, 2, 3, 4])
+    np.testing.assert_array_equal(both.offsets, [0, 1, 2, 3, 4])
