@@ -172,23 +172,12 @@ def _site_row(item: _SiteSolve, starts: Mapping[tuple[str, float | None], Scenar
 
 
 def _starts_of(medium: Medium, sf: ScenarioFile) -> ScenarioStarts:
-    """Start cells of every scenario on ``medium`` (each with its own snap radius)."""
-    import numpy as np
+    """Start cells (and exact points on each source) of every scenario on ``medium``,
+    each with its own snap radius."""
+    from ttmap.reciprocal import scenario_starts
 
-    from ttmap.reciprocal import ScenarioStarts, scenario_starts
-
-    parts = [
-        scenario_starts(medium, [sc.source], snap_radius_m=sc.snap_radius_m) for sc in sf.scenarios
-    ]
-    sizes = [p.flat_index.size for p in parts]
-    offsets = np.zeros(len(parts) + 1, dtype=np.int64)
-    offsets[1:] = np.cumsum(sizes)
-    return ScenarioStarts(
-        shape=medium.grid.shape,
-        flat_index=np.concatenate([p.flat_index for p in parts]).astype(np.int64),
-        start_time_s=np.concatenate([p.start_time_s for p in parts]),
-        offsets=offsets,
-    )
+    return scenario_starts(medium, [sc.source for sc in sf.scenarios],
+                           snap_radius_m=[sc.snap_radius_m for sc in sf.scenarios])
 
 
 def _max_time_s(sf: ScenarioFile) -> float | None:
