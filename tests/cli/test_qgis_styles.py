@@ -237,7 +237,10 @@ def _expect_raster(tif: Path) -> dict[str, Any]:
         exp.update(renderer="paletted", labels=[tags[f"{prefix}{i}"] for i in range(count)])
         if sld.is_file():
             _, entries = _sld_color_map(sld)
-            exp["colors"] = [e[1] for e in entries if e[2] > 0]
+            visible = [e for e in entries if e[2] > 0]
+            exp["colors"] = [e[1] for e in visible]
+            if len(visible) > count:  # tie classes after the scenarios, named in the SLD
+                exp["labels"] += [e[3] for e in visible[count:]]
     elif stem.startswith("difference_"):
         exp.update(renderer="singlebandpseudocolor", ramp="INTERPOLATED", diverging=True)
     else:

@@ -149,7 +149,7 @@ def test_timeline_text_fits_with_long_names(width_in):
 
 def test_comparison_chart_text_fits_with_long_names():
     names = [LONG_SITE, "Cove"]
-    table = {"site": [n for n in names for _ in range(2)], "scenario": ["a", "b"] * 2,
+    table = {"name": [n for n in names for _ in range(2)], "scenario": ["a", "b"] * 2,
              "front_min": [20.0, 25.0, 31.0, 30.0], "earliest_for_site": [True, False, False, True]}
     fig = render_sites_by_scenarios(table, title="Front arrival at each site: " + LONG_SOURCE)
     assert_all_text_inside(fig)

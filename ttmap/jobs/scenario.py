@@ -526,7 +526,8 @@ def write_envelope(
 
     tol = ENVELOPE_TIE_TOLERANCE_MIN if tie_tolerance_min is None else float(tie_tolerance_min)
     targets = [Path(out_dir) / name for name in ENVELOPE_FILES]
-    check_writable([*targets, *envelope_extra_files(out_dir)], overwrite)
+    check_writable([*targets, *envelope_extra_files(out_dir),
+                    Path(out_dir) / "envelope_first_scenario.qml"], overwrite)
 
     ref: dict[str, Grid] = {} if grid is None else {"grid": grid}
 

@@ -118,10 +118,23 @@ def write_envelope_extras(
     _save(render_envelope_map(earliest_min, grid.transform, names=names, land_mask=land,
                               lines=lines, is_geographic=grid.is_geographic), env_png, overwrite)
     write_sld(first_sld, first_scenario_sld(first, names), overwrite=overwrite)
+    # the QGIS style of the same classes (ties included), beside the raster
+    from ttmap.io.styles import write_qml_beside
+    from ttmap.products.qml import paletted_qml
+    from ttmap.products.scenario_maps import first_scenario_classes
+
+    codes, colors, labels, title = first_scenario_classes(first, names)
+    first_qml = write_qml_beside(
+        Path(out_dir) / "envelope_first_scenario.tif",
+        paletted_qml(codes, labels, layer_name="envelope_first_scenario", title=title,
+                     colors_hex=colors, nodata=-1),
+        overwrite=overwrite,
+    )
     _save(render_first_scenario_map(first, grid.transform, names, land_mask=land,
                                     is_geographic=grid.is_geographic), first_png, overwrite)
     return {"envelope_sld": str(env_sld), "envelope_map": str(env_png),
-            "first_scenario_sld": str(first_sld), "first_scenario_map": str(first_png)}
+            "first_scenario_sld": str(first_sld), "first_scenario_map": str(first_png),
+            "first_scenario_qml": str(first_qml)}
 
 
 def write_difference_extras(

@@ -328,13 +328,18 @@ def style_scenario_run(
             written.append(write_arrival_raster_style(tif, _levels_up_to(latest), title=f"Arrival time: {s.name}",
                                                       overwrite=overwrite))
     if envelope:
-        fronts = [latest_by_raster[f"arrival_{n}_front.tif"] for n in envelope_names
-                  if f"arrival_{n}_front.tif" in latest_by_raster]
+        from ttmap.io.compare import read_minutes
+        from ttmap.jobs.layers import arrival_levels
+
         env_tif = Path(envelope["envelope_min"])
-        written.append(write_arrival_raster_style(env_tif, _levels_up_to(max(fronts) if fronts else None),
+        # the envelope's own levels, computed as for its SLD and map (one class scheme)
+        env_levels = arrival_levels(read_minutes(env_tif)[0], None)
+        written.append(write_arrival_raster_style(env_tif, env_levels,
                                                   title=f"Earliest arrival over {len(envelope_names)} scenarios",
                                                   overwrite=overwrite))
         first = Path(envelope["first_scenario"])
+        if envelope.get("first_scenario_qml"):  # written with its tie classes beside the SLD
+            return written
         written.append(write_qml_beside(
             first,
             paletted_qml(list(range(len(envelope_names))), list(envelope_names), layer_name=first.stem,

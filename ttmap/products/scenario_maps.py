@@ -40,6 +40,7 @@ __all__ = [
     "difference_classes",
     "difference_sld",
     "first_scenario_colors",
+    "first_scenario_classes",
     "first_scenario_sld",
     "first_scenario_ties",
     "render_difference_map",
@@ -327,10 +328,12 @@ def render_difference_map(
     )
 
 
-def first_scenario_sld(first: FirstScenario, names: Sequence[str]) -> str:
-    """Style of ``envelope_first_scenario.tif``: the map's colours, every tie class grey and named."""
-    from ttmap.products.styles import categorical_raster_sld
-
+def first_scenario_classes(
+    first: FirstScenario, names: Sequence[str],
+) -> tuple[list[int], list[str], list[str], str]:
+    """Codes, colours, labels and title of ``envelope_first_scenario.tif``'s classes:
+    the map's colours, every tie class grey and named. One scheme for the map,
+    the SLD and the QGIS style."""
     n = len(names)
     colors = first_scenario_colors(n)
     codes = list(range(n))
@@ -339,14 +342,18 @@ def first_scenario_sld(first: FirstScenario, names: Sequence[str]) -> str:
         codes.append(n + k)
         colors.append(TIE_COLOR)
         labels.append(f"{tie_label(first.tolerance_min)}: {';'.join(names[i] for i in members)}")
+    title = ("Scenario that arrives first "
+             f"(grey: a {tie_label(first.tolerance_min)} of two or more)")
+    return codes, colors, labels, title
+
+
+def first_scenario_sld(first: FirstScenario, names: Sequence[str]) -> str:
+    """Style of ``envelope_first_scenario.tif`` (:func:`first_scenario_classes`)."""
+    from ttmap.products.styles import categorical_raster_sld
+
+    codes, colors, labels, title = first_scenario_classes(first, names)
     return categorical_raster_sld(
-        codes,
-        colors,
-        labels,
-        layer_name="envelope_first_scenario",
-        title="Scenario that arrives first "
-        f"(grey: a {tie_label(first.tolerance_min)} of two or more)",
-        nodata=_NO_SCENARIO,
+        codes, colors, labels, layer_name="envelope_first_scenario", title=title, nodata=_NO_SCENARIO,
     )
 
 
