@@ -12,6 +12,7 @@ it; the physics behind each is in ``docs/method.md`` and the sources in
 from __future__ import annotations
 
 __all__ = [
+    "STALE_STAGING_AGE_S",
     "FLOOR_DEPTH_M",
     "SCALING_RELATION",
     "MIN_BASIN_SHARE",
@@ -133,3 +134,8 @@ MEDIA_PER_WORKER: int = 1
 
 #: Most ruptures one trench line of a scenario file may generate.
 MAX_TRENCH_RUPTURES: int = 99
+
+#: A ttmap staging folder (``.ttmap-staging-<pid>-<hex>``) whose process still
+#: runs is left alone unless it is older than this (seconds): a process id
+#: can be reused after a restart.
+STALE_STAGING_AGE_S: float = 7 * 24 * 3600.0

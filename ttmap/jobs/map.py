@@ -31,6 +31,7 @@ up-front unless ``overwrite`` is set.
 
 from __future__ import annotations
 
+import dataclasses
 import math
 import os
 import time
@@ -243,8 +244,9 @@ def run_map_job(job: MapJob, *, progress: Callable[[str], None] | None = None) -
         With sites: the site table gets no energy columns from phase-speed
         sets, and is not written as a Shapefile.
     """
-    from ttmap.io.atomic import check_writable
+    from ttmap.faults import checkpoint
     from ttmap.jobs.record import build_run_record, file_entry, utc_now, write_run_record
+    from ttmap.jobs.staging import staged_output
     from ttmap.memory import check_memory
     from ttmap.traveltime import prepare_medium
 
@@ -273,83 +275,91 @@ def run_map_job(job: MapJob, *, progress: Callable[[str], None] | None = None) -
     timings["read_s"] = time.perf_counter() - t0
     site_marks = _site_marks(sites, grid) if sites is not None else None
 
-    written: list[Path] = []
-    summaries: dict[str, Any] = {}
-    kept: dict[str, TravelTimeResult] = {}  # results the site table needs
-    front_depth_m: np.ndarray | None = None
-    for i, pset in enumerate(sets, 1):
-        tag = f"[{i}/{len(sets)} {pset.key}]"
-        t1 = time.perf_counter()
-        say(f"{tag} computing speeds ({pset.mode}{'' if pset.period_s is None else f', T = {pset.period_s:g} s'})")
-        medium = prepare_medium(
-            bathy.depth_m, grid, mode=pset.mode, period_s=pset.period_s,
-            floor_depth_m=job.speed.floor_depth_m, far_field=job.speed.far_field,
-            earth=job.speed.earth,  # type: ignore[arg-type]
-        )
-        t2 = time.perf_counter()
-        say(f"{tag} solving on {medium.plane.shape[0]} x {medium.plane.shape[1]} cells")
-        try:
-            result = medium.travel_time(job.source, max_time_s=job.speed.max_time_s,
-                                        snap_radius_m=job.source_snap_radius_m)
-        except SourceError as err:
-            raise _with_sign_hint(err, job, bathy.depth_m) from err
-        t3 = time.perf_counter()
-        say(f"{tag} writing products")
-        if i == 1:
-            out.mkdir(parents=True, exist_ok=True)
-            check_writable(planned, job.overwrite)
-        water = medium.water
-        if sites is not None and pset.mode == "long-wave":
-            front_depth_m = medium.depth_m
-        del medium  # the speeds and labels are not needed for the products: free them first
-        written += _write_products(job, pset, result, water, site_marks)
-        del water
-        if sites is not None and pset.mode in ("long-wave", "group"):
-            kept[pset.key] = result
-        t4 = time.perf_counter()
-        timings[f"{pset.key}.speeds_s"] = t2 - t1
-        timings[f"{pset.key}.solve_s"] = t3 - t2
-        timings[f"{pset.key}.write_s"] = t4 - t3
-        from ttmap.jobs.layers import minutes_range
+    final_out = out
+    with staged_output(final_out, overwrite=job.overwrite, say=say) as stage:
+        # products are written under their final names into the staging folder
+        job = dataclasses.replace(job, out_dir=str(stage.new))
+        out = stage.new
+        written: list[Path] = []
+        summaries: dict[str, Any] = {}
+        kept: dict[str, TravelTimeResult] = {}  # results the site table needs
+        front_depth_m: np.ndarray | None = None
+        for i, pset in enumerate(sets, 1):
+            tag = f"[{i}/{len(sets)} {pset.key}]"
+            t1 = time.perf_counter()
+            say(f"{tag} computing speeds ({pset.mode}{'' if pset.period_s is None else f', T = {pset.period_s:g} s'})")
+            medium = prepare_medium(
+                bathy.depth_m, grid, mode=pset.mode, period_s=pset.period_s,
+                floor_depth_m=job.speed.floor_depth_m, far_field=job.speed.far_field,
+                earth=job.speed.earth,  # type: ignore[arg-type]
+            )
+            t2 = time.perf_counter()
+            say(f"{tag} solving on {medium.plane.shape[0]} x {medium.plane.shape[1]} cells")
+            try:
+                result = medium.travel_time(job.source, max_time_s=job.speed.max_time_s,
+                                            snap_radius_m=job.source_snap_radius_m)
+            except SourceError as err:
+                raise _with_sign_hint(err, job, bathy.depth_m) from err
+            t3 = time.perf_counter()
+            say(f"{tag} writing products")
+            if i == 1:
+                checkpoint("solved")
+            water = medium.water
+            if sites is not None and pset.mode == "long-wave":
+                front_depth_m = medium.depth_m
+            del medium  # the speeds and labels are not needed for the products: free them first
+            written += _write_products(job, pset, result, water, site_marks)
+            del water
+            if i == 1:
+                checkpoint("products", written[-1])
+            if sites is not None and pset.mode in ("long-wave", "group"):
+                kept[pset.key] = result
+            t4 = time.perf_counter()
+            timings[f"{pset.key}.speeds_s"] = t2 - t1
+            timings[f"{pset.key}.solve_s"] = t3 - t2
+            timings[f"{pset.key}.write_s"] = t4 - t3
+            from ttmap.jobs.layers import minutes_range
 
-        summaries[pset.key] = {
-            "title": pset.title,
-            "speed_mode": pset.mode,
-            "period_s": pset.period_s,
-            **result.summary.as_dict(),
-            "arrival_min_range": minutes_range(result.arrival_time_min),
-        }
-    site_block: dict[str, Any] | None = None
-    inputs: dict[str, Any] = {"bathymetry": file_entry(job.reading.path, sha256=bathy.sha256,
-                                                        band=bathy.band, notes=list(bathy.notes))}
-    if sites is not None and job.sites is not None and job.sites.path is not None:
-        t5 = time.perf_counter()
-        say(f"site table and timeline for {len(sites)} site(s)")
-        files, site_block = _write_site_table(job, sites, sets, kept, front_depth_m, grid)
-        written += files
-        kept.clear()
-        timings["sites_s"] = time.perf_counter() - t5
-        inputs["sites"] = file_entry(job.sites.path, layer=job.sites.layer, name_field=job.sites.name_field,
-                                     crs=sites.crs.to_string(), count=len(sites))
-    timings["total_s"] = time.perf_counter() - t0
-    blocks: dict[str, Any] = {"product_sets": summaries}
-    if site_block is not None:
-        blocks["sites"] = site_block
-    record = build_run_record(
-        job="map",
-        command_line=job.command_line,
-        started_utc=started,
-        inputs=inputs,
-        parameters=map_job_parameters(job),
-        grid=grid,
-        timings_s=timings,
-        products=written,
-        out_dir=out,
-        notes=notes,
-        **blocks,
-    )
-    run_json = write_run_record(record, out / RUN_RECORD_NAME, overwrite=job.overwrite)
-    return MapJobResult(out_dir=out, record_path=run_json, products=(*written, run_json),
+            summaries[pset.key] = {
+                "title": pset.title,
+                "speed_mode": pset.mode,
+                "period_s": pset.period_s,
+                **result.summary.as_dict(),
+                "arrival_min_range": minutes_range(result.arrival_time_min),
+            }
+        site_block: dict[str, Any] | None = None
+        inputs: dict[str, Any] = {"bathymetry": file_entry(job.reading.path, sha256=bathy.sha256,
+                                                            band=bathy.band, notes=list(bathy.notes))}
+        if sites is not None and job.sites is not None and job.sites.path is not None:
+            t5 = time.perf_counter()
+            say(f"site table and timeline for {len(sites)} site(s)")
+            files, site_block = _write_site_table(job, sites, sets, kept, front_depth_m, grid)
+            written += files
+            kept.clear()
+            timings["sites_s"] = time.perf_counter() - t5
+            inputs["sites"] = file_entry(job.sites.path, layer=job.sites.layer, name_field=job.sites.name_field,
+                                         crs=sites.crs.to_string(), count=len(sites))
+        timings["total_s"] = time.perf_counter() - t0
+        blocks: dict[str, Any] = {"product_sets": summaries}
+        if site_block is not None:
+            blocks["sites"] = site_block
+        record = build_run_record(
+            job="map",
+            command_line=job.command_line,
+            started_utc=started,
+            inputs=inputs,
+            parameters=map_job_parameters(job),
+            grid=grid,
+            timings_s=timings,
+            products=written,
+            out_dir=out,
+            notes=notes,
+            **blocks,
+        )
+        checkpoint("record", out / RUN_RECORD_NAME)
+        run_json = write_run_record(record, out / RUN_RECORD_NAME, overwrite=job.overwrite)
+    written = [stage.final(p) for p in written]
+    return MapJobResult(out_dir=final_out, record_path=stage.final(run_json), products=(*written, stage.final(run_json)),
                         product_sets=summaries, sites=site_block, record=record)
 
 
