@@ -81,9 +81,8 @@ def run_scenario_file(
     import json
     import time
 
-    from ttmap.jobs.batch import run_tasks
     from ttmap.io.atomic import check_writable
-    from ttmap.jobs.record import write_run_record
+    from ttmap.jobs.staging import staged_output
 
     t_start = time.perf_counter()
     started = _dt.datetime.now(_dt.UTC).replace(microsecond=0).isoformat()
@@ -95,12 +94,43 @@ def run_scenario_file(
     out = Path(out_dir) if out_dir is not None else Path(sf.outputs.folder)
     if out.exists() and not out.is_dir():
         raise InputDataError(f"output folder {str(out)!r} is a file; give a folder name")
-    out.mkdir(parents=True, exist_ok=True)
     run_json = out / "run.json"
     derived_overwrite = overwrite or resume
-    check_writable([run_json], derived_overwrite)
+    if out.is_dir():
+        check_writable([run_json], derived_overwrite)
 
     spec, tasks = scenario_tasks(sf)
+    tasks_before = set(out.glob("*.task.json")) if out.is_dir() else set()
+
+    def stopped_note() -> str:
+        kept = len(set(out.glob("*.task.json")) - tasks_before) if out.is_dir() else 0
+        if not kept:
+            return ""
+        return (f"{kept} finished task(s) kept in {str(out)!r} (each whole: raster and task.json); "
+                "no comparison or run.json was written; rerun the same command to resume")
+
+    # Tasks write into the folder itself, each whole (raster, then task.json), so
+    # a stopped run can resume; the comparisons and run.json are staged and
+    # appear together, run.json last.
+    with staged_output(out, overwrite=overwrite, replace_record=resume, stopped_note=stopped_note) as stage:
+        return _run_staged(sf, out, stage, spec, tasks, ex=ex, nw=nw, overwrite=overwrite, resume=resume,
+                           progress=progress, command_line=command_line, validate_s=validate_s,
+                           started=started, t_start=t_start)
+
+
+def _run_staged(sf: ScenarioFile, out: Path, stage: Any, spec: MediumSpec, tasks: Sequence[Any], *, ex: str,
+                nw: int | None, overwrite: bool, resume: bool, progress: Any, command_line: str,
+                validate_s: float | None, started: str, t_start: float) -> dict[str, Any]:
+    """The scenario run inside its staging folder: tasks into ``out``, comparisons into ``stage.new``."""
+    import time
+
+    from ttmap.faults import checkpoint
+    from ttmap.jobs.batch import run_tasks
+    from ttmap.jobs.record import write_run_record
+
+    derived_overwrite = overwrite or resume
+    run_json = out / "run.json"
+    staged = stage.new
     t0 = time.perf_counter()
     summaries = run_tasks(
         tasks,
@@ -114,6 +144,7 @@ def run_scenario_file(
         tags={"SCENARIO_FILE": Path(sf.path).name},
     )
     solve_s = time.perf_counter() - t0
+    checkpoint("solved")
 
     by_name = {t.name: s for t, s in zip(tasks, summaries)}
     fronts: dict[str, str] = {}
@@ -129,9 +160,10 @@ def run_scenario_file(
             if len(fronts) >= 2:
                 names = list(fronts)
                 env = write_envelope(
-                    str(out), [fronts[n] for n in names], names, None, derived_overwrite
+                    str(staged), [fronts[n] for n in names], names, None, derived_overwrite
                 )
-                products["envelope"] = _product_paths(env)
+                products["envelope"] = _product_paths(env, stage)
+                checkpoint("products")
             else:
                 products["skipped"].append(
                     f"envelope: needs at least two finished fronts, got {len(fronts)}"
@@ -143,11 +175,12 @@ def run_scenario_file(
                     f"difference {a} vs {b}: no front for {', '.join(missing)} (failed)"
                 )
                 continue
-            diff = write_difference(str(out), fronts[a], fronts[b], a, b, derived_overwrite)
-            products["differences"].append({"a": a, "b": b, "files": _product_paths(diff)})
+            diff = write_difference(str(staged), fronts[a], fronts[b], a, b, derived_overwrite)
+            products["differences"].append({"a": a, "b": b, "files": _product_paths(diff, stage)})
     sites_summary: dict[str, Any] | None = None
     if sf.sites_path is not None:
-        sites_summary = _write_sites_x_scenarios(sf, out, fronts, by_name, derived_overwrite)
+        sites_summary = _write_sites_x_scenarios(sf, staged, fronts, by_name, derived_overwrite)
+        sites_summary["files"] = _product_paths(sites_summary.get("files") or {}, stage)
         if sites_summary.get("files"):
             products["sites"] = sites_summary["files"]
         else:
@@ -177,7 +210,8 @@ def run_scenario_file(
         },
         out_dir=out,
     )
-    write_run_record(record, run_json, overwrite=True)
+    checkpoint("record", run_json)
+    write_run_record(record, staged / run_json.name, overwrite=True)
     record["run_json"] = str(run_json)
     return record
 
@@ -327,16 +361,16 @@ def _files_written(products: Mapping[str, Any]) -> list[str]:
     return out
 
 
-def _product_paths(value: Any) -> Any:
-    """Paths returned by a comparison writer, as JSON-ready text."""
+def _product_paths(value: Any, stage: Any = None) -> Any:
+    """Paths returned by a comparison writer, as JSON-ready text (final paths, not staged ones)."""
     if value is None:
         return None
     if isinstance(value, (str, os.PathLike)):
-        return str(value)
+        return str(value) if stage is None else str(stage.final(value))
     if isinstance(value, Mapping):
-        return {str(k): _product_paths(v) for k, v in value.items()}
+        return {str(k): _product_paths(v, stage) for k, v in value.items()}
     if isinstance(value, (list, tuple)):
-        return [_product_paths(v) for v in value]
+        return [_product_paths(v, stage) for v in value]
     return str(value)
 
 
