@@ -251,7 +251,7 @@ LAYERS: dict[str, int] = {
 
 #: Modules any layer may import. They import only each other (the package
 #: root ``ttmap`` is the public facade and may import anything).
-ANYWHERE = ("ttmap.defaults", "ttmap.errors", "ttmap._typing")
+ANYWHERE = ("ttmap.defaults", "ttmap.errors", "ttmap._typing", "ttmap.faults")
 
 
 def layer_of(module: str) -> int | None:

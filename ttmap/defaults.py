@@ -15,6 +15,7 @@ __all__ = [
     "MIN_PERIOD_S",
     "MAX_PERIOD_S",
     "MAX_TIME_LIMIT_S",
+    "STALE_STAGING_AGE_S",
     "FLOOR_DEPTH_M",
     "SCALING_RELATION",
     "MIN_BASIN_SHARE",
@@ -155,3 +156,7 @@ MAX_PERIOD_S: float = 10_800.0
 #: Longest solve time accepted, s (7 days). A tsunami crosses the widest
 #: ocean in about a day (from memory); a longer limit is a slip of the unit.
 MAX_TIME_LIMIT_S: float = 7 * 86_400.0
+#: A ttmap staging folder (``.ttmap-staging-<pid>-<hex>``) whose process still
+#: runs is left alone unless it is older than this (seconds): a process id
+#: can be reused after a restart.
+STALE_STAGING_AGE_S: float = 7 * 24 * 3600.0

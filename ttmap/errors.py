@@ -14,6 +14,7 @@ __all__ = [
     "SourceError",
     "SolverError",
     "OutputExistsError",
+    "OutputWriteError",
     "TtmapWarning",
 ]
 
@@ -40,6 +41,10 @@ class SolverError(TtmapError, RuntimeError):
 
 class OutputExistsError(TtmapError, FileExistsError):
     """An output exists and overwriting was not asked for."""
+
+
+class OutputWriteError(TtmapError, OSError):
+    """Writing the product set failed (e.g. no space left); the folder is as it was."""
 
 
 class TtmapWarning(UserWarning):

@@ -1,14 +1,21 @@
 """The ``ttmap`` command group: verbosity, version, and one-line errors.
 
 Exit status: 0 success, 1 input or run error (a :class:`~ttmap.errors.TtmapError`
-or another failure), 2 usage error (bad option). A traceback is shown only
-with ``--verbose``.
+or another failure), 2 usage error (bad option), 130 stopped by Ctrl-C
+(SIGINT), 143 stopped by SIGTERM. A traceback is shown only with ``--verbose``.
+
+SIGTERM gets the same clean stop as Ctrl-C: a handler raises
+:class:`ttmap.jobs.staging.Stopped`, the job's staging folder is removed and
+the output folder is left as it was; one line on stderr says so (and, for a
+scenario run, which finished tasks were kept for resuming).
 """
 
 from __future__ import annotations
 
 import logging
+import signal
 import sys
+import threading
 from typing import Any
 
 import click
@@ -33,9 +40,12 @@ class _Group(click.Group):
             if ctx.obj and ctx.obj.get("verbose"):
                 raise
             raise click.ClickException(str(err)) from err
-        except KeyboardInterrupt:
-            click.echo("interrupted; no partial product was left behind", err=True)
-            sys.exit(130)
+        except KeyboardInterrupt as err:
+            signum = int(getattr(err, "signum", signal.SIGINT))
+            note = getattr(err, "note", "") or "no partial product was left behind"
+            name = "SIGTERM" if signum == signal.SIGTERM else "Ctrl-C (SIGINT)"
+            click.echo(f"ttmap: stopped by {name}; {note}", err=True)
+            sys.exit(128 + signum)
         except Exception as err:  # an unexpected failure: still one line
             if ctx.obj and ctx.obj.get("verbose"):
                 raise
@@ -58,10 +68,25 @@ def cli(ctx: click.Context, verbose: bool, quiet: bool) -> None:
     """
     if verbose and quiet:
         raise click.UsageError("--verbose and --quiet exclude each other; give one")
+    _stop_on_sigterm(ctx)
     ctx.ensure_object(dict)
     ctx.obj["verbose"] = verbose
     ctx.obj["quiet"] = quiet
     logging.basicConfig(level=logging.DEBUG if verbose else logging.WARNING, format="%(message)s")
+
+
+def _raise_stopped(signum: int, frame: Any) -> None:
+    from ttmap.jobs.staging import Stopped
+
+    raise Stopped(signum)
+
+
+def _stop_on_sigterm(ctx: click.Context) -> None:
+    """SIGTERM raises :class:`~ttmap.jobs.staging.Stopped` (a KeyboardInterrupt) while the command runs."""
+    if threading.current_thread() is not threading.main_thread():
+        return
+    previous = signal.signal(signal.SIGTERM, _raise_stopped)
+    ctx.call_on_close(lambda: signal.signal(signal.SIGTERM, previous))
 
 
 def _register() -> None:

@@ -199,7 +199,9 @@ def atomic_output(path: str | os.PathLike[str], *, overwrite: bool) -> Iterator[
         os.replace(tmp, final)
         for side in sidecars:
             os.replace(side, final.with_name(final.name + side.name[len(tmp.name) :]))
-    except BaseException:
+    except BaseException as err:
+        if isinstance(err, OSError) and err.errno is not None and not err.filename:
+            err.filename = str(final)  # so a message can name the product, not a temporary name
         _remove_quietly(tmp)
         for side in _sidecars(tmp) if tmp.parent.is_dir() else []:
             _remove_quietly(side)

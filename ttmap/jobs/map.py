@@ -38,6 +38,7 @@ up-front unless ``overwrite`` is set.
 
 from __future__ import annotations
 
+import dataclasses
 import math
 import os
 import time
@@ -282,8 +283,9 @@ def run_map_job(job: MapJob, *, progress: Callable[[str], None] | None = None) -
         With sites: the site table gets no energy columns from phase-speed
         sets, and is not written as a Shapefile.
     """
-    from ttmap.io.atomic import check_writable
+    from ttmap.faults import checkpoint
     from ttmap.jobs.record import build_run_record, file_entry, utc_now, write_run_record
+    from ttmap.jobs.staging import staged_output
     from ttmap.memory import check_memory
     from ttmap.traveltime import prepare_medium
 
@@ -325,117 +327,125 @@ def run_map_job(job: MapJob, *, progress: Callable[[str], None] | None = None) -
     nest_summaries: dict[str, dict[str, Any]] = {}
     routes: list[Any] = []
 
-    written: list[Path] = []
-    summaries: dict[str, Any] = {}
-    kept: dict[str, TravelTimeResult] = {}  # results the site table needs
-    front_depth_m: np.ndarray | None = None
-    front_water: tuple[np.ndarray, np.ndarray] | None = None  # (water, open water) for the site statuses
-    for i, pset in enumerate(sets, 1):
-        tag = f"[{i}/{len(sets)} {pset.key}]"
-        t1 = time.perf_counter()
-        say(f"{tag} computing speeds ({pset.mode}{'' if pset.period_s is None else f', T = {pset.period_s:g} s'})")
-        medium = prepare_medium(
-            bathy.depth_m, grid, mode=pset.mode, period_s=pset.period_s,
-            floor_depth_m=job.speed.floor_depth_m, far_field=job.speed.far_field,
-            earth=job.speed.earth,  # type: ignore[arg-type]
+    final_out = out
+    with staged_output(final_out, overwrite=job.overwrite, say=say) as stage:
+        # products are written under their final names into the staging folder
+        job = dataclasses.replace(job, out_dir=str(stage.new))
+        out = stage.new
+        written: list[Path] = []
+        summaries: dict[str, Any] = {}
+        kept: dict[str, TravelTimeResult] = {}  # results the site table needs
+        front_depth_m: np.ndarray | None = None
+        front_water: tuple[np.ndarray, np.ndarray] | None = None  # (water, open water) for the site statuses
+        for i, pset in enumerate(sets, 1):
+            tag = f"[{i}/{len(sets)} {pset.key}]"
+            t1 = time.perf_counter()
+            say(f"{tag} computing speeds ({pset.mode}{'' if pset.period_s is None else f', T = {pset.period_s:g} s'})")
+            medium = prepare_medium(
+                bathy.depth_m, grid, mode=pset.mode, period_s=pset.period_s,
+                floor_depth_m=job.speed.floor_depth_m, far_field=job.speed.far_field,
+                earth=job.speed.earth,  # type: ignore[arg-type]
+            )
+            t2 = time.perf_counter()
+            say(f"{tag} solving on {medium.plane.shape[0]} x {medium.plane.shape[1]} cells")
+            try:
+                result = medium.travel_time(job.source, max_time_s=job.speed.max_time_s,
+                                            snap_radius_m=job.source_snap_radius_m)
+            except SourceError as err:
+                raise _with_sign_hint(err, job, bathy.depth_m) from err
+            t3 = time.perf_counter()
+            say(f"{tag} writing products")
+            if i == 1:
+                checkpoint("solved")
+            water = medium.water
+            if sites is not None and pset.mode == "long-wave":
+                front_depth_m = medium.depth_m
+                front_water = (medium.water, medium.open_water)
+            del medium  # the speeds and labels are not needed for the products: free them first
+            solved_nests = _solve_nests(job, pset, result, nests, say, tag) if nests else {}
+            if pset.mode == "long-wave" and job.writes_wave_paths():
+                routes = _trace_routes(job, sites, result, solved_nests)
+            written += _write_products(job, pset, result, water, site_marks, routes,
+                                       nest_outlines=_nest_outlines(nests, grid))
+            del water
+            if i == 1:
+                checkpoint("products", written[-1])
+            for nname, nres in solved_nests.items():
+                from ttmap.jobs.nests import as_travel_time
+
+                npset = ProductSet(nest_set_key(pset.key, nname), pset.mode, pset.period_s)
+                marks = _site_marks(sites, nres.grid) if sites is not None else None
+                written += _write_products(job, npset, as_travel_time(result, nres), nres.medium.water,
+                                           marks, routes, grid.crs, _nest_path(nests, nname))
+            nest_summaries[pset.key] = {k: v.summary.as_dict() for k, v in solved_nests.items()}
+            if sites is not None and pset.mode in ("long-wave", "group"):
+                nest_kept[pset.key] = solved_nests
+            if sites is not None and pset.mode in ("long-wave", "group"):
+                kept[pset.key] = result
+            t4 = time.perf_counter()
+            timings[f"{pset.key}.speeds_s"] = t2 - t1
+            timings[f"{pset.key}.solve_s"] = t3 - t2
+            timings[f"{pset.key}.write_s"] = t4 - t3
+            from ttmap.jobs.layers import minutes_range
+
+            summaries[pset.key] = {
+                "title": pset.title,
+                "speed_mode": pset.mode,
+                "period_s": pset.period_s,
+                **result.summary.as_dict(),
+                "arrival_min_range": minutes_range(result.arrival_time_min),
+            }
+        site_block: dict[str, Any] | None = None
+        inputs: dict[str, Any] = {"bathymetry": file_entry(job.reading.path, sha256=bathy.sha256,
+                                                            band=bathy.band, notes=list(bathy.notes))}
+        if sites is not None and job.sites is not None and job.sites.path is not None:
+            t5 = time.perf_counter()
+            say(f"site table and timeline for {len(sites)} site(s)")
+            files, site_block = _write_site_table(job, sites, sets, kept, front_depth_m, grid, front_water,
+                                                  nest_kept)
+            written += files
+            kept.clear()
+            front_water = None
+            timings["sites_s"] = time.perf_counter() - t5
+            inputs["sites"] = file_entry(job.sites.path, layer=job.sites.layer, name_field=job.sites.name_field,
+                                         crs=sites.crs.to_string(), count=len(sites))
+        if routes:
+            written += _write_wave_paths(job, routes, grid)
+        timings["total_s"] = time.perf_counter() - t0
+        if job.products.report:
+            written.append(out / REPORT_NAME)  # written from the record, just before run.json
+        blocks: dict[str, Any] = {"product_sets": summaries}
+        if nests:
+            from ttmap.jobs.nests import nests_record
+
+            blocks["nests"] = nests_record(nests, nest_summaries)
+            for n in nests:
+                inputs[f"nest-{n.name}"] = file_entry(n.path, sha256=n.bathymetry.sha256, band=n.bathymetry.band,
+                                                      notes=list(n.bathymetry.notes))
+        if site_block is not None:
+            blocks["sites"] = site_block
+        record = build_run_record(
+            job="map",
+            command_line=job.command_line,
+            started_utc=started,
+            inputs=inputs,
+            parameters=map_job_parameters(job),
+            grid=grid,
+            timings_s=timings,
+            products=written,
+            out_dir=out,
+            notes=notes,
+            **blocks,
         )
-        t2 = time.perf_counter()
-        say(f"{tag} solving on {medium.plane.shape[0]} x {medium.plane.shape[1]} cells")
-        try:
-            result = medium.travel_time(job.source, max_time_s=job.speed.max_time_s,
-                                        snap_radius_m=job.source_snap_radius_m)
-        except SourceError as err:
-            raise _with_sign_hint(err, job, bathy.depth_m) from err
-        t3 = time.perf_counter()
-        say(f"{tag} writing products")
-        if i == 1:
-            out.mkdir(parents=True, exist_ok=True)
-            check_writable(planned, job.overwrite)
-        water = medium.water
-        if sites is not None and pset.mode == "long-wave":
-            front_depth_m = medium.depth_m
-            front_water = (medium.water, medium.open_water)
-        del medium  # the speeds and labels are not needed for the products: free them first
-        solved_nests = _solve_nests(job, pset, result, nests, say, tag) if nests else {}
-        if pset.mode == "long-wave" and job.writes_wave_paths():
-            routes = _trace_routes(job, sites, result, solved_nests)
-        written += _write_products(job, pset, result, water, site_marks, routes,
-                                   nest_outlines=_nest_outlines(nests, grid))
-        del water
-        for nname, nres in solved_nests.items():
-            from ttmap.jobs.nests import as_travel_time
+        if job.products.report:
+            from ttmap.jobs.styling import write_run_report
 
-            npset = ProductSet(nest_set_key(pset.key, nname), pset.mode, pset.period_s)
-            marks = _site_marks(sites, nres.grid) if sites is not None else None
-            written += _write_products(job, npset, as_travel_time(result, nres), nres.medium.water,
-                                       marks, routes, grid.crs, _nest_path(nests, nname))
-        nest_summaries[pset.key] = {k: v.summary.as_dict() for k, v in solved_nests.items()}
-        if sites is not None and pset.mode in ("long-wave", "group"):
-            nest_kept[pset.key] = solved_nests
-        if sites is not None and pset.mode in ("long-wave", "group"):
-            kept[pset.key] = result
-        t4 = time.perf_counter()
-        timings[f"{pset.key}.speeds_s"] = t2 - t1
-        timings[f"{pset.key}.solve_s"] = t3 - t2
-        timings[f"{pset.key}.write_s"] = t4 - t3
-        from ttmap.jobs.layers import minutes_range
-
-        summaries[pset.key] = {
-            "title": pset.title,
-            "speed_mode": pset.mode,
-            "period_s": pset.period_s,
-            **result.summary.as_dict(),
-            "arrival_min_range": minutes_range(result.arrival_time_min),
-        }
-    site_block: dict[str, Any] | None = None
-    inputs: dict[str, Any] = {"bathymetry": file_entry(job.reading.path, sha256=bathy.sha256,
-                                                        band=bathy.band, notes=list(bathy.notes))}
-    if sites is not None and job.sites is not None and job.sites.path is not None:
-        t5 = time.perf_counter()
-        say(f"site table and timeline for {len(sites)} site(s)")
-        files, site_block = _write_site_table(job, sites, sets, kept, front_depth_m, grid, front_water,
-                                              nest_kept)
-        written += files
-        kept.clear()
-        front_water = None
-        timings["sites_s"] = time.perf_counter() - t5
-        inputs["sites"] = file_entry(job.sites.path, layer=job.sites.layer, name_field=job.sites.name_field,
-                                     crs=sites.crs.to_string(), count=len(sites))
-    if routes:
-        written += _write_wave_paths(job, routes, grid)
-    timings["total_s"] = time.perf_counter() - t0
-    if job.products.report:
-        written.append(out / REPORT_NAME)  # written from the record, just before run.json
-    blocks: dict[str, Any] = {"product_sets": summaries}
-    if nests:
-        from ttmap.jobs.nests import nests_record
-
-        blocks["nests"] = nests_record(nests, nest_summaries)
-        for n in nests:
-            inputs[f"nest-{n.name}"] = file_entry(n.path, sha256=n.bathymetry.sha256, band=n.bathymetry.band,
-                                                  notes=list(n.bathymetry.notes))
-    if site_block is not None:
-        blocks["sites"] = site_block
-    record = build_run_record(
-        job="map",
-        command_line=job.command_line,
-        started_utc=started,
-        inputs=inputs,
-        parameters=map_job_parameters(job),
-        grid=grid,
-        timings_s=timings,
-        products=written,
-        out_dir=out,
-        notes=notes,
-        **blocks,
-    )
-    if job.products.report:
-        from ttmap.jobs.styling import write_run_report
-
-        say("writing report.html")
-        record["timings_s"]["report_s"] = round(write_run_report(record, out, overwrite=job.overwrite)[1], 4)
-    run_json = write_run_record(record, out / RUN_RECORD_NAME, overwrite=job.overwrite)
-    return MapJobResult(out_dir=out, record_path=run_json, products=(*written, run_json),
+            say("writing report.html")
+            record["timings_s"]["report_s"] = round(write_run_report(record, out, overwrite=job.overwrite)[1], 4)
+        checkpoint("record", out / RUN_RECORD_NAME)
+        run_json = write_run_record(record, out / RUN_RECORD_NAME, overwrite=job.overwrite)
+    written = [stage.final(p) for p in written]
+    return MapJobResult(out_dir=final_out, record_path=stage.final(run_json), products=(*written, stage.final(run_json)),
                         product_sets=summaries, sites=site_block, record=record)
 
 

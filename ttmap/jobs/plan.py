@@ -49,6 +49,8 @@ __all__ = [
     "check_site_stems",
     "refuse_outputs_up_front",
     "style_files",
+    "is_product_name",
+    "SUBSET_FOLDERS",
 ]
 
 #: File name of the run record, written last in the output folder.
@@ -64,6 +66,40 @@ STYLED_SUFFIXES: tuple[str, ...] = (".tif", ".shp", ".geojson")
 #: Layer names of every isochrone file (GeoPackage layers; Shapefile and
 #: GeoJSON outputs get one file per layer, named ``<stem>_<layer>``).
 ISOCHRONE_LAYERS: tuple[str, str] = ("isochrone_lines", "isochrone_bands")
+
+
+#: Subfolders a job may fill with a whole product set of its own (the demo's site map).
+SUBSET_FOLDERS: tuple[str, ...] = ("site_maps",)
+
+_PRODUCT_SUFFIX = r"(?:tif|tif\.aux\.xml|tif\.ovr|sld|gpkg|gpkg-wal|gpkg-shm|shp|shx|dbf|prj|cpg|qix|shp\.xml|geojson|json|csv|png|pdf)"
+_PRODUCT_RE = re.compile(
+    r"^(?:"
+    r"(?:arrival|isochrones|map|coast|site_centred|minutes_left|difference|envelope)_[A-Za-z0-9_.-]+\." + _PRODUCT_SUFFIX
+    + r"|(?:sites|timeline|sites_x_scenarios|earliest_by_site)\." + _PRODUCT_SUFFIX
+    + r"|[A-Za-z0-9_.-]+\.task\.json"
+    + r"|" + re.escape(RUN_RECORD_NAME)
+    + r")$"
+)
+
+
+def is_product_name(relative: str) -> bool:
+    """Whether a path (relative to the output folder) is named as ttmap names its products.
+
+    Used where no run record says which files a run wrote (an incomplete set):
+    only files named by the plans here (top level, or one of
+    :data:`SUBSET_FOLDERS`) count as ttmap's.
+
+    Examples
+    --------
+    >>> is_product_name("arrival_front.tif"), is_product_name("site_maps/run.json")
+    (True, True)
+    >>> is_product_name("notes.txt"), is_product_name("data/arrival_front.tif")
+    (False, False)
+    """
+    parts = relative.replace("\\", "/").split("/")
+    if len(parts) == 2 and parts[0] in SUBSET_FOLDERS:
+        parts = parts[1:]
+    return len(parts) == 1 and bool(_PRODUCT_RE.match(parts[0]))
 
 
 def _layer_files(target: Path, layers: Sequence[str]) -> list[Path]:
@@ -361,21 +397,33 @@ def refuse_outputs_up_front(out_dir: str | os.PathLike[str], planned: Sequence[P
 
     The folder itself is created only when the first product is written, so
     that a run refused for its input (missing file, source on land) leaves
-    nothing behind.
+    nothing behind. Staging folders a killed ttmap run left in it are removed
+    first (:func:`ttmap.jobs.staging.recover_stale`, which says so in one warning).
 
     Raises
     ------
     InputDataError
         ``out_dir`` is a file, or cannot be created.
     OutputExistsError
-        A planned file exists and ``overwrite`` is False.
+        A planned file exists, or the folder holds an incomplete product set
+        (products without ``run.json``), and ``overwrite`` is False.
     """
+    from ttmap.errors import OutputExistsError
     from ttmap.io.atomic import check_writable
+    from ttmap.jobs.staging import incomplete_set, recover_stale
 
     out = Path(out_dir)
     if out.exists() and not out.is_dir():
         raise InputDataError(f"output folder {str(out)!r} is a file; give a folder name")
     if out.is_dir():
+        recover_stale(out)
+        partial = incomplete_set(out)
+        if partial and not overwrite:
+            raise OutputExistsError(
+                f"output folder {str(out)!r} holds an incomplete product set ({len(partial)} file(s) "
+                f"such as {partial[0]!r}, no {RUN_RECORD_NAME}; a run stopped before it finished); "
+                "pass --overwrite to replace it, or choose another --out folder"
+            )
         check_writable(planned, overwrite)
     else:
         _check_creatable(out)

@@ -95,9 +95,8 @@ def run_scenario_file(
     import json
     import time
 
-    from ttmap.jobs.batch import run_tasks
     from ttmap.io.atomic import check_writable
-    from ttmap.jobs.record import write_run_record
+    from ttmap.jobs.staging import staged_output
 
     t_start = time.perf_counter()
     started = _dt.datetime.now(_dt.UTC).replace(microsecond=0).isoformat()
@@ -114,12 +113,12 @@ def run_scenario_file(
     out = Path(out_dir) if out_dir is not None else Path(sf.outputs.folder)
     if out.exists() and not out.is_dir():
         raise InputDataError(f"output folder {str(out)!r} is a file; give a folder name")
-    out.mkdir(parents=True, exist_ok=True)
     run_json = out / "run.json"
     derived_overwrite = overwrite or resume
-    check_writable([run_json], derived_overwrite)
+    if out.is_dir():
+        check_writable([run_json], derived_overwrite)
 
-    from ttmap.jobs.scenario_reciprocal import plan_table_method, run_reciprocal_products
+    from ttmap.jobs.scenario_reciprocal import plan_table_method
 
     plan = plan_table_method(sf, direct=direct)
     spec, tasks = scenario_tasks(sf)
@@ -128,16 +127,53 @@ def run_scenario_file(
         tasks = [t for t in tasks if t.meta.get("scenario") in keep
                  and (plan.raster_periods or t.meta.get("product") == "front")]
 
-    def raster_progress(done: int, _total: int, name: str) -> None:
-        if progress is not None:
-            progress(done, plan.total_solves, name)
-
     from ttmap.jobs.batch import task_output_paths
     from ttmap.jobs.plan import REPORT_NAME, style_files
 
     # the styles beside the task rasters and the report are derived like run.json
-    check_writable([*style_files(task_output_paths(t.name, out)[0] for t in tasks),
-                    *([out / REPORT_NAME] if report else [])], derived_overwrite)
+    if out.is_dir():  # a new folder holds nothing to refuse
+        check_writable([*style_files(task_output_paths(t.name, out)[0] for t in tasks),
+                        *([out / REPORT_NAME] if report else [])], derived_overwrite)
+    tasks_before = set(out.glob("*.task.json")) if out.is_dir() else set()
+
+    def stopped_note() -> str:
+        kept = len(set(out.glob("*.task.json")) - tasks_before) if out.is_dir() else 0
+        if not kept:
+            return ""
+        return (f"{kept} finished task(s) kept in {str(out)!r} (each whole: raster and task.json); "
+                "no comparison or run.json was written; rerun the same command to resume")
+
+    # Tasks write into the folder itself, each whole (raster, then task.json), so
+    # a stopped run can resume; the comparisons, report and run.json are staged
+    # and appear together, run.json last.
+    with staged_output(out, overwrite=overwrite, replace_record=resume, stopped_note=stopped_note) as stage:
+        return _run_staged(sf, out, stage, spec, tasks, plan, ex=ex, nw=nw, overwrite=overwrite,
+                           resume=resume, progress=progress, command_line=command_line,
+                           validate_s=validate_s, started=started, t_start=t_start, report=report,
+                           dask_log=dask_log, direct=direct)
+
+
+def _run_staged(sf: ScenarioFile, out: Path, stage: Any, spec: MediumSpec, tasks: Sequence[Any],
+                plan: Any, *, ex: str, nw: int | None, overwrite: bool, resume: bool, progress: Any,
+                command_line: str, validate_s: float | None, started: str, t_start: float,
+                report: bool, dask_log: bool, direct: bool) -> dict[str, Any]:
+    """The scenario run inside its staging folder: tasks into ``out``, the rest into ``stage.new``."""
+    import time
+
+    from ttmap.faults import checkpoint
+    from ttmap.jobs.batch import run_tasks
+    from ttmap.jobs.plan import REPORT_NAME
+    from ttmap.jobs.record import write_run_record
+    from ttmap.jobs.scenario_reciprocal import run_reciprocal_products
+
+    derived_overwrite = overwrite or resume
+    run_json = out / "run.json"
+    staged = stage.new
+
+    def raster_progress(done: int, _total: int, name: str) -> None:
+        if progress is not None:
+            progress(done, plan.total_solves, name)
+
     t0 = time.perf_counter()
     summaries = run_tasks(
         tasks,
@@ -152,6 +188,7 @@ def run_scenario_file(
         dask_log=dask_log,
     )
     solve_s = time.perf_counter() - t0
+    checkpoint("solved")
 
     by_name = {t.name: s for t, s in zip(tasks, summaries)}
     fronts: dict[str, str] = {}
@@ -162,15 +199,17 @@ def run_scenario_file(
 
     t1 = time.perf_counter()
     products: dict[str, Any] = {"envelope": None, "differences": [], "skipped": []}
+    envelope_staged: Mapping[str, str] | None = None  # where the envelope files are until the commit
     reciprocal_sites: dict[str, Any] | None = None
     if plan.method == "reciprocal":
         rec_env, reciprocal_sites, rec_info = run_reciprocal_products(
-            sf, spec, out, plan, fronts=fronts, executor=ex, n_workers=nw,
+            sf, spec, staged, plan, fronts=fronts, executor=ex, n_workers=nw,
             overwrite=derived_overwrite, progress=progress, progress_offset=len(tasks),
             dask_log=dask_log,
         )
         if rec_env["files"] is not None:
-            products["envelope"] = _product_paths(rec_env["files"])
+            envelope_staged = rec_env["files"]
+            products["envelope"] = _product_paths(rec_env["files"], stage)
             products["envelope_method"] = "one solve (union of starts, labels carried)"
             rec_info["envelope"] = rec_env["info"]
         products["reciprocal"] = rec_info
@@ -184,10 +223,12 @@ def run_scenario_file(
             if len(fronts) >= 2:
                 names = list(fronts)
                 env = write_envelope(
-                    str(out), [fronts[n] for n in names], names, None, derived_overwrite,
+                    str(staged), [fronts[n] for n in names], names, None, derived_overwrite,
                     water_mask=water,
                 )
-                products["envelope"] = _product_paths(env)
+                envelope_staged = env
+                products["envelope"] = _product_paths(env, stage)
+                checkpoint("products")
             else:
                 products["skipped"].append(
                     f"envelope: needs at least two finished fronts, got {len(fronts)}"
@@ -199,25 +240,23 @@ def run_scenario_file(
                     f"difference {a} vs {b}: no front for {', '.join(missing)} (failed)"
                 )
                 continue
-            diff = write_difference(str(out), fronts[a], fronts[b], a, b, derived_overwrite,
+            diff = write_difference(str(staged), fronts[a], fronts[b], a, b, derived_overwrite,
                                     water_mask=water)
-            products["differences"].append({"a": a, "b": b, "files": _product_paths(diff)})
+            products["differences"].append({"a": a, "b": b, "files": _product_paths(diff, stage)})
     sites_summary: dict[str, Any] | None = None
     if reciprocal_sites is not None:
         sites_summary = reciprocal_sites
-        if sites_summary.get("files"):
-            products["sites"] = sites_summary["files"]
-        else:
-            products["skipped"].append(f"sites by scenarios: {sites_summary.get('skipped')}")
     elif sf.sites_path is not None:
-        sites_summary = _write_sites_x_scenarios(sf, out, fronts, by_name, derived_overwrite)
+        sites_summary = _write_sites_x_scenarios(sf, staged, fronts, by_name, derived_overwrite)
+    if sites_summary is not None:
+        sites_summary["files"] = _product_paths(sites_summary.get("files") or {}, stage)
         if sites_summary.get("files"):
             products["sites"] = sites_summary["files"]
         else:
             products["skipped"].append(f"sites by scenarios: {sites_summary.get('skipped')}")
     from ttmap.jobs.styling import style_scenario_run
 
-    styles = style_scenario_run(summaries, envelope=products["envelope"], envelope_names=names,
+    styles = style_scenario_run(summaries, envelope=envelope_staged, envelope_names=names,
                                 overwrite=derived_overwrite)
     compare_s = time.perf_counter() - t1
 
@@ -247,13 +286,16 @@ def run_scenario_file(
             "total_s": time.perf_counter() - t_start + (validate_s or 0.0),
         },
         out_dir=out,
-        extra_products=[*map(str, styles), *([str(out / REPORT_NAME)] if report else [])],
+        extra_products=[*(str(stage.final(p)) for p in styles),
+                        *([str(out / REPORT_NAME)] if report else [])],
     )
     if report:
         from ttmap.jobs.styling import write_run_report
 
-        record["timings_s"]["report_s"] = round(write_run_report(record, out, overwrite=derived_overwrite)[1], 4)
-    write_run_record(record, run_json, overwrite=True)
+        record["timings_s"]["report_s"] = round(
+            write_run_report(record, staged, overwrite=derived_overwrite)[1], 4)
+    checkpoint("record", run_json)
+    write_run_record(record, staged / run_json.name, overwrite=True)
     record["run_json"] = str(run_json)
     return record
 
@@ -433,16 +475,16 @@ def _files_written(products: Mapping[str, Any]) -> list[str]:
     return out
 
 
-def _product_paths(value: Any) -> Any:
-    """Paths returned by a comparison writer, as JSON-ready text."""
+def _product_paths(value: Any, stage: Any = None) -> Any:
+    """Paths returned by a comparison writer, as JSON-ready text (final paths, not staged ones)."""
     if value is None:
         return None
     if isinstance(value, (str, os.PathLike)):
-        return str(value)
+        return str(value) if stage is None else str(stage.final(value))
     if isinstance(value, Mapping):
-        return {str(k): _product_paths(v) for k, v in value.items()}
+        return {str(k): _product_paths(v, stage) for k, v in value.items()}
     if isinstance(value, (list, tuple)):
-        return [_product_paths(v) for v in value]
+        return [_product_paths(v, stage) for v in value]
     return str(value)
 
 

@@ -196,8 +196,9 @@ def run_site_map_job(job: SiteMapJob, *, progress: Callable[[str], None] | None 
         delay out of range, an existing output without ``overwrite`` (all
         before anything is written), or no site that can be placed.
     """
-    from ttmap.io.atomic import check_writable
+    from ttmap.faults import checkpoint
     from ttmap.jobs.layers import minutes_range
+    from ttmap.jobs.staging import staged_output
     from ttmap.jobs.record import build_run_record, file_entry, utc_now, write_run_record
     from ttmap.memory import check_memory
     from ttmap.sitemap import RECIPROCITY_NOTE, combine_site_times, site_centred_times
@@ -241,140 +242,147 @@ def run_site_map_job(job: SiteMapJob, *, progress: Callable[[str], None] | None 
     )
     timings["speeds_s"] = time.perf_counter() - t1
 
-    written: list[Path] = []
-    per_site: list[dict[str, Any]] = []
-    skipped: list[dict[str, str]] = []
-    first_error: SourceError | None = None
-    best: np.ndarray | None = None
-    first: np.ndarray | None = None
-    solved: list[str] = []
-    last = None
-    created = False
-    n = len(sites)
-    # The one site evaluation places every site (the same cells and status words as the
-    # site tables): open water is what a solve from the site reaches.
-    from ttmap.products.site_eval import SNAP_MOVED, SNAP_OK, snap_sites
+    final_out = out
+    with staged_output(final_out, overwrite=job.overwrite) as stage:
+        out = stage.new  # products go under their final names into the staging folder
+        written: list[Path] = []
+        per_site: list[dict[str, Any]] = []
+        skipped: list[dict[str, str]] = []
+        first_error: SourceError | None = None
+        best: np.ndarray | None = None
+        first: np.ndarray | None = None
+        solved: list[str] = []
+        last = None
+        created = False
+        n = len(sites)
+        # The one site evaluation places every site (the same cells and status words as the
+        # site tables): open water is what a solve from the site reaches.
+        from ttmap.products.site_eval import SNAP_MOVED, SNAP_OK, snap_sites
 
-    radius_m = job.sites.search_radius_m
-    placed = snap_sites(sites, grid, medium.open_water, search_radius_m=radius_m, depth_m=medium.depth_m,
-                        water=medium.water, open_water=medium.open_water)
-    for i, (site, snap) in enumerate(zip(sites, placed, strict=True), 1):
-        tag = f"[{i}/{n} {site.name}]"
-        t2 = time.perf_counter()
-        say(f"{tag} solving from the site")
-        if snap.status == SNAP_OK:
-            src = Source.point_xy(site.x, site.y, crs=sites.crs, label=site.name)
-        elif snap.status == SNAP_MOVED:
-            src = Source.point_xy(snap.x, snap.y, crs=grid.crs, label=site.name)
-        else:
-            err = SourceError(
-                f"site {site.name!r}: {snap.status} (no open water within {radius_m / 1000.0:g} km); "
-                "move the site or enlarge the search radius (--site-search-radius-km)"
-            )
-            skipped.append({"name": site.name, "status": snap.status, "reason": str(err)})
-            first_error = first_error or err
-            continue
-        try:
-            result = site_centred_times(medium, src, name=site.name, snap_radius_m=radius_m,
-                                        max_time_s=job.speed.max_time_s)
-        except SourceError as err:
-            skipped.append({"name": site.name, "status": snap.status, "reason": str(err)})
-            first_error = first_error or err
-            continue
-        if snap.status == SNAP_MOVED:
-            result = dataclasses.replace(
-                result, summary=dataclasses.replace(result.summary, source_moved_m=snap.moved_m),
-                settings={**result.settings, "site_moved_m": snap.moved_m},
-            )
-        t3 = time.perf_counter()
-        if not created:
-            out.mkdir(parents=True, exist_ok=True)
-            check_writable(planned, job.overwrite)
-            created = True
-        written += write_site_products(
-            out, site.name, result, notification_delay_min=delays[site.name], overwrite=job.overwrite,
-            vector_formats=job.products.vector_formats, map_formats=job.products.map_formats,
-            title_prefix=job.title_prefix, water_mask=medium.water,
-            isochrone_interval_min=job.products.isochrone_interval_min,
-        )
-        t4 = time.perf_counter()
-        timings[f"{site.name}.solve_s"] = t3 - t2
-        timings[f"{site.name}.write_s"] = t4 - t3
-        sm = result.summary
-        per_site.append({
-            "name": site.name,
-            "x": site.x,
-            "y": site.y,
-            "crs": sites.crs.to_string(),
-            "status": snap.status,
-            "solve_x": sm.source_x,
-            "solve_y": sm.source_y,
-            "moved_m": round(float(sm.source_moved_m), 1),
-            "notification_delay_min": delays[site.name],
-            "notification_delay_from": "site" if site.notification_delay_min is not None else "default",
-            "cells_reached": sm.cells_reached,
-            "cells_unreached": sm.cells_unreached,
-            "minutes_range": minutes_range(result.arrival_time_min),
-        })
-        if job.combined and n >= 2:
-            # Earliest time over the sites so far, streamed so that only two
-            # maps are held at once; ties keep the earlier site, as
-            # combine_site_times does for all maps together.
-            t = result.arrival_time_min
-            if best is None or first is None:
-                best = np.where(np.isfinite(t), t, np.nan)
-                first = np.where(np.isfinite(t), len(solved), -1).astype(np.int16)
+        radius_m = job.sites.search_radius_m
+        placed = snap_sites(sites, grid, medium.open_water, search_radius_m=radius_m, depth_m=medium.depth_m,
+                            water=medium.water, open_water=medium.open_water)
+        for i, (site, snap) in enumerate(zip(sites, placed, strict=True), 1):
+            tag = f"[{i}/{n} {site.name}]"
+            t2 = time.perf_counter()
+            say(f"{tag} solving from the site")
+            if snap.status == SNAP_OK:
+                src = Source.point_xy(site.x, site.y, crs=sites.crs, label=site.name)
+            elif snap.status == SNAP_MOVED:
+                src = Source.point_xy(snap.x, snap.y, crs=grid.crs, label=site.name)
             else:
-                best, which, _ = combine_site_times({"so far": best, site.name: t})
-                first = np.where(which == 1, len(solved), np.where(which == 0, first, -1)).astype(np.int16)
-        solved.append(site.name)
-        last = result
-        del result
-    if not solved:
-        assert first_error is not None
-        raise first_error
-    for skip in skipped:
-        warnings.warn(f"{skip['reason']}; no map for this site", TtmapWarning, stacklevel=2)
-    combined_written = False
-    if job.combined and len(solved) >= 2 and best is not None and first is not None:
-        say(f"combining {len(solved)} sites: earliest time and site reached first")
-        t5 = time.perf_counter()
-        written += write_combined_products(out, best, first, solved, grid, overwrite=job.overwrite,
-                                           settings_from=last)
-        combined_written = True
-        timings["combine_s"] = time.perf_counter() - t5
-    timings["total_s"] = time.perf_counter() - t0
-    if job.products.report:
-        written.append(out / REPORT_NAME)  # written from the record, just before run.json
+                err = SourceError(
+                    f"site {site.name!r}: {snap.status} (no open water within {radius_m / 1000.0:g} km); "
+                    "move the site or enlarge the search radius (--site-search-radius-km)"
+                )
+                skipped.append({"name": site.name, "status": snap.status, "reason": str(err)})
+                first_error = first_error or err
+                continue
+            try:
+                result = site_centred_times(medium, src, name=site.name, snap_radius_m=radius_m,
+                                            max_time_s=job.speed.max_time_s)
+            except SourceError as err:
+                skipped.append({"name": site.name, "status": snap.status, "reason": str(err)})
+                first_error = first_error or err
+                continue
+            if snap.status == SNAP_MOVED:
+                result = dataclasses.replace(
+                    result, summary=dataclasses.replace(result.summary, source_moved_m=snap.moved_m),
+                    settings={**result.settings, "site_moved_m": snap.moved_m},
+                )
+            t3 = time.perf_counter()
+            if not created:
+                checkpoint("solved")
+            written += write_site_products(
+                out, site.name, result, notification_delay_min=delays[site.name], overwrite=job.overwrite,
+                vector_formats=job.products.vector_formats, map_formats=job.products.map_formats,
+                title_prefix=job.title_prefix, water_mask=medium.water,
+                isochrone_interval_min=job.products.isochrone_interval_min,
+            )
+            if not created:
+                checkpoint("products", written[-1])
+                created = True
+            t4 = time.perf_counter()
+            timings[f"{site.name}.solve_s"] = t3 - t2
+            timings[f"{site.name}.write_s"] = t4 - t3
+            sm = result.summary
+            per_site.append({
+                "name": site.name,
+                "x": site.x,
+                "y": site.y,
+                "crs": sites.crs.to_string(),
+                "status": snap.status,
+                "solve_x": sm.source_x,
+                "solve_y": sm.source_y,
+                "moved_m": round(float(sm.source_moved_m), 1),
+                "notification_delay_min": delays[site.name],
+                "notification_delay_from": "site" if site.notification_delay_min is not None else "default",
+                "cells_reached": sm.cells_reached,
+                "cells_unreached": sm.cells_unreached,
+                "minutes_range": minutes_range(result.arrival_time_min),
+            })
+            if job.combined and n >= 2:
+                # Earliest time over the sites so far, streamed so that only two
+                # maps are held at once; ties keep the earlier site, as
+                # combine_site_times does for all maps together.
+                t = result.arrival_time_min
+                if best is None or first is None:
+                    best = np.where(np.isfinite(t), t, np.nan)
+                    first = np.where(np.isfinite(t), len(solved), -1).astype(np.int16)
+                else:
+                    best, which, _ = combine_site_times({"so far": best, site.name: t})
+                    first = np.where(which == 1, len(solved), np.where(which == 0, first, -1)).astype(np.int16)
+            solved.append(site.name)
+            last = result
+            del result
+        if not solved:
+            assert first_error is not None
+            raise first_error
+        for skip in skipped:
+            warnings.warn(f"{skip['reason']}; no map for this site", TtmapWarning, stacklevel=2)
+        combined_written = False
+        if job.combined and len(solved) >= 2 and best is not None and first is not None:
+            say(f"combining {len(solved)} sites: earliest time and site reached first")
+            t5 = time.perf_counter()
+            written += write_combined_products(out, best, first, solved, grid, overwrite=job.overwrite,
+                                               settings_from=last)
+            combined_written = True
+            timings["combine_s"] = time.perf_counter() - t5
+        timings["total_s"] = time.perf_counter() - t0
+        if job.products.report:
+            written.append(out / REPORT_NAME)  # written from the record, just before run.json
 
-    inputs: dict[str, Any] = {"bathymetry": file_entry(job.reading.path, sha256=bathy.sha256,
-                                                        band=bathy.band, notes=list(bathy.notes))}
-    if job.sites.path is not None:
-        inputs["sites"] = file_entry(job.sites.path, layer=job.sites.layer, name_field=job.sites.name_field,
-                                     crs=sites.crs.to_string(), count=len(sites))
-    record = build_run_record(
-        job="site-map",
-        command_line=job.command_line,
-        started_utc=started,
-        inputs=inputs,
-        parameters=site_map_job_parameters(job, sites),
-        grid=grid,
-        timings_s=timings,
-        products=written,
-        out_dir=out,
-        notes=name_notes,
-        sites=per_site,
-        sites_skipped=skipped,
-        combined_written=combined_written,
-        reciprocity=RECIPROCITY_NOTE,
-    )
-    if job.products.report:
-        from ttmap.jobs.styling import write_run_report
+        inputs: dict[str, Any] = {"bathymetry": file_entry(job.reading.path, sha256=bathy.sha256,
+                                                            band=bathy.band, notes=list(bathy.notes))}
+        if job.sites.path is not None:
+            inputs["sites"] = file_entry(job.sites.path, layer=job.sites.layer, name_field=job.sites.name_field,
+                                         crs=sites.crs.to_string(), count=len(sites))
+        record = build_run_record(
+            job="site-map",
+            command_line=job.command_line,
+            started_utc=started,
+            inputs=inputs,
+            parameters=site_map_job_parameters(job, sites),
+            grid=grid,
+            timings_s=timings,
+            products=written,
+            out_dir=out,
+            notes=name_notes,
+            sites=per_site,
+            sites_skipped=skipped,
+            combined_written=combined_written,
+            reciprocity=RECIPROCITY_NOTE,
+        )
+        if job.products.report:
+            from ttmap.jobs.styling import write_run_report
 
-        say("writing report.html")
-        record["timings_s"]["report_s"] = round(write_run_report(record, out, overwrite=job.overwrite)[1], 4)
-    run_json = write_run_record(record, out / RUN_RECORD_NAME, overwrite=job.overwrite)
-    return SiteMapJobResult(out_dir=out, record_path=run_json, products=(*written, run_json), sites=per_site,
+            say("writing report.html")
+            record["timings_s"]["report_s"] = round(write_run_report(record, out, overwrite=job.overwrite)[1], 4)
+        checkpoint("record", out / RUN_RECORD_NAME)
+        run_json = write_run_record(record, out / RUN_RECORD_NAME, overwrite=job.overwrite)
+    written = [stage.final(p) for p in written]
+    run_json = stage.final(run_json)
+    return SiteMapJobResult(out_dir=final_out, record_path=run_json, products=(*written, run_json), sites=per_site,
                             skipped=skipped, combined_written=combined_written, record=record)
 
 
