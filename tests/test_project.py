@@ -485,3 +485,14 @@ def test_no_source_cites_forbidden_origins():
             if pattern.search(line):
                 hits.append(f"{p.relative_to(ROOT)}:{n}: {line.strip()[:80]}")
     assert not hits, "\n".join(hits)
+
+
+def test_no_run_products_at_the_top_level():
+    """The top level holds the project layout only: a run writing into the working folder
+    (a test or script with a relative --out) must not leave products that get committed."""
+    allowed = {"README.md", "DEVELOPERS.md", "pyproject.toml", ".gitignore"}
+    proc = subprocess.run(["git", "ls-files"], cwd=ROOT, capture_output=True, text=True, check=False)
+    if proc.returncode != 0:
+        pytest.skip("not a git checkout")
+    top = {f for f in proc.stdout.splitlines() if "/" not in f}
+    assert top <= allowed, f"unexpected files at the top level: {sorted(top - allowed)}"
