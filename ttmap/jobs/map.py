@@ -615,7 +615,7 @@ def _write_coast(job: MapJob, pset: ProductSet, names: ProductSetNames, segments
     from ttmap.jobs.layers import latest_min, write_one_layer
     from ttmap.products.coast import coast_classes, coast_layer, coast_sld
     from ttmap.products.palette import arrival_colors_hex
-    from ttmap.products.styles import write_sld
+    from ttmap.io.styles import write_sld
 
     step = float(job.products.coast_interval_min)
     layer = coast_layer(
