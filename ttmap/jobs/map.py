@@ -594,9 +594,7 @@ def _write_products(job: MapJob, pset: ProductSet, result: TravelTimeResult, wat
                     save_figure(fig, tmp)
                 written.append(target)
         finally:
-            import matplotlib.pyplot as plt
-
-            plt.close(fig)
+            fig.clear()  # an Agg figure, never registered with pyplot: no pyplot import to close it
     return written
 
 
