@@ -428,8 +428,13 @@ def in_helper(fn: Any, *args: Any) -> Any:
 # ---------------------------------------------------------------------------
 
 
-def run_cli(tif: str, source_args: list[str], out_dir: Path, log_dir: Path) -> dict[str, Any]:
-    """One ``ttmap map`` run in a fresh interpreter; wall time and peak RSS of the child."""
+def run_cli(
+    tif: str, source_args: list[str], out_dir: Path, log_dir: Path, extra: tuple[str, ...] = ()
+) -> dict[str, Any]:
+    """One ``ttmap map`` run in a fresh interpreter; wall time and peak RSS of the child.
+
+    ``extra`` holds further options (e.g. ``--no-map``) for ``--variants``.
+    """
     cmd = [
         sys.executable,
         "-c",
@@ -439,6 +444,7 @@ def run_cli(tif: str, source_args: list[str], out_dir: Path, log_dir: Path) -> d
         *source_args,
         "--out",
         str(out_dir),
+        *extra,
     ]
     env = _child_env()
     log_dir.mkdir(parents=True, exist_ok=True)
@@ -462,6 +468,15 @@ def run_cli(tif: str, source_args: list[str], out_dir: Path, log_dir: Path) -> d
         "children_maxrss_mib": resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss / 1024.0,
     }
 
+
+#: ``--variants``: the same run with products switched off, to show what each costs
+#: (label, extra options). The last one keeps only the GeoTIFF, the isochrones and
+#: the style files.
+VARIANTS: tuple[tuple[str, tuple[str, ...]], ...] = (
+    ("no report.html", ("--no-report",)),
+    ("no map picture", ("--no-map",)),
+    ("no map, coast or report", ("--no-map", "--no-coast", "--no-report")),
+)
 
 #: Runs of ``ttmap --help`` timed for the start-up figure (best and median printed).
 HELP_RUNS = 7
@@ -582,6 +597,11 @@ def main() -> None:
         help="also time the write stage alone, product by product (one more solve per case)",
     )
     ap.add_argument(
+        "--variants",
+        action="store_true",
+        help="also time the run with products switched off (--no-report, --no-map, ...), best of --repeat",
+    )
+    ap.add_argument(
         "--smooth-coast",
         action="store_true",
         help="the same as --coast smooth (kept for older command lines)",
@@ -692,6 +712,20 @@ def main() -> None:
                 )
                 for label, at, took in sorted(tl["marks"], key=lambda m: m[1]):
                     print(f"    {label:<32} {took:6.2f} s CPU (starts at {at:5.2f} s)")
+            if args.variants:
+                for label, extra in VARIANTS:
+                    vruns = [
+                        run_cli(info["tif"], info["source_args"], folder / f"variant{k}",
+                                folder / f"vlog{k}", extra)
+                        for k in range(repeat)
+                    ]
+                    v_cpu = min(r["cpu_s"] for r in vruns)
+                    v_wall = min(r["wall_s"] for r in vruns)
+                    print(
+                        f"  variant {label:<28}: {v_wall:6.2f} s wall, {v_cpu:.2f} s CPU (best of "
+                        f"{repeat}); CPU ratio {v_cpu / raw['best_cpu_s']:.2f}x, wall ratio "
+                        f"{v_wall / raw['best_s']:.2f}x"
+                    )
             counts = in_helper(_feature_counts, str(folder / "out0"))
             print(
                 "  features written               : "

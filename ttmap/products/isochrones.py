@@ -321,9 +321,8 @@ def _generator(
     rows, cols = field.shape
     # NaN and inf are masked, as contour_generator masks them (np.ma.masked_invalid);
     # it passes no mask when nothing is masked, and neither do we.
-    mask = ~np.isfinite(field) if invalid is None else invalid
-    if not mask.any():
-        mask = None
+    masked = ~np.isfinite(field) if invalid is None else invalid
+    mask = np.ascontiguousarray(masked) if masked.any() else None
     x, y = np.meshgrid(
         np.arange(col0, col0 + cols, dtype=np.float64),
         np.arange(row0, row0 + rows, dtype=np.float64),
@@ -335,7 +334,9 @@ def _generator(
         x,
         y,
         np.ascontiguousarray(field),
-        None if mask is None else np.ascontiguousarray(mask),
+        # contourpy's stub types the mask as an array, but its own contour_generator
+        # passes None when nothing is masked, as here
+        mask,  # type: ignore[arg-type]
         corner_mask=True,
         line_type=contourpy.LineType.ChunkCombinedOffset,
         fill_type=contourpy.FillType.ChunkCombinedOffsetOffset,
