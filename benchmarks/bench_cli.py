@@ -6,6 +6,7 @@ Run from the repository root (ttmap need not be installed)::
     python benchmarks/bench_cli.py --quick          # the 2000 x 2000 case only
     python benchmarks/bench_cli.py --coast rough    # cell-scale speckle coasts (the stress case)
     python benchmarks/bench_cli.py --write-stages   # also time the products one by one
+    python benchmarks/bench_cli.py --quick --variants   # and with the map, coast, report off
 
 First the script times ``ttmap --help`` in fresh interpreters (best and
 median of seven, beside the bare interpreter's start; goal under 0.3 s) and
@@ -36,7 +37,13 @@ counts the modules ``import ttmap.cli.main`` loads. Then, for each case, it
    to run.json (``timings_s``). CPU time is the steadier figure when other
    processes compete for the cores;
 5. with ``--write-stages``, solves once more in a helper process and times
-   the write stage alone, product by product (:func:`_write_stages`).
+   the write stage alone, product by product (:func:`_write_stages`), then
+   runs ``ttmap map`` in three more fresh processes with the main stages
+   marked on the CPU clock (:func:`cpu_timeline`): imports, checks, read,
+   speeds, solve, write stage, record, report;
+6. with ``--variants``, times the same run with products switched off
+   (``--no-report``; ``--no-map``; ``--no-map --no-coast --no-report``), so
+   the cost of each shows as a difference of whole-process CPU times.
 
 This process stays small (the arrays live in helper processes) so the
 children's ru_maxrss, a high-water mark that Linux carries over from the
@@ -463,7 +470,7 @@ def run_cli(
         "cpu_s": usage.ru_utime + usage.ru_stime,
         "maxrss_mib": usage.ru_maxrss / 1024.0,  # KiB on Linux
         "timings_s": record.get("timings_s", {}),
-        "files": len(record.get("files_written", [])),
+        "files": len(record.get("products", [])) + 1,  # the products and run.json
         "summary": record.get("product_sets", {}).get("front", {}),
         "children_maxrss_mib": resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss / 1024.0,
     }
@@ -713,10 +720,10 @@ def main() -> None:
                 for label, at, took in sorted(tl["marks"], key=lambda m: m[1]):
                     print(f"    {label:<32} {took:6.2f} s CPU (starts at {at:5.2f} s)")
             if args.variants:
-                for label, extra in VARIANTS:
+                for v, (label, extra) in enumerate(VARIANTS):
                     vruns = [
-                        run_cli(info["tif"], info["source_args"], folder / f"variant{k}",
-                                folder / f"vlog{k}", extra)
+                        run_cli(info["tif"], info["source_args"], folder / f"variant{v}_{k}",
+                                folder / f"vlog{v}_{k}", extra)
                         for k in range(repeat)
                     ]
                     v_cpu = min(r["cpu_s"] for r in vruns)
