@@ -311,10 +311,10 @@ def _generator(
 
     The generator is the one ``contourpy.contour_generator(x, y, field,
     name="serial", corner_mask=True, chunk_size=0, ...)`` makes, built from
-    the same arrays without that function's masked-array round trip (which
-    costs about twice the rest of the set-up: 0.05 s against 0.02 s for
-    4 M cells). ``test_isochrones`` checks the output against
-    ``contour_generator``'s, array for array.
+    the same arrays without that function's masked-array round trip
+    (0.039 s instead of 0.050 s for a 4 M-cell field, contourpy 1.3).
+    ``test_isochrones`` checks the output against ``contour_generator``'s,
+    array for array.
     """
     import contourpy
 
