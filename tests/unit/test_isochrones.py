@@ -333,6 +333,53 @@ def speckled_field(shape=(240, 260), land_share=0.2, seed=3):
     return field
 
 
+def reference_generator(field, row0=0, col0=0):
+    """contourpy's own set-up (masked_invalid, meshgrid) of the generator iso._generator builds."""
+    import contourpy
+
+    rows, cols = field.shape
+    return contourpy.contour_generator(
+        x=np.arange(col0, col0 + cols, dtype=np.float64),
+        y=np.arange(row0, row0 + rows, dtype=np.float64),
+        z=field,
+        name="serial",
+        corner_mask=True,
+        line_type=contourpy.LineType.ChunkCombinedOffset,
+        fill_type=contourpy.FillType.ChunkCombinedOffsetOffset,
+        chunk_size=0,
+    )
+
+
+def assert_same_output(got, want):
+    """Every chunk array of two contourpy outputs (lines or filled) equal, bit for bit."""
+    assert len(got) == len(want)
+    for a, b in zip(got, want, strict=True):
+        assert len(a) == len(b)
+        for x, y in zip(a, b, strict=True):
+            if y is None:
+                assert x is None
+            else:
+                np.testing.assert_array_equal(x, y)
+                assert x.dtype == y.dtype
+
+
+@pytest.mark.parametrize("land_share", [0.0, 0.15])
+def test_generator_set_up_matches_contourpys_own(land_share):
+    field = speckled_field((180, 150), land_share=land_share, seed=7)
+    field[5, 5:9] = np.inf  # masked as NaN is
+    invalid = ~np.isfinite(field)
+    for r0, r1, c0, c1 in ((0, 180, 0, 150), (40, 121, 17, 150), (3, 5, 60, 62)):
+        window = field[r0:r1, c0:c1]
+        got = iso._generator(window, r0, c0, invalid[r0:r1, c0:c1])
+        alone = iso._generator(window, r0, c0)
+        want = reference_generator(window, r0, c0)
+        for level in (1.0, 3.3, 6.0):
+            assert_same_output(got.lines(level), want.lines(level))
+            assert_same_output(alone.lines(level), want.lines(level))
+            assert_same_output(got.filled(level - 1.5, level), want.filled(level - 1.5, level))
+        assert_same_output(got.filled(-np.inf, 2.0), want.filled(-np.inf, 2.0))
+
+
 def raw_band_polygons(field, lower, upper):
     """contourpy's polygons of one band as they come (some invalid), index coordinates."""
     points, offsets, outer = iso._generator(field).filled(lower, upper)
@@ -368,7 +415,7 @@ def test_windows_give_the_same_contours_as_one_pass():
     plan = iso._plan_windows(field, lows, levels, np.full(levels.size, 2.2))
     assert len(plan) > 1 and plan[0][2] != (0, 700, 0, 520)  # early levels use a window
     lines, bands = iso._trace(field, levels, edges)
-    whole = iso._generator(field)
+    whole = reference_generator(field)
     for level, got in zip(levels, lines, strict=True):
         want = whole.lines(level)
         for a, b in zip(got, want, strict=True):
@@ -410,6 +457,6 @@ def test_a_thin_last_block_still_gets_a_window_contourpy_accepts():
     field = np.zeros((129, 700))
     field[128, :] = 50.0
     lines, bands = iso._trace(field, np.array([49.0]), np.array([-np.inf, 40.0, 49.0]))
-    whole = iso._generator(field)
+    whole = reference_generator(field)
     np.testing.assert_array_equal(lines[0][0][0], whole.lines(49.0)[0][0])
     np.testing.assert_array_equal(bands[1][0][0], whole.filled(40.0, 49.0)[0][0])

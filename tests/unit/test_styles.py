@@ -9,7 +9,8 @@ import pytest
 
 from ttmap.errors import InputDataError, OutputExistsError
 from ttmap.products.palette import ARRIVAL_CMAP, arrival_colors_hex, check_hex_colors
-from ttmap.products.styles import bands_sld, lines_sld, raster_sld, write_sld
+from ttmap.io.styles import write_sld
+from ttmap.products.styles import bands_sld, lines_sld, raster_sld
 
 SLD = "{http://www.opengis.net/sld}"
 OGC = "{http://www.opengis.net/ogc}"

@@ -11,6 +11,8 @@
   file stays a valid GeoPackage; everything happens in one SQLite
   transaction (all or nothing).
 - :func:`read_gpkg_layer_styles` - the rows, for checks.
+- :func:`write_sld` - an OGC SLD document (from :mod:`ttmap.products.styles`),
+  checked to be well-formed XML and written all or nothing.
 
 The module writes text it is given; it knows nothing of colours or physics.
 """
@@ -34,6 +36,7 @@ __all__ = [
     "qml_path_for",
     "write_qml",
     "write_qml_beside",
+    "write_sld",
     "write_gpkg_layer_style",
     "read_gpkg_layer_styles",
 ]
@@ -117,6 +120,45 @@ def write_qml(path: str | os.PathLike[str], qml_text: str, *, overwrite: bool = 
     _check_qml(path, qml_text)
     with atomic_output(path, overwrite=overwrite) as tmp:
         tmp.write_text(qml_text, encoding="utf-8")
+    return Path(path)
+
+
+def write_sld(path: str | os.PathLike[str], xml_text: str, *, overwrite: bool = False) -> Path:
+    """Write an SLD document (UTF-8) all-or-nothing.
+
+    Parameters
+    ----------
+    path : path-like
+        Output file, conventionally ``<product>.sld`` beside the layer.
+    xml_text : str
+        An SLD document, e.g. from :func:`ttmap.products.styles.raster_sld`,
+        :func:`~ttmap.products.styles.bands_sld` or
+        :func:`~ttmap.products.styles.lines_sld`.
+    overwrite : bool
+        Replace an existing file.
+
+    Returns
+    -------
+    Path
+        ``path``.
+
+    Raises
+    ------
+    InputDataError
+        ``xml_text`` is not well-formed XML.
+    OutputExistsError
+        ``path`` exists and ``overwrite`` is False.
+    """
+    import xml.etree.ElementTree as ET
+
+    try:
+        ET.fromstring(xml_text.encode("utf-8"))
+    except ET.ParseError as err:
+        raise InputDataError(
+            f"style for {os.fspath(path)!r} is not well-formed XML: {err}"
+        ) from err
+    with atomic_output(path, overwrite=overwrite) as tmp:
+        tmp.write_text(xml_text, encoding="utf-8")
     return Path(path)
 
 

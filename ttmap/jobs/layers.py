@@ -93,7 +93,8 @@ def band_classes(bands: Sequence[Any]) -> tuple[list[tuple[float, float | None, 
 def write_arrival_style(path: Path, levels: np.ndarray, *, layer_name: str, title: str,
                         overwrite: bool = False) -> Path:
     """The raster SLD of an arrival-time GeoTIFF: a colour ramp from 0 over ``levels``."""
-    from ttmap.products.styles import raster_sld, write_sld
+    from ttmap.io.styles import write_sld
+    from ttmap.products.styles import raster_sld
 
     ramp, colors = arrival_ramp(levels)
     write_sld(path, raster_sld(ramp, colors, layer_name=layer_name, title=title), overwrite=overwrite)
@@ -154,7 +155,8 @@ def write_isochrones(names: Any, layers: tuple[Any, Any], bands: Sequence[Any], 
     the Shapefile style filters on the 10-character field name.
     """
     from ttmap.io.vector import shapefile_field_name, write_vector_layers
-    from ttmap.products.styles import bands_sld, lines_sld, write_sld
+    from ttmap.io.styles import write_sld
+    from ttmap.products.styles import bands_sld, lines_sld
 
     written: list[Path] = []
     for target in names.targets.values():

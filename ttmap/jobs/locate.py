@@ -407,7 +407,7 @@ def _write_products(
     from ttmap.products.cautions import CAUTION_SHORT
     from ttmap.products.locate_map import render_locate_map
     from ttmap.products.maps import save_figure
-    from ttmap.products.styles import write_sld
+    from ttmap.io.styles import write_sld
 
     import ttmap
 

@@ -677,7 +677,7 @@ def _write_wave_paths(job: MapJob, routes: list[Any], grid: Any) -> list[Path]:
     """``wave_paths.gpkg`` (layer ``wave_paths``, in the basin's CRS) and its SLD."""
     from ttmap.jobs.layers import write_one_layer
     from ttmap.products.paths import wave_path_layer, wave_paths_sld
-    from ttmap.products.styles import write_sld
+    from ttmap.io.styles import write_sld
 
     from ttmap.jobs.styling import style_wave_paths
 
@@ -784,9 +784,7 @@ def _write_products(job: MapJob, pset: ProductSet, result: TravelTimeResult, wat
                     save_figure(fig, tmp)
                 written.append(target)
         finally:
-            import matplotlib.pyplot as plt
-
-            plt.close(fig)
+            fig.clear()  # an Agg figure, never registered with pyplot: no pyplot import to close it
     return written
 
 
@@ -805,7 +803,7 @@ def _write_coast(job: MapJob, pset: ProductSet, names: ProductSetNames, segments
     from ttmap.jobs.layers import latest_min, write_one_layer
     from ttmap.products.coast import coast_classes, coast_layer, coast_sld
     from ttmap.products.palette import arrival_colors_hex
-    from ttmap.products.styles import write_sld
+    from ttmap.io.styles import write_sld
 
     step = float(job.products.coast_interval_min)
     layer = coast_layer(

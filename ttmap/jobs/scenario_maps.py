@@ -107,7 +107,7 @@ def write_envelope_extras(
         render_envelope_map,
         render_first_scenario_map,
     )
-    from ttmap.products.styles import write_sld
+    from ttmap.io.styles import write_sld
 
     env_sld, env_png, first_sld, first_png = envelope_extra_files(out_dir)
     levels = arrival_levels(earliest_min, None)
@@ -149,7 +149,7 @@ def write_difference_extras(
 ) -> dict[str, str]:
     """Write the style and the map of one difference raster; returns their paths."""
     from ttmap.products.scenario_maps import difference_sld, render_difference_map
-    from ttmap.products.styles import write_sld
+    from ttmap.io.styles import write_sld
 
     sld, png = difference_extra_files(raster)
     write_sld(sld, difference_sld(diff_min, a, b, Path(raster).stem), overwrite=overwrite)

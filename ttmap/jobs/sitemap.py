@@ -515,8 +515,8 @@ def _write_site_set(
     from ttmap.jobs.layers import arrival_levels, isochrone_layers, write_arrival_style, write_isochrones
     from ttmap.products.cautions import CAUTION_SHORT
     from ttmap.products.isochrones import isochrone_bands, isochrone_lines
+    from ttmap.io.styles import write_sld
     from ttmap.products.site_maps import minutes_left_sld, render_minutes_left_map, render_site_map
-    from ttmap.products.styles import write_sld
     from ttmap.sitemap import minutes_left
 
     grid = result.grid
@@ -640,7 +640,7 @@ def write_combined_products(
     from ttmap.jobs.layers import arrival_levels, write_arrival_style
     from ttmap.products.cautions import CAUTION_SHORT
     from ttmap.products.site_maps import INDEX_NODATA, first_site_sld
-    from ttmap.products.styles import write_sld
+    from ttmap.io.styles import write_sld
     from ttmap.sitemap import RECIPROCITY_NOTE
 
     names = [str(n) for n in names]

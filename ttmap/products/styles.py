@@ -9,8 +9,8 @@ Three styles go beside the products:
 - :func:`lines_sld` - isochrone lines: a thin dark line labelled with the
   time along the line.
 
-The XML is built with :mod:`xml.etree.ElementTree` and written with
-:func:`write_sld` through :func:`ttmap.io.atomic.atomic_output`. Colours come
+The XML is built with :mod:`xml.etree.ElementTree`; the module returns text
+and writes no file (:func:`ttmap.io.styles.write_sld` writes it). Colours come
 from :mod:`ttmap.products.palette`, the ramp the maps use too.
 
 Notes
@@ -25,12 +25,10 @@ from __future__ import annotations
 
 import itertools
 import math
-import os
 import xml.etree.ElementTree as ET
 from collections.abc import Sequence
 
 from ttmap.errors import InputDataError
-from ttmap.io.atomic import atomic_output
 from ttmap.products.palette import check_hex_colors
 
 __all__ = [
@@ -42,7 +40,6 @@ __all__ = [
     "categorical_raster_sld",
     "bands_sld",
     "lines_sld",
-    "write_sld",
     "sld_document",
     "sld_element",
     "sld_css",
@@ -528,33 +525,3 @@ def lines_sld(
     sld_css(sld_element(halo, "Fill"), "fill", _HALO_COLOR)
     sld_css(sld_element(text, "Fill"), "fill", color)
     return sld_serialise(root)
-
-
-def write_sld(path: str | os.PathLike[str], xml_text: str, *, overwrite: bool = False) -> None:
-    """Write an SLD document (UTF-8) all-or-nothing.
-
-    Parameters
-    ----------
-    path : path-like
-        Output file, conventionally ``<product>.sld`` beside the layer.
-    xml_text : str
-        A document from :func:`raster_sld`, :func:`bands_sld` or
-        :func:`lines_sld`.
-    overwrite : bool
-        Replace an existing file.
-
-    Raises
-    ------
-    InputDataError
-        ``xml_text`` is not well-formed XML.
-    OutputExistsError
-        ``path`` exists and ``overwrite`` is False.
-    """
-    try:
-        ET.fromstring(xml_text.encode("utf-8"))
-    except ET.ParseError as err:
-        raise InputDataError(
-            f"style for {os.fspath(path)!r} is not well-formed XML: {err}"
-        ) from err
-    with atomic_output(path, overwrite=overwrite) as tmp:
-        tmp.write_text(xml_text, encoding="utf-8")
