@@ -276,7 +276,7 @@ WRITE_STAGES = (
     ("ttmap.jobs.layers", "write_one_layer", "coastal GeoPackage"),
     ("ttmap.jobs.styling", "style_map_coast", "QGIS style (coast)"),
     ("ttmap.products.maps", "render_arrival_map", "map: drawing"),
-    ("ttmap.products.maps", "save_figure", "map: PNG file"),
+    ("ttmap.io.figures", "save_figure", "map: PNG file"),
 )
 
 

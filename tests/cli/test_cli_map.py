@@ -621,7 +621,7 @@ def test_overwrite_protection(run_cli, spec, utm_bathymetry, tmp_path):
 def test_failed_map_write_leaves_no_partial_file(
     run_cli, spec, utm_bathymetry, tmp_path, monkeypatch
 ):
-    from ttmap.products import maps
+    from ttmap.io import figures as maps
 
     def half_written(fig, path, **kw):
         Path(path).write_bytes(b"\x89PNG\r\n partial")

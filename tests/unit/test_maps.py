@@ -37,8 +37,8 @@ from ttmap.products.maps import (
     arrival_classes,
     class_edges_min,
     render_arrival_map,
-    save_figure,
 )
+from ttmap.io.figures import save_figure
 from ttmap.products.palette import arrival_colors_hex
 
 CELL_M = 1000.0

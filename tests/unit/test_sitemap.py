@@ -336,7 +336,7 @@ def test_existing_site_products_are_refused_before_writing(tmp_path, harbour):
 
 
 def test_a_failing_site_write_leaves_no_file(tmp_path, monkeypatch, harbour):
-    from ttmap.products import maps
+    from ttmap.io import figures as maps
 
     def broken(*args, **kwargs):
         raise OSError("disk full (simulated)")

@@ -20,7 +20,7 @@ from matplotlib.text import Text
 from ttmap.errors import InputDataError
 from ttmap.products.budget import warning_budget
 from ttmap.products.cautions import CAUTION_SHORT
-from ttmap.products.maps import save_figure
+from ttmap.io.figures import save_figure
 from ttmap.products.timeline import TIMELINE_COLUMNS, render_timeline, timeline_order
 
 ALERT_BG = "#fbe6e2"

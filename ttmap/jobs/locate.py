@@ -406,7 +406,7 @@ def _write_products(
     from ttmap.io.vector import VectorLayer, write_vector_layers
     from ttmap.products.cautions import CAUTION_SHORT
     from ttmap.products.locate_map import render_locate_map
-    from ttmap.products.maps import save_figure
+    from ttmap.io.figures import save_figure
     from ttmap.io.styles import write_sld
 
     import ttmap

@@ -510,7 +510,7 @@ def _write_site_table(
     from ttmap.io.atomic import atomic_output
     from ttmap.io.sites import write_site_table_csv
     from ttmap.jobs.layers import write_one_layer
-    from ttmap.products.maps import save_figure
+    from ttmap.io.figures import save_figure
     from ttmap.products.sites import site_table, site_table_layer, snap_sites
     from ttmap.products.timeline import render_timeline
 
@@ -756,7 +756,8 @@ def _write_products(job: MapJob, pset: ProductSet, result: TravelTimeResult, wat
         written += _write_coast(job, pset, names, coast, time_min, grid)
 
     if names.maps:
-        from ttmap.products.maps import render_arrival_map, save_figure, source_text
+        from ttmap.io.figures import save_figure
+        from ttmap.products.maps import render_arrival_map, source_text
 
         src_geom = job.source.in_crs(grid.crs)
         if job.source.kind == "point":

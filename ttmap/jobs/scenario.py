@@ -755,7 +755,7 @@ def write_sites_by_scenarios(
         sites_by_scenarios,
         sites_by_scenarios_notes,
     )
-    from ttmap.products.maps import save_figure
+    from ttmap.io.figures import save_figure
 
     targets = [Path(out_dir) / name for name in SITES_X_SCENARIOS_FILES]
     check_writable(targets, overwrite)

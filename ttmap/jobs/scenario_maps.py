@@ -80,7 +80,7 @@ def scenario_water_mask(spec: MediumSpec, grid: Grid | None = None) -> np.ndarra
 
 def _save(fig: Any, target: Path, overwrite: bool) -> None:
     from ttmap.io.atomic import atomic_output
-    from ttmap.products.maps import save_figure
+    from ttmap.io.figures import save_figure
 
     try:
         with atomic_output(target, overwrite=overwrite) as tmp:

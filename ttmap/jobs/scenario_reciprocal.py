@@ -500,7 +500,7 @@ def _write_table(
         sites_by_scenarios_from_values,
         sites_by_scenarios_notes,
     )
-    from ttmap.products.maps import save_figure
+    from ttmap.io.figures import save_figure
 
     targets = [out / name for name in SITES_X_SCENARIOS_FILES]
     check_writable(targets, overwrite)

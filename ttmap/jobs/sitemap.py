@@ -570,7 +570,7 @@ def _write_site_set(
     style_site_set(names, name=name, levels=levels, bands=bands, left_min=left, delay_min=delay)
 
     if names.maps:
-        from ttmap.products.maps import save_figure
+        from ttmap.io.figures import save_figure
 
         fig = render_site_map(name, result, lines, water_mask=water_mask, title_prefix=title_prefix)
         for fmt, target in names.maps.items():

@@ -55,7 +55,6 @@ __all__ = [
     "fit_colorbar_label",
     "render_arrival_map",
     "render_class_map",
-    "save_figure",
     "source_text",
 ]
 
@@ -82,7 +81,6 @@ _SOURCE_COLOR = "#e8175d"  # red-magenta: not in the arrival ramp, clear on it
 _SITE_EDGE = "#1a1a1a"  # sites: white circles with a dark edge (never the source's star)
 _MAX_LABELS = 24
 _MAX_LINE_VERTICES = 300_000  # above this, lines are simplified for drawing
-_PNG_COMPRESS_LEVEL = 3
 
 
 # ---------------------------------------------------------------------------
@@ -907,7 +905,7 @@ def render_arrival_map(
     figsize : (float, float), optional
         Figure width and height, inches.
     dpi : float, optional
-        Resolution used by :func:`save_figure` for PNG files.
+        Resolution used by :func:`ttmap.io.figures.save_figure` for PNG files.
     levels_min : array-like of float, optional
         Class edges in minutes; by default the levels of ``lines`` (or the
         default isochrone levels if there are none). Colour classes,
@@ -1199,57 +1197,6 @@ def fit_colorbar_label(label: Any, max_height_px: float) -> None:
         text = label.get_text()
         chars = max(10, int(len(text) * max_height_px / label.get_window_extent(renderer).height))
         label.set_text("\n".join(textwrap.wrap(text, chars)))
-
-
-def save_figure(
-    fig: Figure,
-    path: str | os.PathLike[str],
-    *,
-    format: Literal["png", "pdf"] | None = None,
-) -> None:
-    """Write a figure to exactly ``path`` as PNG or PDF.
-
-    Parameters
-    ----------
-    fig : matplotlib.figure.Figure
-        A figure from :func:`render_arrival_map` (or any matplotlib figure).
-    path : str or os.PathLike
-        Output file. It is written as given, with no suffix added, so a
-        caller may write to a temporary name and rename it.
-    format : {"png", "pdf"}, optional
-        File format; by default taken from the suffix of ``path``. Needed
-        when the suffix is neither ``.png`` nor ``.pdf`` (a temporary name).
-
-    Raises
-    ------
-    InputDataError
-        If the format is neither PNG nor PDF.
-
-    Notes
-    -----
-    PNG files use the figure's dpi and fast zlib compression (level 3).
-    Files carry "ttmap" as their creating software; PDF files carry no
-    creation date, so equal figures give equal bytes.
-    """
-    if format is None:
-        fmt = os.path.splitext(os.fspath(path))[1].lstrip(".").lower()
-    else:
-        fmt = str(format).lower()
-    if fmt == "png":
-        metadata: dict[str, Any] = {"Software": "ttmap"}
-    elif fmt == "pdf":
-        metadata = {"Creator": "ttmap", "CreationDate": None}
-    else:
-        raise InputDataError(
-            f"cannot write a map as {fmt or 'a file without suffix'!r} ({os.fspath(path)}); "
-            "use a .png or .pdf path, or pass format='png' or format='pdf'"
-        )
-    extra: dict[str, Any] = {}
-    if fmt == "png":
-        # zlib level 3: on a 1500 x 1200 px map 0.06 s instead of 0.10 s at
-        # the default level 6, for a file about 12 % larger.
-        extra["pil_kwargs"] = {"compress_level": _PNG_COMPRESS_LEVEL}
-    fig.savefig(path, format=fmt, dpi=fig.dpi, metadata=metadata, facecolor="white", **extra)
 
 
 def draw_wave_paths(ax: Axes, paths: Sequence[NDArray[np.float64]]) -> list[Any]:

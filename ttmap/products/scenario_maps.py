@@ -8,7 +8,7 @@ Pure products (no solving, no file writing):
   a "winner" cell by cell and paint stripes);
 - :func:`render_envelope_map`, :func:`render_first_scenario_map`,
   :func:`render_difference_map`: the maps (PNG/PDF through
-  :func:`ttmap.products.maps.save_figure`);
+  :func:`ttmap.io.figures.save_figure`);
 - :func:`first_scenario_sld`, :func:`difference_sld`: OGC SLD styles with the
   same classes and colours as the maps.
 

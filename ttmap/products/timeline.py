@@ -19,7 +19,7 @@ One row per site, on a common axis of minutes after the earthquake:
 Rows are sorted by margin, smallest first; sites without a margin go to the
 bottom (ordered by time left). matplotlib is imported inside the function and
 the figure is built on an Agg canvas without ``pyplot``, as in
-:mod:`ttmap.products.maps`; save it with :func:`ttmap.products.maps.save_figure`.
+:mod:`ttmap.products.maps`; save it with :func:`ttmap.io.figures.save_figure`.
 """
 
 from __future__ import annotations
