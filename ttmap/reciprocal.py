@@ -584,19 +584,30 @@ def propagate_labels(
     *,
     tie_tolerance_s: float,
     periodic_x: bool = False,
-    max_passes: int = 3,
+    spacing_m: tuple[float, float] = (1.0, 1.0),
 ) -> tuple[NDArray[np.int32], BoolArray, int]:
-    """Carry start labels downwind through a first-arrival field.
+    """Carry start labels downwind through a first-arrival field along its characteristics.
 
-    Every reached cell that is not a seed takes the label of the upwind
-    neighbour it was computed from: along each axis the upwind stencil uses
-    the neighbour with the smaller time (if smaller than the cell's own);
-    of the (up to) two, the one with the smaller time is the cell's parent.
-    **Tie rule:** when both axis neighbours are upwind, carry different
-    labels and their times differ by at most ``tie_tolerance_s``, the lower
-    label wins and the cell is marked in the tie mask. Labels are resolved
-    by pointer jumping (each pass doubles the resolved path length), so the
-    cost is O(N log L) for paths of L cells, fully vectorised.
+    Each scenario's label is an indicator (1 on its start cells, 0 elsewhere)
+    transported along the rays of the front: at a reached cell the ray traced
+    back along the time gradient crosses the segment between its upwind
+    neighbours, and the cell's label shares are the neighbours' shares
+    interpolated there (weights ``(T - T_n) / h_n**2`` of the upwind neighbour
+    along each axis, the discrete characteristic of the eikonal update). The
+    cell takes the label of the largest share; each cell keeps its two
+    largest shares. Following the single smaller neighbour instead (a parent
+    pointer) rounds every ray to a grid axis and lets a label run along a
+    row or column across a front it does not own (docs/reciprocal.md).
+
+    Cells are processed in order of time, in buckets narrower than the
+    smallest time step from the nearer upwind neighbour (so that neighbour
+    is always done), with sweeps inside a bucket for the other neighbour.
+
+    **Tie rule.** Equal shares go to the lower label. Along one axis, two
+    upwind neighbours whose times differ by at most ``tie_tolerance_s``
+    share that axis' weight equally. A cell is marked in the tie mask when
+    two of its upwind neighbours carry different labels and their times
+    differ by at most ``tie_tolerance_s``.
 
     Parameters
     ----------
@@ -607,8 +618,8 @@ def propagate_labels(
     tie_tolerance_s : float
     periodic_x : bool
         Columns wrap.
-    max_passes : int
-        Passes of the tie rule (each re-resolves the labels).
+    spacing_m : (row_step, col_step)
+        Cell size along rows and columns (only their ratio matters).
 
     Returns
     -------
@@ -631,95 +642,117 @@ def propagate_labels(
         raise InputDataError(f"time {t.shape} and seed labels {seeds.shape} must be 2-D of one shape")
     rows, cols = t.shape
     n = t.size
-    tf = np.where(np.isfinite(t), t, np.inf).ravel()
-    idx_t = np.int64 if n >= 2**31 else np.int32
-    me = np.arange(n, dtype=idx_t)
-    # Along rows (up/down) and along columns (left/right): the smaller neighbour.
-    up = np.full(n, np.inf)
-    down = np.full(n, np.inf)
-    up[cols:] = tf[:-cols]
-    down[:-cols] = tf[cols:]
-    take_up = up <= down
-    vr = np.where(take_up, up, down)
-    ir = np.where(take_up, me - cols, me + cols).astype(idx_t)
-    t2 = tf.reshape(rows, cols)
-    left = np.full((rows, cols), np.inf)
-    right = np.full((rows, cols), np.inf)
-    left[:, 1:] = t2[:, :-1]
-    right[:, :-1] = t2[:, 1:]
-    col_of = np.tile(np.arange(cols, dtype=idx_t), rows)
-    left_i = me - 1
-    right_i = me + 1
-    if periodic_x and cols > 1:
-        left[:, 0] = t2[:, -1]
-        right[:, -1] = t2[:, 0]
-        left_i = np.where(col_of == 0, me + cols - 1, left_i)
-        right_i = np.where(col_of == cols - 1, me - cols + 1, right_i)
-    left_f, right_f = left.ravel(), right.ravel()
-    take_left = left_f <= right_f
-    vc = np.where(take_left, left_f, right_f)
-    ic = np.where(take_left, left_i, right_i).astype(idx_t)
     tol = float(tie_tolerance_s)
-    # Same-axis near-ties (both neighbours along one axis upwind and close): tie candidates.
-    pairs_cell, pairs_a, pairs_b = [], [], []
-    for va, vb, ia, ib in ((up, down, me - cols, me + cols), (left_f, right_f, left_i, right_i)):
-        va, vb = np.asarray(va).ravel(), np.asarray(vb).ravel()
-        m = (va < tf) & (vb < tf)
-        m[m] = np.abs(va[m] - vb[m]) <= tol
-        cells = np.nonzero(m)[0]
-        pairs_cell.append(cells)
-        pairs_a.append(np.asarray(ia)[cells])
-        pairs_b.append(np.asarray(ib)[cells])
-    del up, down, left, right, take_up, take_left, left_i, right_i, col_of
-    ok_r = vr < tf
-    ok_c = vc < tf
-    is_seed = (seeds.ravel() >= 0) & np.isfinite(tf)
-    use_r = ok_r & (~ok_c | (vr <= vc))
-    parent = np.where(use_r, ir, np.where(ok_c, ic, me)).astype(idx_t)
-    parent[is_seed] = me[is_seed]
-    unreached = ~np.isfinite(tf)
-    parent[unreached] = me[unreached]
-    lab0 = np.where(is_seed, seeds.ravel(), NO_LABEL).astype(np.int32)
-    both = ok_r & ok_c & ~is_seed
-    both[both] = np.abs(vr[both] - vc[both]) <= tol
-    cross = np.nonzero(both)[0]
-    cand = np.concatenate([cross, *pairs_cell]).astype(np.int64)
-    ir_c = np.concatenate([ir[cross], *pairs_a]).astype(idx_t)
-    ic_c = np.concatenate([ic[cross], *pairs_b]).astype(idx_t)
-    keep = ~is_seed[cand]
-    cand, ir_c, ic_c = cand[keep], ir_c[keep], ic_c[keep]
-    del ir, ic, vr, vc, ok_r, ok_c, use_r
-
-    def resolve(p: NDArray[Any]) -> NDArray[np.int32]:
-        p = p.copy()
-        while True:
-            pp = p[p]
-            if np.array_equal(pp, p):
-                break
-            p = pp
-        return lab0[p]
-
-    labels = resolve(parent)
+    tf = np.where(np.isfinite(t), t, np.inf).ravel()
+    me = np.arange(n, dtype=np.int64)
+    r_of, c_of = np.divmod(me, cols)
+    # Neighbours: up, down (along rows), left, right (along columns); -1 where none.
+    nb = np.full((n, 4), -1, dtype=np.int64)
+    nb[:, 0] = np.where(r_of > 0, me - cols, -1)
+    nb[:, 1] = np.where(r_of < rows - 1, me + cols, -1)
+    nb[:, 2] = np.where(c_of > 0, me - 1, -1)
+    nb[:, 3] = np.where(c_of < cols - 1, me + 1, -1)
+    if periodic_x and cols > 1:
+        nb[:, 2] = np.where(c_of == 0, me + cols - 1, nb[:, 2])
+        nb[:, 3] = np.where(c_of == cols - 1, me - cols + 1, nb[:, 3])
+    tn = np.where(nb >= 0, tf[np.maximum(nb, 0)], np.inf)
+    del r_of, c_of
+    # Weight of each neighbour: the upwind one of each axis, (T - T_n) / h^2.
+    wgt = np.zeros((n, 4))
+    for a, b, h in ((0, 1, float(spacing_m[0])), (2, 3, float(spacing_m[1]))):
+        ta, tb = tn[:, a], tn[:, b]
+        lo = np.minimum(ta, tb)
+        up = lo < tf
+        w = np.where(up, (tf - np.where(up, lo, 0.0)) / (h * h), 0.0)
+        with np.errstate(invalid="ignore"):  # inf - inf where neither is reached
+            both = up & (ta < tf) & (tb < tf) & (np.abs(ta - tb) <= tol)
+        take_a = up & ~both & (ta <= tb)
+        take_b = up & ~both & ~(ta <= tb)
+        wgt[:, a] = np.where(both, 0.5 * w, np.where(take_a, w, 0.0))
+        wgt[:, b] = np.where(both, 0.5 * w, np.where(take_b, w, 0.0))
+    total = wgt.sum(axis=1)
+    seed_flat = seeds.ravel()
+    is_seed = (seed_flat >= 0) & np.isfinite(tf)
+    reached = np.isfinite(tf)
+    todo = reached & ~is_seed & (total > 0.0)
+    wgt[todo] /= total[todo, None]
+    # Two leading label shares per cell.
+    l1 = np.where(is_seed, seed_flat, NO_LABEL).astype(np.int64)
+    w1 = np.where(is_seed, 1.0, 0.0)
+    l2 = np.full(n, NO_LABEL, dtype=np.int64)
+    w2 = np.zeros(n)
+    cells = np.flatnonzero(todo)
+    if cells.size:
+        cells = cells[np.argsort(tf[cells], kind="stable")]
+        # Bucket width: below the smallest step from a cell's nearer upwind neighbour.
+        near_gap = tf[cells] - np.min(tn[cells], axis=1)
+        width = float(np.min(near_gap)) * 0.999
+        tc = tf[cells]
+        if width > 0.0 and np.isfinite(width):
+            key = np.floor((tc - tc[0]) / width).astype(np.int64)
+            # Cap the number of buckets; sweeps inside a bucket resolve the rest.
+            key = np.minimum(key, 4 * cells.size)
+            cuts = np.flatnonzero(np.diff(key)) + 1
+        else:
+            cuts = np.zeros(0, dtype=np.int64)
+        bounds = np.concatenate([[0], cuts, [cells.size]])
+        for k in range(bounds.size - 1):
+            chunk = cells[bounds[k]:bounds[k + 1]]
+            c_nb = np.maximum(nb[chunk], 0)
+            c_w = wgt[chunk]
+            for _ in range(_MAX_BUCKET_SWEEPS):
+                new = _mix_shares(c_nb, c_w, l1, w1, l2, w2)
+                same = np.array_equal(new[0], l1[chunk]) and np.allclose(new[1], w1[chunk])
+                l1[chunk], w1[chunk], l2[chunk], w2[chunk] = new
+                if same:
+                    break
+    labels = np.where(reached, l1, NO_LABEL).astype(np.int32)
+    # Tie mask: two upwind neighbours with different labels and times within the tolerance.
     tie = np.zeros(n, dtype=bool)
-    for _ in range(max_passes):
-        la, lb = labels[ir_c], labels[ic_c]
-        differ = (la != lb) & (la >= 0) & (lb >= 0)
-        if not differ.any():
-            break
-        cells = cand[differ]
-        lo = np.minimum(la[differ], lb[differ])
-        pick = np.where(la[differ] <= lb[differ], ir_c[differ], ic_c[differ])
-        order = np.lexsort((-lo, cells))  # per cell, the lowest label is assigned last
-        cells, pick = cells[order], pick[order]
-        tie[:] = False
-        tie[cells] = True
-        before = parent[cells].copy()
-        parent[cells] = pick
-        if np.array_equal(parent[cells], before):
-            break
-        labels = resolve(parent)
-    unlabelled = int(np.count_nonzero((labels < 0) & ~unreached))
+    lab_n = np.where(nb >= 0, labels[np.maximum(nb, 0)], NO_LABEL)
+    act = (wgt > 0.0) & (lab_n >= 0)
+    for i in range(4):
+        for j in range(i + 1, 4):
+            m = act[:, i] & act[:, j] & (lab_n[:, i] != lab_n[:, j])
+            m[m] = np.abs(tn[m, i] - tn[m, j]) <= tol
+            tie |= m
+    tie &= ~is_seed & reached
+    unlabelled = int(np.count_nonzero((labels < 0) & reached))
     return labels.reshape(rows, cols), tie.reshape(rows, cols), unlabelled
+
+
+#: Most sweeps inside one time bucket of :func:`propagate_labels`.
+_MAX_BUCKET_SWEEPS = 6
+
+
+def _mix_shares(
+    nbrs: NDArray[np.int64],
+    weights: FloatArray,
+    l1: NDArray[np.int64],
+    w1: FloatArray,
+    l2: NDArray[np.int64],
+    w2: FloatArray,
+) -> tuple[NDArray[np.int64], FloatArray, NDArray[np.int64], FloatArray]:
+    """Two leading label shares of cells mixing their neighbours' shares with ``weights``."""
+    lab = np.concatenate([l1[nbrs], l2[nbrs]], axis=1)  # (m, 8)
+    val = np.concatenate([w1[nbrs] * weights, w2[nbrs] * weights], axis=1)
+    val = np.where(lab >= 0, val, 0.0)
+    same = lab[:, :, None] == lab[:, None, :]
+    tot = np.einsum("mij,mj->mi", same, val)
+    tot = np.where((lab >= 0) & (tot > 0.0), tot, -1.0)
+    rows = np.arange(lab.shape[0])
+    big = np.iinfo(np.int64).max
+
+    def best(score: FloatArray) -> tuple[NDArray[np.int64], FloatArray]:
+        top = score.max(axis=1)
+        cand = np.where((score >= top[:, None] * (1.0 - 1e-12)) & (score > 0.0), lab, big)
+        k = np.argmin(cand, axis=1)  # on equal shares the lower label
+        ok = top > 0.0
+        return np.where(ok, lab[rows, k], NO_LABEL), np.where(ok, score[rows, k], 0.0)
+
+    a_l, a_w = best(tot)
+    b_l, b_w = best(np.where(lab == a_l[:, None], -1.0, tot))
+    return a_l, a_w, b_l, b_w
 
 
 def _relax(
@@ -950,7 +983,7 @@ def _union_solve(
     seed[keys] = labs
     labels, tie, unlabelled = propagate_labels(
         t_plane, seed.reshape(plane.shape), tie_tolerance_s=tie_tolerance_s,
-        periodic_x=plane.periodic_x,
+        periodic_x=plane.periodic_x, spacing_m=plane.spacing_m,
     )
     arrival = plane.to_native(t_plane)
     first_native, tie_native = _labels_to_native(medium, labels, tie)

@@ -66,3 +66,22 @@ def test_samples_are_bilinear_reads_and_lower_the_cell_minimum():
     assert both.n_scenarios == 4 and both.has_samples
     np.testing.assert_array_equal(both.sample_offsets, [0, 1, 2, 3, 4])
     np.testing.assert_array_equal(both.offsets, [0, 1, 2, 3, 4])
+
+
+def test_labels_follow_oblique_fronts_not_grid_axes():
+    # Two plane fronts on a unit grid, T = min(Ta, Tb): Ta = x moving east (label 0) and Tb with
+    # the normal (0.8, 0.6) (label 1); both are exact solutions of |grad T| = 1. Where Tb < Ta
+    # the time's left neighbour is always the smaller one, so a label following the smaller
+    # neighbour would run west along each row into the region of label 0; carried along the
+    # rays, labels equal the arg-min of the two times off the meeting line x = 3 y - 50.
+    y, x = np.mgrid[0:60, 0:80].astype(float)
+    ta, tb = x, 0.8 * x + 0.6 * y - 10.0
+    t = np.minimum(ta, tb)
+    argmin = np.where(tb < ta, 1, 0)
+    seeds = np.where(t < 1.0, argmin, -1)
+    t = t - t.min()
+    lab, tie, unl = propagate_labels(t, seeds, tie_tolerance_s=0.01)
+    assert unl == 0
+    off_line = np.abs(x - (3.0 * y - 50.0)) / np.hypot(1.0, 3.0) > 2.0
+    assert np.mean(lab[off_line] == argmin[off_line]) >= 0.99
+    assert (lab[off_line & (argmin == 1)] == 1).mean() >= 0.99
