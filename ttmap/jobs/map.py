@@ -284,7 +284,7 @@ def run_map_job(job: MapJob, *, progress: Callable[[str], None] | None = None) -
         sets, and is not written as a Shapefile.
     """
     from ttmap.faults import checkpoint
-    from ttmap.jobs.record import build_run_record, file_entry, utc_now, write_run_record
+    from ttmap.jobs.record import build_run_record, file_entry, grid_entry, utc_now, write_run_record
     from ttmap.jobs.staging import staged_output
     from ttmap.memory import check_memory
     from ttmap.traveltime import prepare_medium
@@ -337,6 +337,7 @@ def run_map_job(job: MapJob, *, progress: Callable[[str], None] | None = None) -
         kept: dict[str, TravelTimeResult] = {}  # results the site table needs
         front_depth_m: np.ndarray | None = None
         front_water: tuple[np.ndarray, np.ndarray] | None = None  # (water, open water) for the site statuses
+        solve_scale: Any = None  # how the map scale was handled (the same for every set)
         for i, pset in enumerate(sets, 1):
             tag = f"[{i}/{len(sets)} {pset.key}]"
             t1 = time.perf_counter()
@@ -388,6 +389,7 @@ def run_map_job(job: MapJob, *, progress: Callable[[str], None] | None = None) -
             timings[f"{pset.key}.write_s"] = t4 - t3
             from ttmap.jobs.layers import minutes_range
 
+            solve_scale = result.settings.get("projection_scale")
             summaries[pset.key] = {
                 "title": pset.title,
                 "speed_mode": pset.mode,
@@ -430,7 +432,8 @@ def run_map_job(job: MapJob, *, progress: Callable[[str], None] | None = None) -
             started_utc=started,
             inputs=inputs,
             parameters=map_job_parameters(job),
-            grid=grid,
+            # the grid, and how its map scale was handled in the solve (docs/projections.md)
+            grid={**grid_entry(grid), "solve_scale": solve_scale},
             timings_s=timings,
             products=written,
             out_dir=out,

@@ -199,7 +199,7 @@ def run_site_map_job(job: SiteMapJob, *, progress: Callable[[str], None] | None 
     from ttmap.faults import checkpoint
     from ttmap.jobs.layers import minutes_range
     from ttmap.jobs.staging import staged_output
-    from ttmap.jobs.record import build_run_record, file_entry, utc_now, write_run_record
+    from ttmap.jobs.record import build_run_record, file_entry, grid_entry, utc_now, write_run_record
     from ttmap.memory import check_memory
     from ttmap.sitemap import RECIPROCITY_NOTE, combine_site_times, site_centred_times
     from ttmap.sources import Source
@@ -363,7 +363,8 @@ def run_site_map_job(job: SiteMapJob, *, progress: Callable[[str], None] | None 
             started_utc=started,
             inputs=inputs,
             parameters=site_map_job_parameters(job, sites),
-            grid=grid,
+            # the grid, and how its map scale was handled in the solve (docs/projections.md)
+            grid={**grid_entry(grid), "solve_scale": None if last is None else last.settings.get("projection_scale")},
             timings_s=timings,
             products=written,
             out_dir=out,
