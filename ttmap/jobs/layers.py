@@ -9,6 +9,8 @@ built here, once; the names come from :mod:`ttmap.jobs.plan`.
 
 from __future__ import annotations
 
+import math
+
 from collections.abc import Mapping, Sequence
 from pathlib import Path
 from typing import Any
@@ -62,7 +64,18 @@ def arrival_levels(time_min: np.ndarray, interval_min: float | None) -> np.ndarr
         return np.zeros(0)
     if interval_min is not None:
         return levels_from_interval(interval_min, tmax)
-    return default_levels_min(tmax)
+    levels = default_levels_min(tmax)
+    # A field that starts late and spans little (a nested coastal grid) would get one or
+    # two isochrones from the default scheme: use a finer round step over its own span.
+    tmin = float(np.nanmin(time_min))
+    span = tmax - tmin
+    if span > 0.0 and int(np.count_nonzero(levels >= tmin)) < 4:
+        step = next((s for s in (1.0, 2.0, 5.0, 10.0) if span / s <= 12.0), 10.0)
+        first = math.ceil(tmin / step) * step
+        fine = np.arange(first, tmax + 1e-9, step)
+        if fine.size > int(np.count_nonzero(levels >= tmin)):
+            return fine
+    return levels
 
 
 def arrival_ramp(levels: Sequence[float] | np.ndarray) -> tuple[list[float], list[str]]:

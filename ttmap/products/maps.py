@@ -941,7 +941,18 @@ def render_arrival_map(
     vmax = float(np.max(field, where=finite, initial=-np.inf)) if finite.any() else 60.0
     if levels_min is None and lines:
         levels_min = [ln.minutes for ln in lines]
-    edges = class_edges_min(levels_min, max(vmax, 1e-6))
+    # A field that starts late (a nested coastal grid, a far coast) gets classes from
+    # the last level at or before its earliest arrival, not one wide class from 0.
+    vmin = float(np.min(field, where=finite, initial=np.inf)) if finite.any() else 0.0
+    start = 0.0
+    if levels_min is not None:
+        lv = sorted({float(v) for v in np.ravel(np.asarray(levels_min, dtype=np.float64))})
+        below = [v for v in lv if v <= vmin]
+        if below:
+            start = below[-1]
+        elif len(lv) >= 2 and 0.0 < lv[0] - (lv[1] - lv[0]) <= vmin:
+            start = lv[0] - (lv[1] - lv[0])  # one step before the first level
+    edges = class_edges_min(levels_min, max(vmax, 1e-6), start)
     phrase = minutes_after(source_kind)
     classes = arrival_classes(
         edges, label=colorbar_label or f"Arrival time ({phrase})", cmap=cmap
