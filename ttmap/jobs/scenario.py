@@ -28,6 +28,7 @@ __all__ = [
     "scenario_site_options",
     "write_difference",
     "write_envelope",
+    "sites_table_summary",
     "write_sites_by_scenarios",
 ]
 
@@ -427,6 +428,20 @@ def _write_sites_x_scenarios(
     except InputDataError as err:  # a bad site row must not lose the finished solves
         return {"path": sf.sites_path, "skipped": f"site table not written ({err})"}
     table = written.pop("table")
+    from ttmap.jobs.options import options_record
+
+    return {
+        **sites_table_summary(sf.sites_path, table, scenarios=list(fronts),
+                              periods_s=sorted({p for _, p in energy})),
+        "options": {k: v for k, v in options_record(opts).items() if k != "path"},
+        "files": {k: v for k, v in written.items() if isinstance(v, str)},
+    }
+
+
+def sites_table_summary(path: str | None, table: Mapping[str, Sequence[Any]], *,
+                        scenarios: Sequence[str], periods_s: Sequence[float]) -> dict[str, Any]:
+    """The run record's summary of a sites x scenarios table (direct and reciprocal paths alike):
+    site count, sites no scenario reaches, snapping status counts, each site's earliest scenario."""
     first: dict[str, Any] = {}
     statuses: dict[str, str] = {}
     for site, sc, front, is_first, status in zip(
@@ -436,19 +451,15 @@ def _write_sites_x_scenarios(
         statuses[site] = status
         if is_first and site not in first:
             first[site] = {"scenario": sc, "front_min": round(float(front), 3)}
-    from ttmap.jobs.options import options_record
-
     return {
-        "path": sf.sites_path,
+        "path": path,
         "count": len(statuses),
-        "scenarios": list(fronts),
-        "periods_s": sorted({p for _, p in energy}),
-        "options": {k: v for k, v in options_record(opts).items() if k != "path"},
+        "scenarios": list(scenarios),
+        "periods_s": list(periods_s),
         "no_arrival": sorted(s for s in statuses if s not in first),
         "snap_status": {k: sum(1 for v in statuses.values() if v == k)
                         for k in dict.fromkeys(statuses.values())},
         "earliest": first,
-        "files": {k: v for k, v in written.items() if isinstance(v, str)},
         "caution": "margins are planning figures, not promises",
     }
 

@@ -524,29 +524,15 @@ def _write_table(
         overwrite=overwrite,
     )
     del fig
-    first: dict[str, Any] = {}
-    statuses: dict[str, str] = {}
-    for site, sc, front, is_first, status in zip(
-        table["name"], table["scenario"], table["front_min"], table["earliest_for_site"],
-        table["status"], strict=True,
-    ):
-        statuses[site] = status
-        if is_first and site not in first:
-            first[site] = {"scenario": sc, "front_min": round(float(front), 3)}
+    from ttmap.jobs.scenario import sites_table_summary
+
     return {
-        "path": sf.sites_path,
-        "count": len(statuses),
-        "scenarios": list(front_at),
-        "periods_s": sorted({p for _, p in energy_at if not _m.isnan(p)}),
-        "no_arrival": sorted(s for s in statuses if s not in first),
-        "snap_status": {k: sum(1 for v in statuses.values() if v == k)
-                        for k in dict.fromkeys(statuses.values())},
-        "earliest": first,
+        **sites_table_summary(sf.sites_path, table, scenarios=list(front_at),
+                              periods_s=sorted({p for _, p in energy_at if not _m.isnan(p)})),
         "files": {
             "table_csv": str(targets[0]),
             "earliest_csv": str(targets[1]),
             "chart_png": str(targets[2]),
         },
-        "caution": "margins are planning figures, not promises",
         "method": "reciprocal",
     }
