@@ -251,7 +251,10 @@ def _write_one_solve_envelope(
         )
     targets = [out / n for n in ENVELOPE_FILES]
     tie_path = out / ENVELOPE_TIE_FILE
-    check_writable([*targets, tie_path], overwrite)
+    from ttmap.jobs.scenario_maps import envelope_extra_files
+
+    check_writable([*targets, tie_path, *envelope_extra_files(out), out / "envelope_first_scenario.qml"],
+                   overwrite)
     arrival_s, first, tie, info = _one_solve_envelope(medium, sf)
     earliest = arrival_s / 60.0
     counts = np.bincount(first[first >= 0].astype(np.int64), minlength=len(names))
@@ -309,11 +312,21 @@ def _write_one_solve_envelope(
             overwrite=overwrite,
         )
     info["tie_cells"] = int(tie.sum())
+    # Styles and maps as for the envelope from rasters (one scheme for both paths); the
+    # near-ties of the labels are in the tie raster, so the first-scenario classes here
+    # are the labels alone.
+    from ttmap.jobs.scenario_maps import write_envelope_extras
+    from ttmap.products.scenario_maps import FirstScenario
+
+    labels = FirstScenario(first.astype(np.int16), [], [int(c) for c in counts], [], tol / 60.0)
+    extras = write_envelope_extras(out, earliest, labels, names, medium.grid,
+                                   water_mask=medium.water, overwrite=overwrite)
     paths = {
         "envelope_min": str(targets[0]),
         "first_scenario": str(targets[1]),
         "lookup_csv": str(targets[2]),
         "tie_class": str(tie_path),
+        **extras,
     }
     return paths, np.isfinite(arrival_s), info
 
