@@ -254,8 +254,11 @@ def render_first_scenario_map(
         title=title,
         subtitle=subtitle
         or (
-            f"{n} scenarios  |  grey: two or more arrive within {first.tolerance_min:g} min "
+            f"{n} scenarios  |  grey: two or more arrive within {first.tolerance_min:.2g} min "
             "of each other (see envelope_first_scenario.csv)"
+            if first.tie_sets else
+            f"{n} scenarios  |  one solve from all their sources; near-ties are marked "
+            "in envelope_first_scenario_tie.tif"
         ),
         is_geographic=is_geographic,
         nodata_legend="No scenario arrives",
