@@ -562,8 +562,7 @@ def _task_inputs(task: SolveTask, spec: MediumSpec, sha: str | None, tags: dict[
         "ttmap_version": ttmap.__version__,
     }
     if nests:  # absent without nests: records of runs without nests stay valid
-        inputs["nests"] = [{"name": n.name, "sha256": h} if h is not None else n.describe()
-                           for n, h in nests]
+        inputs["nests"] = {n.name: h if h is not None else n.path for n, h in nests}
     return _canonical(inputs)
 
 
@@ -601,6 +600,8 @@ def inputs_difference(recorded: Any, now: Mapping[str, Any]) -> str:
         a, b = old.get(key, missing), new.get(key, missing)
         if a != b:
             what = "bathymetry SHA-256" if key == "bathymetry_sha256" else key
+            if key.startswith("nests."):
+                what = f"nest {key[6:]!r} (its raster's SHA-256)"
             return (f"{what} differs: recorded {'(absent)' if a is missing else _short(a)}, "
                     f"now {'(absent)' if b is missing else _short(b)}")
     return "recorded inputs differ"
