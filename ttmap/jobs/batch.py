@@ -55,6 +55,12 @@ anything runs, every task's existing outputs are classified:
   front** with :class:`~ttmap.errors.OutputExistsError` naming the tasks and
   ``--overwrite``, so a run never stops half-way over someone else's files.
 
+With ``nests`` (:class:`~ttmap.tasks.NestSpec`, e.g. a scenario file's
+``[[nest]]`` tables) every task also solves each nest from its basin field
+and writes ``arrival_<name>_nest-<nest>.tif`` before its record; a task is
+complete only with every nest raster, and the nests' SHA-256s are part of its
+inputs (docs/nesting.md).
+
 A task that fails (source on land, unreadable file ...) is reported in its
 summary (``ok=False``, one-line ``error`` naming the task) and writes nothing;
 the other tasks go on, and a later resumed run tries it again.
