@@ -17,7 +17,7 @@ from ttmap.defaults import EXECUTORS, FLOOR_DEPTH_M
 from ttmap.errors import InputDataError
 from ttmap.sources import Source
 
-__all__ = ["MediumSpec", "SolveTask", "check_executor"]
+__all__ = ["MediumSpec", "NestSpec", "SolveTask", "check_executor"]
 
 _ADDRESS_RE = re.compile(r"^([a-z][a-z0-9+.-]*://)?[^\s/:]+:\d{1,5}$|^[a-z][a-z0-9+.-]*://\S+$")
 
@@ -63,6 +63,31 @@ class MediumSpec:
         d = dataclasses.asdict(self)
         d["window"] = None if self.window is None else list(self.window)
         return d
+
+
+@dataclass(frozen=True)
+class NestSpec:
+    """One nest of a batch run: a finer raster inside the basin, solved after each task.
+
+    Every task of the run solves each nest from its basin field (the nest's
+    edge times, :func:`ttmap.nesting.solve_nest`) and writes
+    ``arrival_<task>_nest-<name>.tif`` beside its own raster. The nest raster
+    is read with the medium's band and sign convention (no crop, no coarsening).
+
+    Attributes
+    ----------
+    name : str
+        File-name safe; names the nest's rasters.
+    path : str
+        The nest raster (every worker must be able to read it).
+    """
+
+    name: str
+    path: str
+
+    def describe(self) -> dict[str, Any]:
+        """JSON-ready dictionary of the fields."""
+        return {"name": self.name, "path": self.path}
 
 
 @dataclass(frozen=True)

@@ -55,6 +55,12 @@ anything runs, every task's existing outputs are classified:
   front** with :class:`~ttmap.errors.OutputExistsError` naming the tasks and
   ``--overwrite``, so a run never stops half-way over someone else's files.
 
+With ``nests`` (:class:`~ttmap.tasks.NestSpec`, e.g. a scenario file's
+``[[nest]]`` tables) every task also solves each nest from its basin field
+and writes ``arrival_<name>_nest-<nest>.tif`` before its record; a task is
+complete only with every nest raster, and the nests' SHA-256s are part of its
+inputs (docs/nesting.md).
+
 A task that fails (source on land, unreadable file ...) is reported in its
 summary (``ok=False``, one-line ``error`` naming the task) and writes nothing;
 the other tasks go on, and a later resumed run tries it again.
@@ -81,7 +87,7 @@ from typing import TYPE_CHECKING, Any
 from ttmap.defaults import CONNECT_TIMEOUT_S, MEDIA_PER_WORKER
 from ttmap.errors import InputDataError, OutputExistsError, TtmapError, TtmapWarning
 from ttmap.sources import Source
-from ttmap.tasks import MediumSpec, SolveTask, check_executor
+from ttmap.tasks import MediumSpec, NestSpec, SolveTask, check_executor
 
 if TYPE_CHECKING:
     from ttmap.io.raster import Bathymetry
@@ -94,6 +100,7 @@ __all__ = [
     "map_calls",
     "medium_for_spec",
     "inputs_difference",
+    "nest_output_path",
     "run_tasks",
     "task_output_paths",
 ]
@@ -130,6 +137,8 @@ class TaskSummary:
         Warnings the solve raised (e.g. a source moved to open water).
     record : str or None
         Path of ``<name>.task.json``.
+    nests : dict
+        Nest name -> path of ``arrival_<name>_nest-<nest>.tif`` (runs with nests).
     """
 
     name: str
@@ -141,6 +150,7 @@ class TaskSummary:
     seconds: float = 0.0
     warnings: tuple[str, ...] = ()
     record: str | None = None
+    nests: dict[str, str] = dataclasses.field(default_factory=dict)
 
 
 # ---------------------------------------------------------------------------
@@ -158,6 +168,17 @@ def task_output_paths(name: str, out_dir: str | os.PathLike[str]) -> tuple[Path,
     """
     out = Path(out_dir)
     return out / f"arrival_{name}.tif", out / f"{name}.task.json"
+
+
+def nest_output_path(name: str, nest: str, out_dir: str | os.PathLike[str]) -> Path:
+    """``arrival_<name>_nest-<nest>.tif`` in ``out_dir``: task ``name``'s raster on nest ``nest``.
+
+    Examples
+    --------
+    >>> nest_output_path("north_front", "harbour", "out").name
+    'arrival_north_front_nest-harbour.tif'
+    """
+    return Path(out_dir) / f"arrival_{name}_nest-{nest}.tif"
 
 
 def _json_default(value: Any) -> Any:
@@ -206,6 +227,8 @@ _MEDIA_ERRORS: dict[tuple[MediumSpec, str | None, str, float | None], str] = {}
 #: How often this process read each (spec, sha256), and built each medium.
 _READS: Counter[tuple[MediumSpec, str | None]] = Counter()
 _BUILDS: Counter[tuple[MediumSpec, str | None]] = Counter()
+#: (nest path, sha256, band, depth_positive) -> Bathymetry of the run's nests.
+_NESTS: dict[tuple[str, str | None, int | None, bool], Bathymetry] = {}
 
 
 def _clear_cache() -> None:
@@ -214,6 +237,7 @@ def _clear_cache() -> None:
         _BATHY.clear()
         _MEDIA.clear()
         _MEDIA_ERRORS.clear()
+        _NESTS.clear()
 
 
 def _bathymetry_for(spec: MediumSpec, sha256: str | None) -> Bathymetry:
@@ -273,6 +297,44 @@ def _medium_for(spec: MediumSpec, sha256: str | None, mode: str, period_s: float
         return medium
 
 
+def _nest_bathymetry(nest: NestSpec, sha256: str | None, spec: MediumSpec) -> Bathymetry:
+    """The nest raster, read once per process (the medium's band and sign convention)."""
+    from ttmap.io.raster import read_bathymetry
+
+    key = (nest.path, sha256, spec.band, spec.depth_positive)
+    with _CACHE_LOCK:
+        bathy = _NESTS.get(key)
+        if bathy is not None:
+            return bathy
+        for k in [k for k in _NESTS if k[0] == nest.path]:
+            del _NESTS[k]
+        bathy = read_bathymetry(nest.path, band=spec.band, depth_positive=spec.depth_positive)
+        if sha256 is not None and bathy.sha256 is not None and bathy.sha256 != sha256:
+            raise InputDataError(
+                f"nest {nest.name!r} ({nest.path}) on this worker differs from the client's "
+                "(sha256); the file changed during the run or the workers see another copy: give "
+                "every worker the same file and run again"
+            )
+        _NESTS[key] = bathy
+        return bathy
+
+
+def _solve_task_nests(job: _Job, result: Any) -> dict[str, Any]:
+    """Nest name -> NestResult of one task: each nest solved from the task's basin field."""
+    from ttmap.nesting import solve_nest
+
+    out: dict[str, Any] = {}
+    for nest, sha in job.nests:
+        bathy = _nest_bathymetry(nest, sha, job.spec)
+        out[nest.name] = solve_nest(
+            result.grid, result.arrival_time_s, bathy.grid, bathy.depth_m, name=nest.name,
+            mode=job.task.mode, period_s=job.task.period_s, floor_depth_m=job.spec.floor_depth_m,
+            far_field=job.spec.far_field, earth=job.spec.earth,  # type: ignore[arg-type]
+            max_time_s=job.task.max_time_s,
+        )
+    return out
+
+
 def _worker_info(spec: MediumSpec, sha256: str | None) -> dict[str, Any]:
     key = (spec, sha256)
     return {"pid": os.getpid(), "bathymetry_reads": _READS[key], "media_built": _BUILDS[key]}
@@ -290,6 +352,8 @@ class _Job:
     inputs: dict[str, Any]
     inputs_sha256: str
     extra_tags: dict[str, str]
+    #: (nest, its SHA-256) of every nest the task solves after its basin solve.
+    nests: tuple[tuple[NestSpec, str | None], ...] = ()
 
 
 def _raster_tags(job: _Job, result: Any) -> dict[str, str]:
@@ -349,6 +413,8 @@ def _run_task(job: _Job) -> TaskSummary:
     base: dict[str, Any] = {"task": job.task.describe()}
     caught: list[warnings.WarningMessage] = []
     tif, rec_path = task_output_paths(task.name, job.out_dir)
+    written: list[Path] = []
+    nest_paths: dict[str, str] = {}
     try:
         with warnings.catch_warnings(record=True) as caught:
             warnings.simplefilter("always", TtmapWarning)
@@ -367,11 +433,30 @@ def _run_task(job: _Job) -> TaskSummary:
                 ),
             )
             del finite
+            # every nest is solved before anything is written: a failing nest writes nothing
+            solved = _solve_task_nests(job, result) if job.nests else {}
+            if solved:
+                summary["nests"] = {k: v.summary.as_dict() for k, v in solved.items()}
+            tags = _raster_tags(job, result)
             write_arrival_geotiff(
-                tif, time_min, result.grid, tags=_raster_tags(job, result),
+                tif, time_min, result.grid, tags=tags,
                 band_description=_band_description(task), overwrite=job.replace,
             )
+            written.append(tif)
+            for (nest, sha), nres in zip(job.nests, solved.values(), strict=True):
+                path = nest_output_path(task.name, nest.name, job.out_dir)
+                write_arrival_geotiff(
+                    path, nres.arrival_time_min, nres.grid,
+                    tags=dict(tags, NEST=nest.name, NEST_RASTER=os.path.basename(nest.path),
+                              NEST_SHA256=sha or ""),
+                    band_description=f"{_band_description(task)} (nest {nest.name}, from the basin's "
+                                     "times on its edge)",
+                    overwrite=job.replace,
+                )
+                written.append(path)
+                nest_paths[nest.name] = str(path)
     except Exception as err:  # a task's failure is reported, never lost
+        _remove_partial(written)
         kind = "" if isinstance(err, TtmapError) else f"{type(err).__name__}: "
         summary = dict(base, worker=_worker_info(job.spec, job.bathymetry_sha256))
         return TaskSummary(
@@ -391,6 +476,7 @@ def _run_task(job: _Job) -> TaskSummary:
         "raster_tags": job.extra_tags,
         "bathymetry": job.spec.bathymetry,
         "raster": tif.name,
+        **({"nests": {k: Path(v).name for k, v in nest_paths.items()}} if nest_paths else {}),
         "summary": summary,
         "warnings": list(warns),
         "seconds": round(seconds, 4),
@@ -407,8 +493,17 @@ def _run_task(job: _Job) -> TaskSummary:
         )
     return TaskSummary(
         name=task.name, ok=True, raster=str(tif), summary=summary, seconds=seconds,
-        warnings=warns, record=str(rec_path),
+        warnings=warns, record=str(rec_path), nests=nest_paths,
     )
+
+
+def _remove_partial(paths: Sequence[Path]) -> None:
+    """Remove the rasters a failed task wrote this time, so that a task is whole or absent."""
+    for p in paths:
+        try:
+            p.unlink(missing_ok=True)
+        except OSError:
+            pass
 
 
 # ---------------------------------------------------------------------------
@@ -446,11 +541,13 @@ def _absolute_spec(spec: MediumSpec) -> MediumSpec:
     return spec
 
 
-def _task_inputs(task: SolveTask, spec: MediumSpec, sha: str | None, tags: dict[str, str]) -> dict[str, Any]:
+def _task_inputs(task: SolveTask, spec: MediumSpec, sha: str | None, tags: dict[str, str],
+                 nests: Sequence[tuple[NestSpec, str | None]] = ()) -> dict[str, Any]:
     """What identifies a finished task: its content, not where it was described.
 
     The source geometry, speed model, period and limits; the medium spec with
-    the bathymetry's SHA-256 standing for its path; the ttmap version. Not the
+    the bathymetry's SHA-256 standing for its path; the nests (name and
+    SHA-256, so a changed nest raster solves the task again); the ttmap version. Not the
     scenario file's name or path, the source's label, the task's place in the
     file or the extra raster tags, so a renamed copy of a scenario file resumes.
     """
@@ -464,12 +561,15 @@ def _task_inputs(task: SolveTask, spec: MediumSpec, sha: str | None, tags: dict[
     medium = spec.describe()
     if sha is not None:
         medium.pop("bathymetry", None)  # the content (sha) identifies it, not the path
-    return _canonical({
+    inputs: dict[str, Any] = {
         "task": described,
         "medium": medium,
         "bathymetry_sha256": sha,
         "ttmap_version": ttmap.__version__,
-    })
+    }
+    if nests:  # absent without nests: records of runs without nests stay valid
+        inputs["nests"] = {n.name: h if h is not None else n.path for n, h in nests}
+    return _canonical(inputs)
 
 
 def _flatten(value: Any, prefix: str = "") -> dict[str, Any]:
@@ -506,6 +606,8 @@ def inputs_difference(recorded: Any, now: Mapping[str, Any]) -> str:
         a, b = old.get(key, missing), new.get(key, missing)
         if a != b:
             what = "bathymetry SHA-256" if key == "bathymetry_sha256" else key
+            if key.startswith("nests."):
+                what = f"nest {key[6:]!r} (its raster's SHA-256)"
             return (f"{what} differs: recorded {'(absent)' if a is missing else _short(a)}, "
                     f"now {'(absent)' if b is missing else _short(b)}")
     return "recorded inputs differ"
@@ -532,17 +634,24 @@ def _raster_inputs_sha(path: Path) -> str | None:
 
 def _plan(
     task: SolveTask, inputs_sha: str, out_dir: Path, *, resume: bool, overwrite: bool,
-    inputs: Mapping[str, Any] | None = None,
+    inputs: Mapping[str, Any] | None = None, nest_names: Sequence[str] = (),
 ) -> tuple[str, Any]:
-    """("run", replace) | ("skip", record) | ("conflict", reason) for one task."""
+    """("run", replace) | ("skip", record) | ("conflict", reason) for one task.
+
+    The task's rasters are its basin raster and one per nest: "has" means
+    any of them exists, "same" that every one that exists records these inputs,
+    and a task is complete only with all of them and its record.
+    """
     tif, rec_path = task_output_paths(task.name, out_dir)
-    has_tif, has_rec = tif.exists(), rec_path.exists()
+    rasters = [tif, *(nest_output_path(task.name, n, out_dir) for n in nest_names)]
+    present = [p for p in rasters if p.exists()]
+    has_tif, has_rec = bool(present), rec_path.exists()
     if not has_tif and not has_rec:
         return "run", False
     rec = _load_record(rec_path) if has_rec else None
     rec_same = rec is not None and rec.get("inputs_sha256") == inputs_sha
-    tif_same = has_tif and _raster_inputs_sha(tif) == inputs_sha
-    if resume and has_tif and has_rec and rec_same and tif_same:
+    tif_same = has_tif and all(_raster_inputs_sha(p) == inputs_sha for p in present)
+    if resume and len(present) == len(rasters) and has_rec and rec_same and tif_same:
         return "skip", rec
     if overwrite:
         return "run", True
@@ -555,7 +664,8 @@ def _plan(
     elif has_rec and not rec_same:
         reason = inputs_difference(rec.get("inputs") if rec else None, inputs or {})
     else:
-        reason = f"{tif.name} was made from other inputs"
+        other = [p.name for p in present if _raster_inputs_sha(p) != inputs_sha]
+        reason = f"{other[0] if other else tif.name} was made from other inputs"
     return "conflict", reason
 
 
@@ -563,10 +673,35 @@ def _skipped_summary(task: SolveTask, out_dir: Path, rec: dict[str, Any]) -> Tas
     tif, rec_path = task_output_paths(task.name, out_dir)
     stored = rec.get("summary")
     summary: dict[str, Any] = stored if isinstance(stored, dict) else {}
+    nests = rec.get("nests") if isinstance(rec.get("nests"), dict) else {}
     return TaskSummary(
         name=task.name, ok=True, raster=str(tif), summary=dict(summary), skipped=True,
         warnings=tuple(str(w) for w in rec.get("warnings", []) or []), record=str(rec_path),
+        nests={str(k): str(out_dir / str(v)) for k, v in (nests or {}).items()},
     )
+
+
+def _check_nests(nests: Sequence[NestSpec]) -> tuple[tuple[NestSpec, str | None], ...]:
+    """Each nest with its path made absolute and its SHA-256; names file-safe and unique."""
+    from ttmap.io.raster import file_sha256
+
+    out: list[tuple[NestSpec, str | None]] = []
+    seen: set[str] = set()
+    for n in nests:
+        if not isinstance(n, NestSpec):
+            raise InputDataError(f"nest {n!r} is a {type(n).__name__}, not a NestSpec")
+        if not _NAME_RE.match(n.name):
+            raise InputDataError(
+                f"nest name {n.name!r} is not file-safe; use letters, digits, '_', '-' and '.' only"
+            )
+        if n.name in seen:
+            raise InputDataError(f"nest name {n.name!r} is used twice; give every nest its own name")
+        seen.add(n.name)
+        if os.path.isfile(n.path):
+            out.append((dataclasses.replace(n, path=os.path.abspath(n.path)), file_sha256(n.path)))
+        else:
+            out.append((n, None))
+    return tuple(out)
 
 
 def _bathymetry_digest(spec: MediumSpec) -> str | None:
@@ -608,6 +743,7 @@ def run_tasks(
     progress: ProgressFn | None = None,
     tags: Mapping[str, Any] | None = None,
     dask_log: bool = True,
+    nests: Sequence[NestSpec] = (),
 ) -> list[TaskSummary]:
     """Run independent solves and write one raster and one record per task.
 
@@ -644,6 +780,12 @@ def run_tasks(
         Write the scheduler's and workers' log lines to ``dask.log`` in the
         output folder (default); False sends them nowhere. They never reach
         the terminal.
+    nests : sequence of NestSpec, optional
+        Finer rasters inside the basin: every task solves each of them from
+        its basin field and writes ``arrival_<task>_nest-<nest>.tif`` (before
+        its record, so a task is whole with all its rasters). Their SHA-256s
+        are part of the task's inputs. The layout (inside the basin, no
+        overlap, water) is the caller's to check before the run.
 
     Returns
     -------
@@ -687,20 +829,24 @@ def run_tasks(
 
     spec = _absolute_spec(spec)
     sha = _bathymetry_digest(spec)
+    nest_list = _check_nests(nests)
+    nest_names = [n.name for n, _ in nest_list]
     total = len(tasks)
     results: dict[str, TaskSummary] = {}
     jobs: list[_Job] = []
     conflicts: list[tuple[str, str]] = []
     for task in tasks:
-        inputs = _task_inputs(task, spec, sha, extra_tags)
+        inputs = _task_inputs(task, spec, sha, extra_tags, nest_list)
         inputs_sha = _digest(inputs)
-        action, detail = _plan(task, inputs_sha, out, resume=resume, overwrite=overwrite, inputs=inputs)
+        action, detail = _plan(task, inputs_sha, out, resume=resume, overwrite=overwrite, inputs=inputs,
+                               nest_names=nest_names)
         if action == "skip":
             results[task.name] = _skipped_summary(task, out, detail)
         elif action == "conflict":
             conflicts.append((task.name, detail))
         else:
-            jobs.append(_Job(task, spec, sha, str(out), bool(detail), inputs, inputs_sha, extra_tags))
+            jobs.append(_Job(task, spec, sha, str(out), bool(detail), inputs, inputs_sha, extra_tags,
+                             nest_list))
     if conflicts:
         shown = "; ".join(f"{n} ({why})" for n, why in conflicts[:5])
         more = f" and {len(conflicts) - 5} more" if len(conflicts) > 5 else ""

@@ -19,7 +19,9 @@ same speed model (:func:`ttmap.nesting.solve_nest`; method in
 - :func:`trace_routes` traces the first wave's route to each site: on the
   nest's field back to the nest's edge, then on the basin's field from there
   to the source, joined in the basin's CRS;
-- :func:`nests_record` is the run record's ``nests`` block.
+- :func:`nests_record` is the run record's ``nests`` block;
+  :func:`scenario_nests_record` that of a scenario run (``[[nest]]`` tables,
+  solved per task by :func:`ttmap.jobs.batch.run_tasks`).
 
 Products per nest are the product set's own files under the key
 :func:`ttmap.jobs.plan.nest_set_key` (``arrival_front_nest-<name>.tif``,
@@ -63,6 +65,8 @@ __all__ = [
     "nested_site_table",
     "trace_routes",
     "nests_record",
+    "scenario_nests_record",
+    "SCENARIO_NESTS_NOTE",
     "VECTORS_NOTE",
 ]
 
@@ -73,6 +77,15 @@ VECTORS_NOTE: str = (
     "per nest: isochrones and coastal layer of each nest in their own files "
     "(isochrones_<set>_nest-<name>, coast_<set>_nest-<name>) in the nest's CRS; the basin's files "
     "are unchanged (they still cover the nests' area at the basin's resolution)"
+)
+
+
+#: What a scenario run does with its nests (stored in the run record).
+SCENARIO_NESTS_NOTE: str = (
+    "every task (each scenario's front and periods) solves each nest from its basin arrival times on "
+    "the nest's edge and writes arrival_<task>_nest-<name>.tif beside its raster, before its task "
+    "record; the envelope, the differences and the sites x scenarios table are on the basin grid "
+    "(the nests give rasters only)"
 )
 
 
@@ -369,5 +382,46 @@ def nests_record(nests: Sequence[NestInput], summaries: Mapping[str, Mapping[str
             "grid": grid_entry(n.grid),
             "summary": per_set,
             "vectors": VECTORS_NOTE,
+        })
+    return out
+
+
+def scenario_nests_record(sf: Any, summaries: Sequence[Any], table_method: str) -> list[dict[str, Any]]:
+    """The ``nests`` block of a scenario run's record.
+
+    Parameters
+    ----------
+    sf : ttmap.scenario.ScenarioFile
+    summaries : sequence of ttmap.jobs.batch.TaskSummary
+    table_method : str
+        The run's table method ("direct" or "reciprocal").
+
+    Returns
+    -------
+    list of dict
+        Per nest: name, file, SHA-256, grid, the file's line, per task its
+        raster and solve summary, and :data:`SCENARIO_NESTS_NOTE`.
+    """
+    from ttmap.io.header import read_bathymetry_header
+    from ttmap.io.raster import file_sha256
+    from ttmap.jobs.record import grid_entry
+
+    out = []
+    for n in sf.nests:
+        rasters = {s.name: Path(s.nests[n.name]).name for s in summaries if s.ok and n.name in s.nests}
+        per_task = {s.name: s.summary["nests"][n.name] for s in summaries
+                    if s.ok and isinstance(s.summary.get("nests"), Mapping) and n.name in s.summary["nests"]}
+        out.append({
+            "name": n.name,
+            "path": n.path,
+            "sha256": file_sha256(n.path) if Path(n.path).is_file() else None,
+            "line": n.line,
+            "grid": grid_entry(read_bathymetry_header(n.path).grid),
+            "rasters": rasters,
+            "summary": per_task,
+            "method": SCENARIO_NESTS_NOTE,
+            "table_method": table_method,
+            **({"table_note": "the reciprocal table and envelope ignore the nests"}
+               if table_method == "reciprocal" else {}),
         })
     return out

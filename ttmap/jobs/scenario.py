@@ -18,7 +18,7 @@ from ttmap.jobs.batch import TaskSummary
 from ttmap.tasks import MediumSpec, check_executor
 from ttmap.errors import InputDataError
 from ttmap.physics.scaling import SCALING_RELATIONS
-from ttmap.scenario import ScenarioFile, scenario_tasks
+from ttmap.scenario import ScenarioFile, scenario_nests, scenario_tasks
 
 if TYPE_CHECKING:
     from ttmap.grid import Grid
@@ -187,6 +187,7 @@ def _run_staged(sf: ScenarioFile, out: Path, stage: Any, spec: MediumSpec, tasks
         progress=raster_progress,
         tags={"SCENARIO_FILE": Path(sf.path).name},
         dask_log=dask_log,
+        nests=scenario_nests(sf),
     )
     solve_s = time.perf_counter() - t0
     checkpoint("solved")
@@ -326,7 +327,15 @@ def _scenario_record(
         inputs["sites"] = file_entry(sf.sites_path, count=sf.sites_count)
     for k, path in enumerate(sorted({sc.source_file for sc in sf.scenarios if sc.source_file})):
         inputs[f"source_file_{k + 1}"] = file_entry(path)
+    nest_blocks: dict[str, Any] = {}
+    if sf.nests:
+        from ttmap.jobs.nests import scenario_nests_record
+
+        for n in sf.nests:
+            inputs[f"nest-{n.name}"] = file_entry(n.path)
+        nest_blocks["nests"] = scenario_nests_record(sf, summaries, str(options.get("table_method")))
     rasters = [s.raster for s in summaries if s.ok and s.raster]
+    rasters += [p for s in summaries if s.ok for p in s.nests.values()]
     task_records = [s.record for s in summaries if s.ok and s.record]
     return build_run_record(
         job="scenario",
@@ -364,6 +373,7 @@ def _scenario_record(
                 "ok": s.ok,
                 "skipped": s.skipped,
                 "raster": s.raster,
+                **({"nest_rasters": dict(s.nests)} if s.nests else {}),
                 "seconds": s.seconds,
                 "error": s.error,
                 "summary": s.summary,
@@ -373,6 +383,7 @@ def _scenario_record(
         failed=[{"name": s.name, "error": s.error} for s in summaries if not s.ok],
         comparisons=dict(products),
         sites=sites_summary,
+        **nest_blocks,
     )
 
 

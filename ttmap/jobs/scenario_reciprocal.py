@@ -13,8 +13,12 @@ envelope of a scenario file are computed (``[outputs] table_method`` /
   otherwise from one solve over the union of the starts with which-scenario
   labels (:func:`ttmap.reciprocal.envelope_one_solve`). Scenarios named in
   ``compare`` pairs still get their front raster (a difference raster needs it).
-- ``"auto"`` (default): reciprocal when per-scenario rasters are not asked
-  for, or when there are more scenarios than sites; otherwise direct.
+- ``"auto"`` (default): direct when the file has ``[[nest]]`` tables (every
+  scenario's nest rasters are solved from its basin raster); otherwise
+  reciprocal when per-scenario rasters are not asked for, or when there are
+  more scenarios than sites; otherwise direct. The reciprocal table and
+  envelope ignore the nests (they are on the basin grid); a run that asks
+  for ``"reciprocal"`` with nests says so in its reason.
 
 Method, reasons and accuracy: docs/reciprocal.md.
 """
@@ -111,6 +115,15 @@ def plan_table_method(sf: ScenarioFile, *, direct: bool = False) -> TablePlan:
             reason += "; the direct path needs every scenario's raster, so they are written"
     elif setting == "reciprocal":
         method, reason = "reciprocal", "table_method = \"reciprocal\" in the file"
+        if sf.nests:
+            reason += ("; the table and the envelope ignore the nests (basin grid only); nest rasters "
+                       "are written for the scenarios whose rasters are solved")
+    elif sf.nests:
+        method = "direct"
+        reason = (f"{len(sf.nests)} nest(s) given: every scenario is solved with its nest rasters "
+                  "(the reciprocal table would ignore the nests)")
+        if not o.scenario_rasters:
+            reason += "; so the per-scenario rasters are written although scenario_rasters = false"
     elif not o.scenario_rasters:
         method, reason = "reciprocal", "no per-scenario rasters asked for (scenario_rasters = false)"
     elif n_sites and n_sc > n_sites:

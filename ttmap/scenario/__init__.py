@@ -17,6 +17,7 @@ from ttmap.scenario.schema import (
     RUPTURE_KEYS,
     SECTION_KEYS,
     BathymetrySettings,
+    NestSettings,
     GridInfo,
     OutputSettings,
     ScenarioFile,
@@ -26,7 +27,7 @@ from ttmap.scenario.schema import (
     SpeedSettings,
     TrenchSpec,
 )
-from ttmap.scenario.tasks import scenario_tasks, summary_lines
+from ttmap.scenario.tasks import scenario_nests, scenario_tasks, summary_lines
 from ttmap.scenario.trench import trench_centres
 from ttmap.scenario.validate import did_you_mean, load_scenario_file, validate
 
@@ -34,6 +35,7 @@ __all__ = [
     "RUPTURE_KEYS",
     "SECTION_KEYS",
     "BathymetrySettings",
+    "NestSettings",
     "GridInfo",
     "KeyPath",
     "OutputSettings",
@@ -47,6 +49,7 @@ __all__ = [
     "format_key_path",
     "load_scenario_file",
     "locate_keys",
+    "scenario_nests",
     "scenario_tasks",
     "summary_lines",
     "trench_centres",

@@ -20,6 +20,10 @@ of arrays are counted from 1 in messages)::
     coarsen = 1                     # block-average N x N cells first
     nodata = -32768                 # optional; a fill value the raster does not declare
 
+    [[nest]]                        # optional, any number: finer rasters inside the basin
+    path = "harbour.tif"            # required; any GDAL raster, any CRS (band and sign as [bathymetry])
+    name = "harbour"                # optional; default from the file name; names the nest's rasters
+
     [speed]                         # optional
     floor_depth_m = 5.0
     far_field_correction = false    # far-field slowdown (off by default; also far_field)
@@ -81,6 +85,14 @@ line's options without the leading dashes and the ``site-``/``sites-`` prefix
 maps each to the field of the option group it fills (a test checks that they
 match the groups of :mod:`ttmap.jobs.options` field by field).
 
+Each ``[[nest]]`` is solved in every task from that task's basin arrival
+times on the nest's edge (``docs/nesting.md``) and written beside the task's
+raster as ``arrival_<task>_nest-<name>.tif``. A nest must lie inside the
+basin grid (and the crop window), must not overlap another nest, must hold
+water, and must not contain any scenario's source: such a file is refused,
+naming the scenario (a nest is solved from the basin's times on its edge,
+which cannot start a wave inside it).
+
 The rectangles of a ``[[trench]]`` are centred on the polyline, each
 ``spacing_km`` (geodesic, WGS84) from the one before, as many as fit, with
 what is left over split between both ends; each has its long side along the
@@ -108,6 +120,7 @@ __all__ = [
     "SOURCE_FORMS",
     "TABLE_METHODS",
     "BathymetrySettings",
+    "NestSettings",
     "GridInfo",
     "OutputSettings",
     "ScenarioFile",
@@ -143,6 +156,7 @@ SECTION_KEYS: Mapping[str, tuple[str, ...]] = {
         "max_time_h",
         "snap_radius_km",
     ),
+    "nest": ("path", "name"),
     "sites": (
         "path", "search_radius_km", "notification_delay_min", "preparation_min",
         "walking_speed_m_s", "little_margin_min", "speed_uncertainty_pct", "origin_time",
@@ -249,6 +263,24 @@ class BathymetrySettings:
     crop_xy: tuple[float, float, float, float] | None = None
     coarsen: int = 1
     nodata: float | None = None
+
+
+@dataclass(frozen=True)
+class NestSettings:
+    """One ``[[nest]]`` table, with ``path`` made absolute.
+
+    Attributes
+    ----------
+    name : str
+        File-name safe, unique; names the nest's rasters.
+    path : str
+    line : int or None
+        Line of the table in the file.
+    """
+
+    name: str
+    path: str
+    line: int | None = None
 
 
 @dataclass(frozen=True)
@@ -382,6 +414,8 @@ class ScenarioFile:
         (SI; see :data:`OPTION_KEYS`).
     product_options : dict
         The ``[products]`` keys given, as ``ProductOptions`` field values.
+    nests : tuple of NestSettings
+        The ``[[nest]]`` tables, in file order.
     """
 
     path: str
@@ -396,6 +430,7 @@ class ScenarioFile:
     grid: GridInfo
     site_options: Mapping[str, Any] = field(default_factory=dict)
     product_options: Mapping[str, Any] = field(default_factory=dict)
+    nests: tuple[NestSettings, ...] = ()
 
     @property
     def solve_count(self) -> int:

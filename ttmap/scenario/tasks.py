@@ -9,11 +9,11 @@ from __future__ import annotations
 
 import re
 
-from ttmap.tasks import MediumSpec, SolveTask
+from ttmap.tasks import MediumSpec, NestSpec, SolveTask
 from ttmap.physics.scaling import SCALING_RELATIONS
 from ttmap.scenario.schema import ScenarioFile
 
-__all__ = ["scenario_tasks", "summary_lines"]
+__all__ = ["scenario_nests", "scenario_tasks", "summary_lines"]
 
 
 def scenario_tasks(sf: ScenarioFile) -> tuple[MediumSpec, list[SolveTask]]:
@@ -77,6 +77,10 @@ def scenario_tasks(sf: ScenarioFile) -> tuple[MediumSpec, list[SolveTask]]:
     return spec, tasks
 
 
+def scenario_nests(sf: ScenarioFile) -> tuple[NestSpec, ...]:
+    """The file's ``[[nest]]`` tables as the nests every task solves (file order)."""
+    return tuple(NestSpec(name=n.name, path=n.path) for n in sf.nests)
+
 
 def summary_lines(
     sf: ScenarioFile,
@@ -132,6 +136,9 @@ def summary_lines(
         f"solves: {sf.solve_count} ({len(sf.scenarios)} fronts"
         + (f" + {len(sf.scenarios)} x {n_p} period(s))" if n_p else ")")
     )
+    for n in sf.nests:
+        lines.append(f"nest {n.name!r}: {n.path} (solved in every task from its basin times on the "
+                     f"nest's edge; arrival_<task>_nest-{n.name}.tif)")
     if sf.sites_path:
         lines.append(f"sites: {sf.sites_count} in {sf.sites_path}")
     comp = ", ".join(f"{a} vs {c}" for a, c in o.compare) or "none"

@@ -54,6 +54,7 @@ from ttmap.scenario.schema import (
     SOURCE_FORMS,
     TABLE_METHODS,
     BathymetrySettings,
+    NestSettings,
     GridInfo,
     OutputSettings,
     ScenarioFile,
@@ -340,6 +341,136 @@ class _Loader:
             coarsen=1 if coarsen is None else int(coarsen),
             nodata=None if nodata is None else float(nodata),
         )
+
+    def nests(self, data: Mapping[str, Any], bathy: BathymetrySettings | None,
+              specs: Sequence[ScenarioSpec]) -> tuple[NestSettings, ...]:
+        """The ``[[nest]]`` tables: each a readable raster with water, inside the basin (and its
+        crop window), not overlapping another, and not containing a scenario's source."""
+        if "nest" not in data:
+            return ()
+        tables = data["nest"]
+        if not isinstance(tables, list):
+            self.err(("nest",), f"must be written as [[nest]] (an array of tables), got {_describe(tables)}")
+            return ()
+        out: list[NestSettings] = []
+        grids: dict[str, Any] = {}
+        seen: dict[str, int] = {}
+        for i, tbl in enumerate(tables):
+            path: KeyPath = ("nest", i)
+            if not isinstance(tbl, dict):
+                self.err(path, f"must be a table, got {_describe(tbl)}; write it as [[nest]] with path = \"...\"")
+                continue
+            self.known_keys(tbl, SECTION_KEYS["nest"], path)
+            file = self.existing_file(tbl, "path", path, required=True, what="nest raster")
+            if "name" in tbl:
+                name = self.name(tbl, "name", path, "nest name")
+            elif file is not None:
+                name = _file_safe_stem(Path(file).stem)
+                if name is None:
+                    self.err(path + ("path",), f"the file name {Path(file).name!r} has no letter or digit "
+                                               "to name the nest's rasters by; add name = \"...\"")
+            else:
+                name = None
+            if name is None or file is None:
+                continue
+            if name in seen:
+                self.err(path + ("name",) if "name" in tbl else path,
+                         f"nest name {name!r} is already used by nest[{seen[name] + 1}] (line "
+                         f"{self.line_of(('nest', seen[name]))}); give each nest its own name = \"...\"")
+                continue
+            seen[name] = i
+            grid = self._nest_grid(file, name, path, bathy)
+            if grid is None:
+                continue
+            grids[name] = grid
+            out.append(NestSettings(name=name, path=file, line=self.line_of(path)))
+        if self.grid is None or not grids:
+            return tuple(out)
+        self._nest_layout(grids, out, specs)
+        return tuple(out)
+
+    def _nest_grid(self, file: str, name: str, path: KeyPath, bathy: BathymetrySettings | None) -> Any:
+        """The nest's grid after checking it reads and holds water (None after an issue)."""
+        import numpy as np
+
+        from ttmap.io.raster import read_bathymetry
+
+        try:
+            nb = read_bathymetry(file, band=None if bathy is None else bathy.band,
+                                 depth_positive=False if bathy is None else bathy.depth_positive)
+        except TtmapError as err:
+            self.err(path + ("path",), f"nest {name!r}: {err}")
+            return None
+        with np.errstate(invalid="ignore"):
+            wet = bool((np.asarray(nb.depth_m) > 0.0).any())
+        if not wet:
+            self.err(path + ("path",), f"nest {name!r} ({Path(file).name}) has no water (every cell is land "
+                                       "or nodata); check its extent, or depth_positive in [bathymetry]")
+            return None
+        return nb.grid
+
+    def _nest_layout(self, grids: Mapping[str, Any], nests: Sequence[NestSettings],
+                     specs: Sequence[ScenarioSpec]) -> None:
+        """Inside the basin and its crop window, no overlap, no scenario's source inside."""
+        from ttmap.nesting import check_nests, nest_footprint
+
+        index = {n.name: i for i, n in enumerate(nests)}
+        good: dict[str, Any] = {}
+        for name, g in grids.items():
+            path: KeyPath = ("nest", index[name])
+            try:
+                check_nests(self.grid, {name: g})
+                fp = nest_footprint(g, self.grid)
+            except TtmapError as err:
+                self.err(path + ("path",), str(err))
+                continue
+            if self._crop != (None, None) and not self._footprint_in_crop(fp):
+                key, box = (("crop_lonlat", self._crop[0]) if self._crop[0] is not None
+                            else ("crop_xy", self._crop[1]))
+                self.err(path + ("path",), f"nest {name!r} reaches outside the crop window {key} = "
+                                           f"{list(box)}; widen the window or crop the nest raster")
+                continue
+            good[name] = fp
+            for sc in specs:
+                try:
+                    src = sc.source.in_crs(self.grid.crs)
+                except Exception:  # noqa: BLE001 - a source that cannot be carried is reported elsewhere
+                    continue
+                if fp.intersects(src):
+                    self.err(path + ("path",),
+                             f"nest {name!r} contains the source of scenario {sc.name!r} ({sc.origin}, line "
+                             f"{sc.line}); a nest is solved from the basin's times on its edge and cannot "
+                             "start a wave inside it: use a nest that leaves the source outside, or "
+                             "remove that scenario (run the nest raster as its own bathymetry for it)")
+        names = list(good)
+        for i, a in enumerate(names):
+            for b in names[i + 1:]:
+                try:
+                    check_nests(self.grid, {a: grids[a], b: grids[b]})
+                except TtmapError as err:
+                    self.err(("nest", index[b], "path"), str(err))
+
+    def _footprint_in_crop(self, footprint: Any) -> bool:
+        """True if every vertex of a footprint (basin CRS) lies inside the crop window."""
+        import numpy as np
+
+        xy = np.asarray(footprint.exterior.coords, dtype=np.float64)
+        crop_ll, crop_xy = self._crop
+        if crop_xy is not None:
+            w, s, e, n = crop_xy
+            return bool(((xy[:, 0] >= w) & (xy[:, 0] <= e) & (xy[:, 1] >= s) & (xy[:, 1] <= n)).all())
+        if self.grid.is_geographic:
+            lon, lat = xy[:, 0], xy[:, 1]
+        else:
+            from pyproj import Transformer
+
+            tr = Transformer.from_crs(self.grid.crs, "EPSG:4326", always_xy=True)
+            lon, lat = (np.asarray(v, dtype=np.float64) for v in tr.transform(xy[:, 0], xy[:, 1]))
+        w, s, e, n = crop_ll
+        inside_lon = np.zeros(lon.shape, dtype=bool)
+        for k in (-360.0, 0.0, 360.0):
+            inside_lon |= (lon + k >= w) & (lon + k <= e)
+        return bool((inside_lon & (lat >= s) & (lat <= n)).all())
 
     def _check_memory(self, path: tuple[Any, ...], grid: Any, coarsen: float | None) -> None:
         """Refuse a grid whose solve would not fit in memory (crop window ignored: an upper bound)."""
@@ -1083,6 +1214,18 @@ class _Loader:
         )
 
 
+def _file_safe_stem(stem: str) -> str | None:
+    """A nest's default name from its file name: ASCII letters, digits, ``_ - .``; None if empty.
+
+    >>> _file_safe_stem("Harbour fine (2 m)")
+    'Harbour_fine_2_m'
+    """
+    from ttmap.io.names import ascii_name
+
+    name = re.sub(r"[^A-Za-z0-9.-]+", "_", ascii_name(stem)).strip("_-.")[:64]
+    return name if name and NAME_PATTERN.match(name) else None
+
+
 def _parses(text: str) -> bool:
     try:
         float(text)
@@ -1182,6 +1325,7 @@ def _load(path: str | os.PathLike[str]) -> tuple[ScenarioFile | None, list[Scena
     if speed.max_time_s is not None:  # the [speed] default limit, where a scenario has none
         specs = [s if s.max_time_s is not None else dataclasses.replace(s, max_time_s=speed.max_time_s)
                  for s in specs]
+    nests = ld.nests(data, bathy, specs)
     outputs = ld.outputs(data, list(names_seen), tuple(failed_prefixes))
     if ld.issues or bathy is None or ld.grid_info is None:
         if not ld.issues:  # pragma: no cover - every path to None records an issue
@@ -1201,6 +1345,7 @@ def _load(path: str | os.PathLike[str]) -> tuple[ScenarioFile | None, list[Scena
         grid=ld.grid_info,
         site_options=site_options,
         product_options=product_options,
+        nests=nests,
     )
     return sf, []
 
