@@ -164,6 +164,9 @@ def test_run_record_lists_the_nesting(nested_run: dict[str, Any]) -> None:
     assert "nest" in rec["parameters"]["table_method_reason"]
     products = " ".join(rec["products"])
     assert "arrival_offshore_front_nest-bay.tif" in products
+    # each nest raster opens styled in QGIS: a .qml of its own levels beside it, listed too
+    assert "arrival_offshore_front_nest-bay.qml" in rec["products"]
+    assert (nested_run["out"] / "arrival_offshore_front_nest-bay.qml").is_file()
     tasks = {t["name"]: t for t in rec["tasks"]}
     assert tasks["offshore_front"]["nest_rasters"]["bay"].endswith("arrival_offshore_front_nest-bay.tif")
     record = json.loads((nested_run["out"] / "offshore_front.task.json").read_text())

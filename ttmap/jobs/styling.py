@@ -327,6 +327,14 @@ def style_scenario_run(
         if tif.is_file():
             written.append(write_arrival_raster_style(tif, _levels_up_to(latest), title=f"Arrival time: {s.name}",
                                                       overwrite=overwrite))
+        for nest_name, nest_tif in (getattr(s, "nests", None) or {}).items():  # nested coastal grids
+            if Path(nest_tif).is_file():
+                from ttmap.io.compare import read_minutes
+                from ttmap.jobs.layers import arrival_levels
+
+                written.append(write_arrival_raster_style(
+                    Path(nest_tif), arrival_levels(read_minutes(nest_tif)[0], None),
+                    title=f"Arrival time: {s.name}, nest {nest_name}", overwrite=overwrite))
     if envelope:
         from ttmap.io.compare import read_minutes
         from ttmap.jobs.layers import arrival_levels
