@@ -190,3 +190,19 @@ def test_old_site_snap_radius_name_is_a_deprecated_alias(tmp_path):
     record = json.loads((tmp_path / "b" / "run.json").read_text())
     assert record["parameters"]["sites"]["search_radius_m"] == 3000.0
     assert validate_run_record(record) == []
+
+
+def test_arrival_levels_follow_a_late_starting_field():
+    """A nested coastal grid reached 61-79 min after the origin gets isochrones over its own
+    span (every 2 min here), not the one or two of the 10-minute scheme; a field starting at
+    the origin keeps the default scheme, and no level is ever 0."""
+    import numpy as np
+
+    from ttmap.jobs.layers import arrival_levels
+
+    late = np.linspace(61.3, 79.2, 50).reshape(5, 10)
+    assert arrival_levels(late, None).tolist() == [62.0, 64.0, 66.0, 68.0, 70.0, 72.0, 74.0, 76.0, 78.0]
+    early = np.linspace(0.0, 92.6, 50).reshape(5, 10)
+    assert arrival_levels(early, None).tolist() == [10.0 * k for k in range(1, 10)]
+    short = np.linspace(0.0, 7.5, 50).reshape(5, 10)
+    assert all(v > 0 for v in arrival_levels(short, None))

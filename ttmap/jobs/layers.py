@@ -71,7 +71,7 @@ def arrival_levels(time_min: np.ndarray, interval_min: float | None) -> np.ndarr
     span = tmax - tmin
     if span > 0.0 and int(np.count_nonzero(levels >= tmin)) < 4:
         step = next((s for s in (1.0, 2.0, 5.0, 10.0) if span / s <= 12.0), 10.0)
-        first = math.ceil(tmin / step) * step
+        first = max(math.ceil(tmin / step) * step, step)  # levels start after the origin
         fine = np.arange(first, tmax + 1e-9, step)
         if fine.size > int(np.count_nonzero(levels >= tmin)):
             return fine
