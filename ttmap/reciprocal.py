@@ -275,7 +275,7 @@ def _source_samples(
     t = grid.transform
     step = SAMPLE_SPACING_CELLS * min(abs(t.a), abs(t.e))
     pl = start.placement
-    if source.kind == "point" or start.contour_time_s > 0.0 and source.kind != "line":
+    if source.kind == "point" or start.as_point:
         xy = np.array([[pl.x, pl.y]])
     else:
         import shapely
@@ -917,18 +917,19 @@ def _union_solve(
     """One solve from the union of area starts (all start fronts at time zero)."""
     plane = medium.plane
     ncp = plane.shape[1]
-    r_keys, r_t, r_lab, o_keys, o_t, o_lab, i_keys, i_tau = [], [], [], [], [], [], [], []
+    r_keys, r_t, r_lab, o_keys, o_t, o_lab = [], [], [], [], [], []
+    contours: list[float] = []
     zero_cells: list[tuple[NDArray[np.int64], int]] = []
     for i, src in enumerate(sources):
-        s = _plane_seeds(medium.source_start(src, snap_radius_m=snap_radius_m), ncp)
+        start = medium.source_start(src, snap_radius_m=snap_radius_m)
+        contours.append(float(start.contour_time_s))
+        s = _plane_seeds(start, ncp)
         r_keys.append(s.region)
         r_t.append(s.region_t)
         r_lab.append(np.full(s.region.size, index[i], np.int32))
         o_keys.append(s.outer)
         o_t.append(s.outer_t)
         o_lab.append(np.full(s.outer.size, index[i], np.int32))
-        i_keys.append(s.inner)
-        i_tau.append(s.inner_tau)
         if s.native_zero is not None:
             zr, zc = s.native_zero
             zero_cells.append(
@@ -951,21 +952,41 @@ def _union_solve(
     speed_flat = medium.speed_plane_m_s.ravel()
     relaxed = _relax(keys, times, labs, speed_flat, plane.shape, plane.spacing_m, plane.periodic_x)
 
-    inside = np.zeros(plane.shape, dtype=bool)
-    inside.ravel()[keys[region_any]] = True
+    # One start front for all: the earliest of the scenarios' own fronts, C. Start cells
+    # earlier than C form the region; every start time is exact, so the band on both sides
+    # of the region's edge takes its signed time from C (areas start from a tube of
+    # straight-ray times around them, each with its own front time; docs/reciprocal.md).
+    front_s = min(contours)
     tiny = 1e-9 * min(plane.spacing_m) / float(np.max(speed_flat))
-    # Inner band: the most negative own-frame time of the scenarios whose edge it is.
-    ik, itau = _min_per_key(np.concatenate(i_keys), np.concatenate(i_tau))
-    ik_in = inside.ravel()[ik]
-    ik, itau = ik[ik_in], np.minimum(itau[ik_in], -tiny)
-    outer = ~region_any
-    band_keys = np.concatenate([ik, keys[outer]])
-    band_time = np.concatenate([itau, np.maximum(times[outer], tiny)])
-    # Region cells on the union's edge that no scenario listed (none expected): tiny.
-    edge = inside & _touches_outside(inside, plane.periodic_x)
-    missing = np.setdiff1d(np.flatnonzero(edge), band_keys)
-    band_keys = np.concatenate([band_keys, missing])
-    band_time = np.concatenate([band_time, np.full(missing.size, -tiny)])
+    inside = np.zeros(plane.shape, dtype=bool)
+    inside.ravel()[keys[times < front_s]] = True
+    del region_any
+    t_known = np.full(plane.shape, np.inf)
+    t_known.ravel()[keys] = times
+    edge_in = inside & _touches_outside(inside, plane.periodic_x)
+    edge_out = ~inside & ~medium.barrier_plane & _touches_outside(~inside, plane.periodic_x)
+    missing = edge_out & ~np.isfinite(t_known)
+    if missing.any():  # none expected: one step from the region
+        hy, hx = plane.spacing_m
+        step = np.full(plane.shape, np.inf)
+        tin = np.where(inside, t_known, np.inf)
+        sp = medium.speed_plane_m_s
+        step[1:, :] = np.minimum(step[1:, :], tin[:-1, :] + hy / sp[1:, :])
+        step[:-1, :] = np.minimum(step[:-1, :], tin[1:, :] + hy / sp[:-1, :])
+        step[:, 1:] = np.minimum(step[:, 1:], tin[:, :-1] + hx / sp[:, 1:])
+        step[:, :-1] = np.minimum(step[:, :-1], tin[:, 1:] + hx / sp[:, :-1])
+        if plane.periodic_x:
+            step[:, 0] = np.minimum(step[:, 0], tin[:, -1] + hx / sp[:, 0])
+            step[:, -1] = np.minimum(step[:, -1], tin[:, 0] + hx / sp[:, -1])
+        t_known[missing] = step[missing]
+    band_in = np.flatnonzero(edge_in)
+    band_out = np.flatnonzero(edge_out)
+    band_keys = np.concatenate([band_in, band_out])
+    band_time = np.concatenate([
+        np.minimum(t_known.ravel()[band_in] - front_s, -tiny),
+        np.maximum(t_known.ravel()[band_out] - front_s, tiny),
+    ])
+    del t_known
     t_plane = fast_march_s(
         medium.speed_plane_m_s,
         barrier=medium.barrier_plane,
@@ -974,9 +995,10 @@ def _union_solve(
         band_time_s=band_time,
         spacing_m=plane.spacing_m,
         periodic_x=plane.periodic_x,
-        max_time_s=max_time_s,
+        max_time_s=None if max_time_s is None else max(max_time_s - front_s, tiny),
         borrow_speed=False,
     )
+    t_plane += front_s
     t_flat = t_plane.ravel()
     t_flat[keys] = times  # start cells keep their (relaxed) start times
     seed = np.full(t_plane.size, NO_LABEL, dtype=np.int32)

@@ -40,6 +40,7 @@ to the grid's CRS.
 
 from __future__ import annotations
 
+import dataclasses
 import math
 import warnings
 from dataclasses import dataclass, field
@@ -77,6 +78,10 @@ POINT_MIN_RADIUS_CELLS: float = 2.0
 POINT_MAX_SPEED_CHANGE: float = 0.10
 #: Radius of the start tube around a line source, in solve-grid cells.
 LINE_START_RADIUS_CELLS: float = 2.0
+#: Width of the start tube outside an area source, in solve-grid cells (uniform depth:
+#: 2 cells leave 1.9-3 % error at 3-5 cells off a corner, 3 cells 0.95-1.26 %; wider tubes
+#: put straight rays over many cells of changing depth; docs/method.md §6.4).
+AREA_START_RADIUS_CELLS: float = 3.0
 
 _WGS84 = CRS.from_epsg(4326)
 _FOUR = np.array([[0, 1, 0], [1, 1, 1], [0, 1, 0]], dtype=bool)
@@ -284,7 +289,8 @@ class SourceStart:
     inside_cells : (rows, cols) of 1-D int arrays
         The cells of the start region, and ``inside_time_s`` their times.
     inside_time_s : 1-D float array, seconds
-        Start times in the region (0 for areas, straight-ray time for points).
+        Start times in the region (straight-ray time for points, distance over the
+        local speed for lines and the tube around an area, 0 inside an area).
     band_cells : (rows, cols) of 1-D int arrays
         Cells on both sides of the region's edge.
     band_time_s : 1-D float array, seconds
@@ -296,6 +302,9 @@ class SourceStart:
         Native cells to set to exactly zero after the times are carried back
         (the open water cells inside an area source on a lon/lat grid,
         duplicated seam column included); None otherwise.
+    as_point : bool
+        True for an area too small to start from (fewer than 4 cells), started
+        as a point at its representative point.
     """
 
     inside: BoolArray = field(repr=False)
@@ -306,6 +315,7 @@ class SourceStart:
     contour_time_s: float
     placement: Placement
     native_zero_cells: tuple[IntArray, IntArray] | None = field(default=None, repr=False)
+    as_point: bool = False
 
 
 def _check_lonlat(lon: float, lat: float) -> None:
@@ -416,6 +426,7 @@ def place_source(
     speed_plane_m_s: FloatArray,
     barrier_plane: BoolArray,
     snap_radius_m: float | None = None,
+    front_speed_m_s: float | None = None,
 ) -> SourceStart:
     """Put a source on the solve plane.
 
@@ -436,6 +447,12 @@ def place_source(
     snap_radius_m : float, optional
         If given, a point source on land, nodata or in a closed basin moves
         to the nearest open-water cell within this ground distance.
+    front_speed_m_s : float, optional
+        Area sources: the start front lies at ``AREA_START_RADIUS_CELLS`` cells
+        over this speed in time (plane m/s). Give the fastest speed of the
+        plane so that every area of a medium starts at the same time (the
+        one-solve envelope needs one front for all); default the fastest speed
+        around the area.
 
     Raises
     ------
@@ -454,7 +471,7 @@ def place_source(
         return _place_line(geom, grid, plane, depth_m, water, open_water, speed_plane_m_s, barrier_plane)
     return _place_area(
         geom, source, grid, plane, depth_m, water, open_water, basin_labels, basin_sizes,
-        speed_plane_m_s, barrier_plane, snap_radius_m,
+        speed_plane_m_s, barrier_plane, snap_radius_m, front_speed_m_s,
     )
 
 
@@ -582,6 +599,36 @@ def _straight_ray_times(
     t[i0, j0] = r[i0, j0] / speed[i0, j0]
     visible[i0, j0] = True
     return t, visible
+
+
+def _path_slowness(
+    xx: FloatArray,
+    yy: FloatArray,
+    x0: FloatArray,
+    y0: FloatArray,
+    x1: FloatArray,
+    y1: FloatArray,
+    sub_speed: FloatArray,
+    samples: int = 16,
+) -> tuple[FloatArray, FloatArray]:
+    """Mean slowness along straight segments, and the largest relative speed change on them.
+
+    Each segment (x0, y0)-(x1, y1) is sampled at ``samples`` points, each taking
+    the speed of the window cell it falls in (land is NaN: the slowness is NaN
+    where a segment meets land). The change is ``max / min - 1`` of those speeds.
+    """
+    dy = yy[1, 0] - yy[0, 0] if yy.shape[0] > 1 else 1.0
+    dx = xx[0, 1] - xx[0, 0] if xx.shape[1] > 1 else 1.0
+    f = (np.arange(samples) + 0.5) / samples
+    sx = x0[:, None] + (x1 - x0)[:, None] * f
+    sy = y0[:, None] + (y1 - y0)[:, None] * f
+    si = np.clip(np.rint((sy - yy[0, 0]) / dy).astype(np.intp), 0, xx.shape[0] - 1)
+    sj = np.clip(np.rint((sx - xx[0, 0]) / dx).astype(np.intp), 0, xx.shape[1] - 1)
+    c = sub_speed[si, sj]
+    with np.errstate(invalid="ignore"):
+        slowness = np.mean(1.0 / c, axis=1)
+        change = np.max(c, axis=1) / np.min(c, axis=1) - 1.0
+    return np.asarray(slowness, np.float64), np.asarray(change, np.float64)
 
 
 def _neighbour_any(mask: BoolArray, wrap: bool = False) -> BoolArray:
@@ -752,6 +799,7 @@ def _place_area(
     speed: FloatArray,
     barrier: BoolArray,
     snap_radius_m: float | None,
+    front_speed_m_s: float | None = None,
 ) -> SourceStart:
     pgeom = _plane_geometry(_densify_for(grid, geom), plane)
     cell_area = plane.spacing_m[0] * plane.spacing_m[1]
@@ -763,13 +811,17 @@ def _place_area(
             TtmapWarning,
             stacklevel=4,
         )
-        return _place_point(
-            rp, source, grid, plane, depth_m, water, open_water, labels, sizes, speed, barrier,
-            snap_radius_m,
+        return dataclasses.replace(
+            _place_point(
+                rp, source, grid, plane, depth_m, water, open_water, labels, sizes, speed, barrier,
+                snap_radius_m,
+            ),
+            as_point=True,
         )
     minx, miny, maxx, maxy = pgeom.bounds
-    margin = 3.0 * max(plane.spacing_m)
-    rows, cols = _phi_window(plane, minx, maxx, miny, maxy, margin)
+    h = max(plane.spacing_m)
+    r0 = AREA_START_RADIUS_CELLS * h
+    rows, cols = _phi_window(plane, minx, maxx, miny, maxy, r0 + 3.0 * h)
     if rows.size == 0 or cols.size == 0:
         raise SourceError(f"area source {geom.wkt[:80]} lies outside the grid; check its coordinates")
     xx, yy = _window_xy(plane, rows, cols, ref_x=0.5 * (minx + maxx))
@@ -788,15 +840,40 @@ def _place_area(
             f"area source around {_fmt_position(grid, c.x, c.y)} covers no open water cell "
             f"({_depth_text(d)} there); move it offshore or check its coordinates and CRS"
         )
-    # Signed time from the area's edge, exact distance only on the edge band.
-    near = region ^ ndimage.binary_erosion(region, structure=_FOUR, border_value=1)
-    near |= ndimage.binary_dilation(region, structure=_FOUR) & ~region
-    band_t = np.full(region.shape, np.nan)
-    idx = np.nonzero(near & sub_open)
-    dist = shapely.distance(pgeom.boundary, shapely.points(xx[idx], yy[idx]))
-    band_t[idx] = np.where(region[idx], -dist, np.where(inside_geo[idx], 0.0, dist)) / sub_speed[idx]
+    # Start tube outside the area (as around a point): water cells within r0 of the area
+    # whose straight path to its nearest point stays in water, with speeds within
+    # POINT_MAX_SPEED_CHANGE along it, take the straight-ray time (distance times the mean
+    # slowness along the path); the front starts at r0 over the fastest speed there.
+    near = ~inside_geo & sub_open & open_sub
+    dist = np.full(region.shape, np.inf)
+    idx = np.nonzero(near)
+    dist[idx] = shapely.distance(pgeom, shapely.points(xx[idx], yy[idx]))
+    t_est = np.where(inside_geo, 0.0, np.inf)
+    seen = np.zeros(region.shape, dtype=bool)
+    ci = np.nonzero(near & (dist < r0 + 1.5 * h))
+    if ci[0].size:
+        foot = shapely.get_coordinates(
+            shapely.shortest_line(pgeom, shapely.points(xx[ci], yy[ci]))
+        ).reshape(-1, 2, 2)[:, 0, :]
+        slowness, change = _path_slowness(xx, yy, foot[:, 0], foot[:, 1], xx[ci], yy[ci], sub_speed)
+        ok = np.isfinite(slowness)
+        seen[ci] = ok
+        t_est[ci] = np.where(ok, dist[ci] * slowness, np.inf)
+        steady = np.zeros(region.shape, dtype=bool)
+        steady[ci] = ok & (change <= POINT_MAX_SPEED_CHANGE)
+    else:
+        steady = seen
+    tube = steady & (dist < r0)
+    c_max = float(np.nanmax(sub_speed[region | tube]))
+    contour_t = r0 / max(c_max, front_speed_m_s or 0.0)
+    area_cells = region  # the area's own water cells (the count reported), tube excluded
+    region = region | (tube & (t_est < contour_t))
+    # Band: straight-ray times where the path is in water; elsewhere one step from the
+    # region (in _start_from_region).
+    band_t = np.where(region | seen, t_est, np.nan)
     native_zero = None
-    start_cells = 0
+    ai, aj = np.nonzero(area_cells)
+    start_cells = int(np.unique(plane.native_row[rows[ai]] * grid.shape[1] + cols[aj]).size)
     if grid.is_geographic:
         native_zero = _native_inside(geom, grid, plane, open_water)
         start_cells = int(native_zero[0].size)
@@ -806,12 +883,16 @@ def _place_area(
                 np.concatenate([native_zero[0], native_zero[0][first]]),
                 np.concatenate([native_zero[1], np.full(int(first.sum()), grid.cols - 1, np.intp)]),
             )
-    return _start_from_region(
-        plane, rows, cols, region, sub_open, np.zeros(region.shape), band_t, sub_speed, 0.0,
+    start = _start_from_region(
+        plane, rows, cols, region, sub_open, np.where(region, t_est, 0.0), band_t, sub_speed,
+        contour_t,
         Placement(float(c.x), float(c.y), min(max(row, 0), grid.rows - 1),
                   min(max(col, 0), grid.cols - 1), d, 0.0, start_cells),
         grid.shape,
         native_zero,
+    )
+    return dataclasses.replace(
+        start, placement=dataclasses.replace(start.placement, start_cells=start_cells)
     )
 
 

@@ -15,6 +15,7 @@ Two steps, so that many sources can share one speed field:
 
 from __future__ import annotations
 
+import functools
 import threading
 import time
 from dataclasses import asdict, dataclass, field
@@ -191,6 +192,17 @@ class Medium:
             far_field=self.settings["far_field"],
         )
 
+    @functools.cached_property
+    def max_speed_plane_m_s(self) -> float:
+        """The fastest speed on the solve plane's water (m/s in plane metres), cached.
+
+        Area sources start at a front this far in time from their tube
+        (:func:`ttmap.sources.place_source`), the same for every area of the
+        medium. Read first under the solve lock, before any solve borrows speeds.
+        """
+        water = ~self.barrier_plane
+        return float(np.max(self.speed_plane_m_s[water])) if water.any() else 1.0
+
     def source_start(self, source: Source, *, snap_radius_m: float | None = None) -> SourceStart:
         """The start a solve from ``source`` would use, without solving.
 
@@ -219,6 +231,7 @@ class Medium:
                 speed_plane_m_s=self.speed_plane_m_s,
                 barrier_plane=self.barrier_plane,
                 snap_radius_m=snap_radius_m,
+                front_speed_m_s=self.max_speed_plane_m_s,
             )
 
     def travel_time(
@@ -268,6 +281,7 @@ class Medium:
                 speed_plane_m_s=self.speed_plane_m_s,
                 barrier_plane=self.barrier_plane,
                 snap_radius_m=snap_radius_m,
+                front_speed_m_s=self.max_speed_plane_m_s,
             )
             t_plane = fast_march_s(
                 self.speed_plane_m_s,

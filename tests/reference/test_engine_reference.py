@@ -431,6 +431,65 @@ def test_rectangle_source_in_grid_crs_matches_distance_from_edge():
     np.testing.assert_allclose(t[far, col], dist_m[far] / C_4000_M_S, rtol=5e-3)
 
 
+def _area_shapes(x0: float, y0: float, h: float) -> dict[str, shapely.Polygon]:
+    """A rectangle off the cell lines and a thin triangle (tip angle about 12 degrees)."""
+    return {
+        "rectangle": shapely.box(x0 + 30 * h, y0 + 35 * h, x0 + 42.3 * h, y0 + 52.6 * h),
+        "thin triangle": shapely.Polygon(
+            [(x0 + 25 * h, y0 + 30 * h), (x0 + 62 * h, y0 + 44 * h), (x0 + 31 * h, y0 + 41.5 * h)]
+        ),
+    }
+
+
+@pytest.mark.parametrize("crs", ["projected", "lonlat"])
+def test_area_sources_match_distance_to_polygon_over_speed(crs):
+    """Uniform depth: an area's first arrival is its distance over sqrt(g h) (docs/references.md §8).
+
+    Distance to the polygon: planar (shapely) on the projected grid; on the lon/lat
+    grid the least WGS84 geodesic distance (Karney 2013, J. Geodesy 87:43-55 via
+    pyproj.Geod; docs/references.md §10) to the polygon's edge sampled every 1/20 cell.
+    """
+    n = 90
+    rows, cols = np.mgrid[0:n, 0:n]
+    if crs == "projected":
+        h, x0, y0 = 2000.0, 500_000.0, 4_000_000.0
+        grid = Grid((n, n), Affine(h, 0.0, x0, 0.0, -h, y0 + n * h), "EPSG:32654")
+        cell_m = h
+    else:
+        h, x0, y0 = 0.02, 142.0, 38.0
+        grid = Grid((n, n), Affine(h, 0.0, x0, 0.0, -h, y0 + n * h), "EPSG:4326")
+        cell_m = max(grid.cell_size_m())
+    x, y = (np.asarray(v) for v in grid.xy(rows, cols))
+    geod = Geod(ellps="WGS84")
+    for name, poly in _area_shapes(x0, y0, h).items():
+        src = Source.from_geometry(poly, crs=grid.crs)
+        t = compute_travel_time(np.full(grid.shape, DEPTH_M), grid, src).arrival_time_s
+        if crs == "projected":
+            dist_m = shapely.distance(poly, shapely.points(x, y))
+        else:
+            edge = shapely.get_coordinates(shapely.segmentize(poly.exterior, h / 20.0))
+            dist_m = np.full(x.shape, np.inf)
+            for bx, by in edge:
+                dist_m = np.minimum(
+                    dist_m, geod.inv(np.full(x.shape, bx), np.full(x.shape, by), x, y)[2]
+                )
+            dist_m[shapely.contains_xy(poly, x, y)] = 0.0
+        exact_s = dist_m / C_4000_M_S
+        beyond3 = dist_m > 3 * cell_m
+        beyond20 = dist_m > 20 * cell_m
+        rel = np.abs(t - exact_s) / np.where(beyond3, exact_s, 1.0)
+        print(f"{crs} {name}: worst beyond 3 cells {rel[beyond3].max():.3%}, beyond 20 cells "
+              f"{rel[beyond20].max():.3%}, median beyond 3 cells {np.median(rel[beyond3]):.3%}")
+        # Measured with the 3-cell start tube outside the area (docs/method.md, "Source
+        # start"): 0.95 % / 0.96 % (projected rectangle / triangle) and 0.98 % / 1.26 %
+        # (lon/lat) beyond 3 cells; the one-cell start band before lost the triangle's tip
+        # (3 % here). The 0.5 % goal beyond 3 cells is not met: the first cells outside the
+        # tube, off the corners, carry the first-order error of a front of 3-4 cells radius.
+        assert rel[beyond3].max() <= 0.015
+        assert rel[beyond20].max() <= 0.0075
+        assert np.median(rel[beyond3]) <= 0.002
+
+
 def test_rupture_at_lonlat_on_utm_grid():
     # Grid in UTM zone 54N centred on (141 E, 38 N), on the zone's central meridian.
     to_utm = Transformer.from_crs("EPSG:4326", "EPSG:32654", always_xy=True)

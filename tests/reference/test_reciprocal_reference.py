@@ -117,16 +117,18 @@ def test_sites_by_scenarios_equal_direct_solves(case):
           f"median {np.median(far):.4%}, share within 0.5 % {share:.1%}; worst over all pairs "
           f"{max(all_cells):.2f} cell travel times")
     assert far.size > 50
-    # The issue asks for 0.5 % beyond 20 cells. Unattainable between these two discretisations
+    # The issue asks for 0.5 % beyond 20 cells. Not met between these two discretisations
     # (docs/references.md section 8: discretisation error breaks reciprocity; docs/reciprocal.md,
-    # "Accuracy"): in water of constant depth the reciprocal table is within 0.1 % of the exact
-    # time (test below) while the direct solve of an area is up to 2.3 % late where the first
-    # point reached is a sharp corner of the area (its start band is one cell thick). Measured
-    # here: worst 1.37 % (projected) / 0.90 % (lon/lat), 0.59 of a cell's travel time.
-    assert far.max() <= 0.015
-    assert share >= 0.85
-    assert np.median(far) <= 0.002
-    assert max(all_cells) <= 0.75
+    # "Accuracy"): the direct solve of an area starts from a 3-cell tube of straight-ray times
+    # around it and marches on with first-order error from the tube's rounded corners, while the
+    # table reads the site's solve at exact points of the area; point sources alone differ by up
+    # to 0.43 % here. Measured: worst 0.66 % (projected) / 0.79 % (lon/lat), 0.26 of a cell's
+    # travel time, 97.5 % / 96.2 % of pairs within 0.5 % (one-cell start band before: 1.37 % /
+    # 0.90 %, 0.59 of a cell).
+    assert far.max() <= 0.01
+    assert share >= 0.95
+    assert np.median(far) <= 0.0015
+    assert max(all_cells) <= 0.4
 
 
 def test_sites_by_scenarios_equal_exact_times_in_constant_depth():
@@ -156,6 +158,7 @@ def test_sites_by_scenarios_equal_exact_times_in_constant_depth():
           f"{len(rel)} pairs beyond 20 cells; direct solves worst {max(rel_direct):.4%}")
     assert len(rel) > 50
     assert max(rel) <= 0.0025  # measured 0.10 %
+    assert max(rel_direct) <= 0.005  # measured 0.27 % (one-cell start band before: 2.25 %)
 
 
 def _boundary(labels: np.ndarray) -> np.ndarray:
