@@ -251,3 +251,108 @@ def test_refuses_overlap_outside_and_dry_nests(run_cli: Any, tmp_path: Path) -> 
     result = run_cli("scenario", "run", path, expect=1)
     assert "nest[1].path: nest 'harbour' reaches outside the crop window crop_lonlat" in result.stderr
     assert not (tmp_path / "out").exists()
+
+
+# ---------------------------------------------------------------------------
+# Sites x scenarios with a nest: sites inside it read on the nest's grid
+# ---------------------------------------------------------------------------
+
+SITES_TABLE = '\n[sites]\npath = "{sites}"\n'
+
+
+def _csv_rows(path: Path) -> list[dict[str, str]]:
+    import csv
+
+    lines = [ln for ln in path.read_text().splitlines() if not ln.startswith("#")]
+    return list(csv.DictReader(lines))
+
+
+@pytest.fixture(scope="module")
+def site_runs(tmp_path_factory: pytest.TempPathFactory) -> dict[str, Any]:
+    """One scenario with the harbour nest and the demo towns, the same without the nest, and the
+    map job of the same point source with ``--nest`` (same crop, period and time limit)."""
+    from click.testing import CliRunner
+
+    from ttmap.cli.main import cli
+
+    folder = tmp_path_factory.mktemp("scenario_nest_sites")
+    harbour = _harbour(folder)
+    sites = (DEMO / "demo_sites.csv").as_posix()
+    out: dict[str, Any] = {"folder": folder}
+    for key, nests in (("nested", '[[nest]]\npath = "harbour.tif"\nname = "harbour"\n'), ("plain", "")):
+        path = _write(folder, nests, name=f"{key}.toml", extra=SITES_TABLE.format(sites=sites))
+        path.write_text(path.read_text().replace('folder = "out"', f'folder = "{key}"'))
+        result = CliRunner().invoke(cli, ["scenario", "run", str(path)])
+        assert result.exit_code == 0, result.output + repr(result.exception)
+        out[key] = _csv_rows(folder / key / "sites_x_scenarios.csv")
+    result = CliRunner().invoke(cli, [
+        "map", str(DEMO / "demo_bathymetry.tif"), "--source", "-144.9,-34.2",
+        "--crop-lonlat", "-145.5,-36.0,-141.5,-33.0", "--period-s", "300", "--max-time-h", "3",
+        "--nest", str(harbour), "--sites", sites, "--no-map", "--no-report", "--no-coast",
+        "--out", str(folder / "map"),
+    ])
+    assert result.exit_code == 0, result.output + repr(result.exception)
+    out["map"] = _csv_rows(folder / "map" / "sites.csv")
+    return out
+
+
+def _same(a: str, b: str) -> bool:
+    try:
+        x, y = float(a), float(b)
+    except ValueError:
+        return a == b
+    if math.isnan(x) or math.isnan(y):
+        return math.isnan(x) and math.isnan(y)
+    return abs(x - y) <= 1e-6 * max(1.0, abs(x)) + 0.01  # float32 minutes, written to 2 decimals
+
+
+def test_town_in_the_nest_reads_as_the_map_job_reads_it(site_runs: dict[str, Any]) -> None:
+    nested = {r["name"]: r for r in site_runs["nested"]}
+    mapped = {r["name"]: r for r in site_runs["map"]}
+    town = nested["Saltmarrow Beach"]
+    assert town["grid"] == "harbour" and town["scenario"] == "offshore"
+    # the map job's site table columns, in its order, are those of the scenario table
+    map_cols = list(site_runs["map"][0])
+    sc_cols = [c for c in site_runs["nested"][0] if c not in ("scenario", "earliest_for_site")]
+    assert sc_cols == map_cols
+    assert map_cols.index("grid") == map_cols.index("status") + 1
+    assert sc_cols.index("grid") == sc_cols.index("status") + 1
+    assert sc_cols.index("basin_front_min") == sc_cols.index("grid") + 1
+    for col in map_cols:
+        assert _same(town[col], mapped["Saltmarrow Beach"][col]), (col, town[col], mapped["Saltmarrow Beach"][col])
+    # on the 50 m nest the town is read much closer than on the 1 arc-minute basin grid, and its
+    # basin reading is the plain run's front
+    plain = {r["name"]: r for r in site_runs["plain"]}
+    assert float(town["moved_m"]) < float(plain["Saltmarrow Beach"]["moved_m"])
+    assert _same(town["basin_front_min"], plain["Saltmarrow Beach"]["front_min"])
+    assert float(town["front_min"]) != float(town["basin_front_min"])
+
+
+def test_moved_distance_in_the_nest_is_the_ground_distance(site_runs: dict[str, Any]) -> None:
+    """moved_m of the nested town against the WGS84 geodesic from the town to the nearest reached
+    nest cell centre (pyproj.Geod, Karney 2013), found here by brute force on the nest raster."""
+    from pyproj import Geod, Transformer
+
+    town = next(r for r in site_runs["nested"] if r["name"] == "Saltmarrow Beach")
+    front, tr, crs = _read(site_runs["folder"] / "nested" / "arrival_offshore_front_nest-harbour.tif")
+    rows, cols = np.nonzero(np.isfinite(front))
+    x = tr.c + (cols + 0.5) * tr.a
+    y = tr.f + (rows + 0.5) * tr.e
+    lon, lat = Transformer.from_crs(crs, "EPSG:4326", always_xy=True).transform(x, y)
+    site = {"lon": -142.4553, "lat": -34.6250}  # demo_sites.csv
+    _, _, d = Geod(ellps="WGS84").inv(np.full(lon.size, site["lon"]), np.full(lon.size, site["lat"]), lon, lat)
+    k = int(np.argmin(d))
+    assert float(town["moved_m"]) == pytest.approx(float(d[k]), abs=1.0)
+    assert float(town["front_min"]) == pytest.approx(float(front[rows[k], cols[k]]), abs=0.01)
+
+
+def test_towns_outside_the_nest_are_unchanged(site_runs: dict[str, Any]) -> None:
+    plain = {r["name"]: r for r in site_runs["plain"]}
+    others = [r for r in site_runs["nested"] if r["name"] != "Saltmarrow Beach"]
+    assert len(others) == len(plain) - 1 >= 6
+    for row in others:
+        assert row["grid"] == "basin"
+        assert row["basin_front_min"] == row["front_min"]
+        for col, value in plain[row["name"]].items():
+            assert row[col] == value, (row["name"], col)
+    assert "grid" not in site_runs["plain"][0]  # a run without nests keeps its columns

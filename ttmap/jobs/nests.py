@@ -84,8 +84,9 @@ VECTORS_NOTE: str = (
 SCENARIO_NESTS_NOTE: str = (
     "every task (each scenario's front and periods) solves each nest from its basin arrival times on "
     "the nest's edge and writes arrival_<task>_nest-<name>.tif beside its raster, before its task "
-    "record; the envelope, the differences and the sites x scenarios table are on the basin grid "
-    "(the nests give rasters only)"
+    "record; the envelope and the differences are on the basin grid; the sites x scenarios table "
+    "(direct path) reads each site inside a nest on the nest's grid from the nest's rasters, with "
+    "the grid and basin_front_min columns of the map job's site table"
 )
 
 
@@ -243,13 +244,15 @@ def nested_site_table(
         sub = _subset(sites, idx)
         if gname == BASIN_GRID:
             front, periods, depth = basin_front, dict(basin_periods), basin_depth_m
+            water: dict[str, Any] = {}
         else:
             nest = nest_fronts[gname]
             front = as_travel_time(basin_front, nest)
             periods = {p: as_travel_time(basin_periods[p], r)
                        for p, r in nest_periods.get(gname, {}).items() if p in basin_periods}
             depth = nest.medium.depth_m
-        snapped = snap_sites(sub, front.grid, front, search_radius_m=search_radius_m, depth_m=depth)
+            water = {"water": nest.medium.water, "open_water": nest.medium.open_water}
+        snapped = snap_sites(sub, front.grid, front, search_radius_m=search_radius_m, depth_m=depth, **water)
         parts.append((idx, site_table(sub, snapped, front, periods, **table_options)))
     basin_only = site_table(sites, snap_sites(sites, basin_front.grid, basin_front, search_radius_m=search_radius_m,
                                               depth_m=basin_depth_m), basin_front, {}, **table_options)

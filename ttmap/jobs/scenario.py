@@ -424,6 +424,12 @@ def _write_sites_x_scenarios(
         medium = prepare_medium(bathy.depth_m, bathy.grid, floor_depth_m=spec.floor_depth_m,
                                 far_field=spec.far_field, earth=spec.earth)  # type: ignore[arg-type]
         del bathy
+        nest_fields = _nest_site_fields(sf, spec, fronts, energy, by_name)
+        site_grids = None
+        if nest_fields:
+            from ttmap.jobs.nests import grid_of_sites
+
+            site_grids = grid_of_sites(sites, {k: v["grid"] for k, v in nest_fields.items()})
         written = write_sites_by_scenarios(
             str(out), sites, dict(fronts), energy, overwrite=overwrite,
             search_radius_m=opts.search_radius_m,
@@ -434,8 +440,9 @@ def _write_sites_x_scenarios(
             speed_uncertainty=opts.speed_uncertainty,
             origin_time_utc=opts.origin_time_utc,
             depth_m=medium.depth_m, water=medium.water, open_water=medium.open_water,
+            nests=nest_fields, site_grids=site_grids,
         )
-        del medium
+        del medium, nest_fields
     except InputDataError as err:  # a bad site row must not lose the finished solves
         return {"path": sf.sites_path, "skipped": f"site table not written ({err})"}
     table = written.pop("table")
@@ -447,6 +454,46 @@ def _write_sites_x_scenarios(
         "options": {k: v for k, v in options_record(opts).items() if k != "path"},
         "files": {k: v for k, v in written.items() if isinstance(v, str)},
     }
+
+
+def _nest_site_fields(sf: ScenarioFile, spec: Any, fronts: Mapping[str, str],
+                      energy: Mapping[tuple[str, float], str],
+                      by_name: Mapping[str, Any]) -> dict[str, dict[str, Any]]:
+    """Per nest of the run, what the sites inside it are read from (direct path).
+
+    Each nest's arrival rasters of every finished front (and of each energy
+    raster whose task wrote one), its grid, and its medium's depths and water
+    masks as :func:`ttmap.nesting.solve_nest` builds them (the front's speed
+    model), so a site in the nest is snapped as the map job snaps it. A nest
+    missing the raster of some finished front is left out (its sites stay on
+    the basin grid).
+    """
+    from ttmap.io.raster import read_bathymetry
+    from ttmap.traveltime import prepare_medium
+
+    out: dict[str, dict[str, Any]] = {}
+    for n in sf.nests:
+        front_paths: dict[str, str] = {}
+        for sc in fronts:
+            s = by_name.get(f"{sc}_front")
+            path = s.nests.get(n.name) if s is not None else None
+            if path:
+                front_paths[sc] = path
+        if not front_paths or len(front_paths) != len(fronts):
+            continue
+        energy_paths: dict[tuple[str, float], str] = {}
+        for sc, p in energy:
+            s = by_name.get(f"{sc}_{sf.speed.period_speed}_T{p:g}s")
+            path = s.nests.get(n.name) if s is not None else None
+            if path:
+                energy_paths[(sc, p)] = path
+        bathy = read_bathymetry(n.path, band=spec.band, depth_positive=spec.depth_positive)
+        medium = prepare_medium(bathy.depth_m, bathy.grid, floor_depth_m=spec.floor_depth_m,
+                                far_field=spec.far_field, earth=spec.earth)
+        out[n.name] = {"grid": bathy.grid, "fronts": front_paths, "energy": energy_paths,
+                       "depth_m": medium.depth_m, "water": medium.water, "open_water": medium.open_water}
+        del bathy, medium
+    return out
 
 
 def sites_table_summary(path: str | None, table: Mapping[str, Sequence[Any]], *,
@@ -736,6 +783,8 @@ def write_sites_by_scenarios(
     *,
     grid: Grid | None = None,
     overwrite: bool = False,
+    nests: Mapping[str, Mapping[str, Any]] | None = None,
+    site_grids: Sequence[str] | None = None,
     **options: Any,
 ) -> dict[str, Any]:
     """Write ``sites_x_scenarios.csv``, ``earliest_by_site.csv`` and ``sites_x_scenarios.png``.
@@ -754,6 +803,16 @@ def write_sites_by_scenarios(
         The grid the rasters must share; default that of the first front.
     overwrite : bool
         Replace existing files (checked before anything is read).
+    nests : mapping of nest name to mapping, optional
+        Per nest its ``grid``, ``fronts`` (scenario -> nest raster, every
+        scenario of ``front_paths``), ``energy`` ((scenario, period_s) ->
+        nest raster) and its medium's ``depth_m``, ``water`` and
+        ``open_water``.
+    site_grids : sequence of str, optional
+        Per site the grid covering it (:func:`ttmap.jobs.nests.grid_of_sites`).
+        With ``nests``, a site inside a nest is snapped and read on the nest's
+        grid, and the table gains ``grid`` and ``basin_front_min``
+        (:func:`ttmap.products.compare.sites_by_scenarios_on_grids`).
     **options
         Budget and snapping options of
         :func:`ttmap.products.compare.sites_by_scenarios`.
@@ -786,13 +845,32 @@ def write_sites_by_scenarios(
     first_name, first_path = next(iter(front_paths.items()))
     ref = grid if grid is not None else read_minutes(first_path, what=f"front of {first_name}")[1]
 
-    def field(path: str | os.PathLike[str], what: str) -> Any:
-        return lambda: read_minutes(path, ref, what=what)[0]
+    def field(path: str | os.PathLike[str], what: str, on: Grid) -> Any:
+        return lambda: read_minutes(path, on, what=what)[0]
 
-    fronts = {n: field(p, f"front of {n}") for n, p in front_paths.items()}
-    energy = {k: field(p, f"energy of {k[0]}, T = {float(k[1]):g} s")
-              for k, p in (energy_paths or {}).items()}
+    def fields(fp: Mapping[str, Any], ep: Mapping[tuple[str, float], Any], on: Grid,
+               where: str = "") -> tuple[dict[str, Any], dict[tuple[str, float], Any]]:
+        return ({n: field(p, f"front of {n}{where}", on) for n, p in fp.items()},
+                {k: field(p, f"energy of {k[0]}, T = {float(k[1]):g} s{where}", on) for k, p in ep.items()})
+
+    fronts, energy = fields(front_paths, energy_paths or {}, ref)
     table = sites_by_scenarios(sites, ref, fronts, energy, **options)
+    if nests and site_grids is not None:
+        from ttmap.io.sites import SiteList
+        from ttmap.products.compare import sites_by_scenarios_on_grids
+
+        parts: dict[str, tuple[list[int], dict[str, list[Any]]]] = {}
+        for nest, nf in nests.items():
+            idx = [i for i, w in enumerate(site_grids) if w == nest]
+            if not idx:
+                continue
+            sub = SiteList(tuple(sites.sites[i] for i in idx), sites.crs, sites.path)
+            nfronts, nenergy = fields({n: nf["fronts"][n] for n in front_paths}, nf.get("energy") or {},
+                                      nf["grid"], f" (nest {nest})")
+            nopts = {**options, "depth_m": nf.get("depth_m"), "water": nf.get("water"),
+                     "open_water": nf.get("open_water")}
+            parts[nest] = (idx, sites_by_scenarios(sub, nf["grid"], nfronts, nenergy, **nopts))
+        table = sites_by_scenarios_on_grids(table, site_grids, parts)
     first = earliest_by_site(table)
     table_notes, first_notes = sites_by_scenarios_notes(**options)
     decimals = {k: 2 for k in table if k.endswith("_min") or k.startswith("minutes_")}

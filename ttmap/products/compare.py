@@ -52,6 +52,7 @@ __all__ = [
     "comparison_tags",
     "sites_by_scenarios",
     "sites_by_scenarios_from_values",
+    "sites_by_scenarios_on_grids",
     "sites_by_scenarios_notes",
     "earliest_by_site",
     "render_sites_by_scenarios",
@@ -450,6 +451,72 @@ def sites_by_scenarios_from_values(
             f = float(fronts[j, i])
             cols["earliest_for_site"].append(bool(math.isfinite(f) and f == float(first[i])))
     return cols
+
+
+def sites_by_scenarios_on_grids(
+    basin: Mapping[str, Sequence[Any]],
+    where: Sequence[str],
+    parts: Mapping[str, tuple[Sequence[int], Mapping[str, Sequence[Any]]]],
+) -> dict[str, list[Any]]:
+    """Merge per-grid sites x scenarios tables: each site's rows from the finest grid covering it.
+
+    Parameters
+    ----------
+    basin : mapping of column to list
+        :func:`sites_by_scenarios` of every site on the basin grid.
+    where : sequence of str
+        Per site (file order) the name of the grid that reads it; a name not
+        in ``parts`` (the basin's) keeps the basin's rows.
+    parts : mapping of grid name to (site indices, table)
+        :func:`sites_by_scenarios` of the sites ``indices`` (in that order)
+        on that grid (a nest), with the basin table's scenarios in its order.
+
+    Returns
+    -------
+    dict of str to list
+        The basin table's columns and rows (site-major, scenario-minor), with
+        the rows of a site inside a nest taken from that nest's table, and
+        after ``status`` the column ``grid`` (the grid read) and
+        ``basin_front_min`` (the front the basin grid alone gives: equal to
+        ``front_min`` outside the nests), as in the map job's site table.
+
+    Raises
+    ------
+    InputDataError
+        A part whose scenarios, columns or row count do not match.
+    """
+    n_rows = len(basin["name"])
+    n_sites = len(where)
+    if n_sites == 0 or n_rows % n_sites:
+        raise InputDataError(f"{n_rows} table rows do not divide among {n_sites} sites")
+    n_sc = n_rows // n_sites
+    scen = list(basin["scenario"][:n_sc])
+    source: dict[int, tuple[str, int]] = {}  # site -> (grid, its index in that grid's table)
+    for gname, (idx, table) in parts.items():
+        if len(table["name"]) != len(idx) * n_sc or list(table["scenario"][:n_sc]) != scen:
+            raise InputDataError(
+                f"the table of grid {gname!r} does not hold the basin table's scenarios {scen} for "
+                f"its {len(idx)} sites"
+            )
+        missing = [k for k in basin if k not in table]
+        if missing:
+            raise InputDataError(f"the table of grid {gname!r} lacks the columns {missing}")
+        for k, i in enumerate(idx):
+            if where[i] == gname:
+                source[int(i)] = (gname, k)
+    out: dict[str, list[Any]] = {}
+    for key in basin:
+        col: list[Any] = []
+        for i in range(n_sites):
+            g = source.get(i)
+            for j in range(n_sc):
+                col.append(basin[key][i * n_sc + j] if g is None
+                           else parts[g[0]][1][key][g[1] * n_sc + j])
+        out[key] = col
+        if key == "status":
+            out["grid"] = [str(where[i]) for i in range(n_sites) for _ in range(n_sc)]
+            out["basin_front_min"] = list(basin["front_min"])
+    return out
 
 
 def _nowhere(sites: Any) -> list[Any]:
