@@ -538,7 +538,8 @@ def _write_site_table(
 
         table = nested_site_table(
             sites, front, periods, front_depth_m, nest_kept["front"],
-            _nest_periods(sets, nest_kept), search_radius_m=opts.search_radius_m, **table_options,
+            _nest_periods(sets, nest_kept), search_radius_m=opts.search_radius_m, basin_water=front_water,
+            **table_options,
         )
     else:
         snapped = snap_sites(sites, grid, front, search_radius_m=opts.search_radius_m,

@@ -223,9 +223,13 @@ def nested_site_table(
     nest_periods: Mapping[str, Mapping[float, NestResult]],
     *,
     search_radius_m: float,
+    basin_water: tuple[Any, Any] | None = None,
     **table_options: Any,
 ) -> SiteTable:
     """The site table with each site read on the finest grid covering it.
+
+    ``basin_water`` is the basin medium's ``(water, open_water)``, for the same
+    snapping status words as a run without nests.
 
     Builds :func:`ttmap.products.sites.site_table` per grid (the basin and each
     nest, each site snapped on its own grid) and merges the rows in the site
@@ -244,7 +248,8 @@ def nested_site_table(
         sub = _subset(sites, idx)
         if gname == BASIN_GRID:
             front, periods, depth = basin_front, dict(basin_periods), basin_depth_m
-            water: dict[str, Any] = {}
+            water: dict[str, Any] = ({} if basin_water is None
+                                     else {"water": basin_water[0], "open_water": basin_water[1]})
         else:
             nest = nest_fronts[gname]
             front = as_travel_time(basin_front, nest)
@@ -254,8 +259,9 @@ def nested_site_table(
             water = {"water": nest.medium.water, "open_water": nest.medium.open_water}
         snapped = snap_sites(sub, front.grid, front, search_radius_m=search_radius_m, depth_m=depth, **water)
         parts.append((idx, site_table(sub, snapped, front, periods, **table_options)))
+    basin_masks = {} if basin_water is None else {"water": basin_water[0], "open_water": basin_water[1]}
     basin_only = site_table(sites, snap_sites(sites, basin_front.grid, basin_front, search_radius_m=search_radius_m,
-                                              depth_m=basin_depth_m), basin_front, {}, **table_options)
+                                              depth_m=basin_depth_m, **basin_masks), basin_front, {}, **table_options)
     first = parts[0][1]
     order = {i: (k, j) for k, (idx, _) in enumerate(parts) for j, i in enumerate(idx)}
     columns: dict[str, list[Any]] = {}
