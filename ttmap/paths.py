@@ -22,6 +22,19 @@ within half a cell of it; on the edge or inside of an area source, where the
 times are flat), where it runs into cells without a time (land, unreached),
 at ``stop_time_s``, or after ``max_steps``. It is returned from its source
 end to the site, with the arrival time interpolated at every vertex.
+
+Given the solve's speeds (``speed_m_s``), each descent path is then bent to
+the least travel time through them with its ends fixed (Fermat's principle;
+ray bending, as in seismic ray tracing): from coarse to fine vertex spacing
+(every 16th, 8th, 4th vertex of the descent), every other interior vertex
+moves to the best of nine positions around it (a cell's half, quarter and
+eighth), the segments' times summed over each sample's own cell speed (no
+interpolation, so a speed step stays a step). The descent alone follows the
+gradient of a field that resolves a speed step to a cell: along a shelf edge
+the slow cells next to it carry the direct wave earlier than the first deep
+cells, and a head wave turns off the edge a few cells late; bending puts the
+turn where Snell's law does. The times along a bent path are its own travel
+time from the source end, scaled to the field's times at both ends.
 """
 
 from __future__ import annotations
@@ -203,7 +216,8 @@ class _Field:
 _BEND_STRIDES = (16, 8, 4)
 _BEND_ITERS = 12
 _BEND_MOVE_CELLS = 0.5
-_MOVES = np.array([[0, 0], [1, 0], [-1, 0], [0, 1], [0, -1], [1, 1], [1, -1], [-1, 1], [-1, -1]], dtype=float)
+_MOVES = np.array([[0, 0], [1, 0], [-1, 0], [0, 1], [0, -1], [1, 1], [1, -1], [-1, 1], [-1, -1]],
+                  dtype=float)
 
 
 class _Slowness:
@@ -219,7 +233,8 @@ class _Slowness:
     def __init__(self, grid: Grid, speed_m_s: Any, earth: EarthModel, f: _Field) -> None:
         c = np.asarray(speed_m_s, dtype=np.float64)
         if c.shape != grid.shape:
-            raise InputDataError(f"speed array shape {c.shape} differs from the grid shape {grid.shape}")
+            raise InputDataError(
+                f"speed array shape {c.shape} differs from the grid shape {grid.shape}")
         with np.errstate(invalid="ignore", divide="ignore"):
             self.s = np.where(np.isfinite(c) & (c > 0.0), 1.0 / c, np.inf)
         self.f = f
@@ -236,7 +251,8 @@ class _Slowness:
         nu = self.a / np.sqrt(w)
         return nu * np.cos(phi) * self.f.sx, nu * (1.0 - self.e2) / w * self.f.dlat
 
-    def time(self, v0: FloatArray, u0: FloatArray, v1: FloatArray, u1: FloatArray, n: int) -> FloatArray:
+    def time(self, v0: FloatArray, u0: FloatArray, v1: FloatArray, u1: FloatArray,
+             n: int) -> FloatArray:
         """Travel time of the straight index segments (v0, u0) -> (v1, u1), ``n`` samples each."""
         frac = (np.arange(n) + 0.5) / n
         dv, du = v1 - v0, u1 - u0
@@ -274,7 +290,8 @@ def _bend(slow: _Slowness, v: FloatArray, u: FloatArray, first: BoolArray, last:
         sel = np.nonzero((local % stride == 0) | last)[0]
         sv, su = v[sel], u[sel]
         s_first, s_last = first[sel], last[sel]
-        sub_local = np.arange(sel.size) - np.maximum.accumulate(np.where(s_first, np.arange(sel.size), 0))
+        at = np.arange(sel.size)
+        sub_local = at - np.maximum.accumulate(np.where(s_first, at, 0))
         samples = max(4, stride)
         move = _BEND_MOVE_CELLS
         for it in range(_BEND_ITERS):
@@ -284,8 +301,10 @@ def _bend(slow: _Slowness, v: FloatArray, u: FloatArray, first: BoolArray, last:
                     continue
                 cv = sv[i, None] + move * _MOVES[None, :, 1]
                 cu = su[i, None] + move * _MOVES[None, :, 0]
-                pv, pu = np.broadcast_to(sv[i - 1, None], cv.shape), np.broadcast_to(su[i - 1, None], cu.shape)
-                nv, nu = np.broadcast_to(sv[i + 1, None], cv.shape), np.broadcast_to(su[i + 1, None], cu.shape)
+                pv = np.broadcast_to(sv[i - 1, None], cv.shape)
+                pu = np.broadcast_to(su[i - 1, None], cu.shape)
+                nv = np.broadcast_to(sv[i + 1, None], cv.shape)
+                nu = np.broadcast_to(su[i + 1, None], cu.shape)
                 cost = slow.time(pv, pu, cv, cu, samples) + slow.time(cv, cu, nv, nu, samples)
                 best = np.argmin(cost, axis=1)  # ties keep the vertex where it is (move 0 first)
                 rows = np.arange(i.size)

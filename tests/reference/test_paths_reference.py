@@ -71,7 +71,8 @@ def test_constant_depth_lonlat_path_is_the_geodesic():
     rhumb_lat = np.interp(12.0, dense[:, 0], dense[:, 1])
     assert rhumb_lat - 50.03 > 0.3  # the geodesic's bulge the check can see
     for speed in (None, m.speed_m_s):  # as traced, and bent through the speeds
-        _check_geodesic(trace_wave_paths(g, t, [site[0]], [site[1]], speed_m_s=speed)[0], src, dense, geod)
+        p = trace_wave_paths(g, t, [site[0]], [site[1]], speed_m_s=speed)[0]
+        _check_geodesic(p, src, dense, geod)
 
 
 def _check_geodesic(p, src, dense, geod):
@@ -127,7 +128,8 @@ def test_path_refracts_per_snells_law_at_a_shelf_edge(site):
         dev = shapely.distance(shapely.LineString([src, (xe, yc), site]), shapely.points(xy)) / CELL_M
         i = int(np.nonzero(xy[:, 0] < xe)[0][-1])
         y_cross = np.interp(xe, xy[i : i + 2, 0], xy[i : i + 2, 1])
-        print(f"site {site} ({'bent' if speed is not None else 'traced'}): crossing {y_cross / 1e3:.2f} km "
+        how = "bent" if speed is not None else "traced"
+        print(f"site {site} ({how}): crossing {y_cross / 1e3:.2f} km "
               f"(Snell {yc / 1e3:.2f} km), largest offset {dev.max():.3f} cells")
         assert dev.max() < 1.0
         assert abs(y_cross - yc) < CELL_M
@@ -162,11 +164,13 @@ def test_head_wave_path_along_the_shelf_edge():
         p = trace_wave_paths(g, t, [site[0]], [site[1]], speed_m_s=speed)[0]
         xy = np.asarray(p.line.coords)
         dev = shapely.distance(shapely.LineString([src, a, b, site]), shapely.points(xy)) / CELL_M
-        print(f"head wave ({'bent' if speed is not None else 'traced'}): largest offset {dev.max():.3f} cells; "
+        how = "bent" if speed is not None else "traced"
+        print(f"head wave ({how}): largest offset {dev.max():.3f} cells; "
               f"time {t[r, c]:.1f} s, analytic {head_s:.1f} s")
         assert p.end == "source"
         assert dev.max() < limit
         assert (xy[:, 0] < xe).sum() > 0.8 * len(xy)  # most of the route runs in the deep water
         assert np.all(np.diff(p.time_s) > 0.0)
         ends_s.append((p.time_s[0], p.time_s[-1]))
-    assert ends_s[1] == pytest.approx(ends_s[0], abs=1e-9)  # bending keeps the field's times at both ends
+    # bending keeps the field's times at both ends
+    assert ends_s[1] == pytest.approx(ends_s[0], abs=1e-9)
