@@ -22,6 +22,19 @@ within half a cell of it; on the edge or inside of an area source, where the
 times are flat), where it runs into cells without a time (land, unreached),
 at ``stop_time_s``, or after ``max_steps``. It is returned from its source
 end to the site, with the arrival time interpolated at every vertex.
+
+Given the solve's speeds (``speed_m_s``), each descent path is then bent to
+the least travel time through them with its ends fixed (Fermat's principle;
+ray bending, as in seismic ray tracing): from coarse to fine vertex spacing
+(every 16th, 8th, 4th vertex of the descent), every other interior vertex
+moves to the best of nine positions around it (a cell's half, quarter and
+eighth), the segments' times summed over each sample's own cell speed (no
+interpolation, so a speed step stays a step). The descent alone follows the
+gradient of a field that resolves a speed step to a cell: along a shelf edge
+the slow cells next to it carry the direct wave earlier than the first deep
+cells, and a head wave turns off the edge a few cells late; bending puts the
+turn where Snell's law does. The times along a bent path are its own travel
+time from the source end, scaled to the field's times at both ends.
 """
 
 from __future__ import annotations
@@ -36,7 +49,7 @@ import shapely
 from ttmap._typing import BoolArray, EarthModel, FloatArray, IntArray
 from ttmap.errors import InputDataError
 from ttmap.grid import Grid
-from ttmap.physics.constants import WGS84_E
+from ttmap.physics.constants import MEAN_EARTH_RADIUS_M, WGS84_A_M, WGS84_E, WGS84_E2
 
 __all__ = ["WavePath", "trace_wave_paths", "PATH_STEP_CELLS"]
 
@@ -198,7 +211,112 @@ class _Field:
         with np.errstate(invalid="ignore", divide="ignore"):
             return -gy / norm / sy, -gx / norm / self.sx, ok
 
+# Bending: levels of vertex spacing (in descent vertices), moves per level, and the
+# first move in cells (halved every _BEND_ITERS // 3 moves).
+_BEND_STRIDES = (16, 8, 4)
+_BEND_ITERS = 12
+_BEND_MOVE_CELLS = 0.5
+_MOVES = np.array([[0, 0], [1, 0], [-1, 0], [0, 1], [0, -1], [1, 1], [1, -1], [-1, 1], [-1, -1]],
+                  dtype=float)
 
+
+class _Slowness:
+    """Ground travel time of straight segments in (row, col) index space.
+
+    The slowness is the cell's own (nearest cell centre, no interpolation, so a
+    speed step stays a step); the ground length of an index displacement is
+    ``hypot(kx * du, ky * dv)`` with ``kx``, ``ky`` the metres per column and per
+    row at the sample's row (on lon/lat grids the ellipsoid's parallel and
+    meridian radii, Snyder 1987, eqs. 4-18 and 4-20).
+    """
+
+    def __init__(self, grid: Grid, speed_m_s: Any, earth: EarthModel, f: _Field) -> None:
+        c = np.asarray(speed_m_s, dtype=np.float64)
+        if c.shape != grid.shape:
+            raise InputDataError(
+                f"speed array shape {c.shape} differs from the grid shape {grid.shape}")
+        with np.errstate(invalid="ignore", divide="ignore"):
+            self.s = np.where(np.isfinite(c) & (c > 0.0), 1.0 / c, np.inf)
+        self.f = f
+        self.geo = grid.is_geographic
+        if self.geo:
+            self.a = WGS84_A_M if earth == "wgs84" else MEAN_EARTH_RADIUS_M
+            self.e2 = WGS84_E2 if earth == "wgs84" else 0.0
+        else:
+            self.kx0, self.ky0 = f.sx, f.sy0
+
+    def _k(self, v: FloatArray) -> tuple[FloatArray, FloatArray]:
+        phi = self.f.lat0 + self.f.lat_step * v
+        w = 1.0 - self.e2 * np.sin(phi) ** 2
+        nu = self.a / np.sqrt(w)
+        return nu * np.cos(phi) * self.f.sx, nu * (1.0 - self.e2) / w * self.f.dlat
+
+    def time(self, v0: FloatArray, u0: FloatArray, v1: FloatArray, u1: FloatArray,
+             n: int) -> FloatArray:
+        """Travel time of the straight index segments (v0, u0) -> (v1, u1), ``n`` samples each."""
+        frac = (np.arange(n) + 0.5) / n
+        dv, du = v1 - v0, u1 - u0
+        vs = v0[..., None] + dv[..., None] * frac
+        us = u0[..., None] + du[..., None] * frac
+        r = np.floor(vs + 0.5).astype(np.intp)
+        c = np.floor(us + 0.5).astype(np.intp)
+        if self.f.wrap:
+            c = np.mod(c, self.f.ncols)
+        rows, cols = self.s.shape
+        ok = (r >= 0) & (r < rows) & (c >= 0) & (c < cols)
+        s = np.where(ok, self.s[np.clip(r, 0, rows - 1), np.clip(c, 0, cols - 1)], np.inf)
+        if not self.geo:
+            length = np.hypot(self.kx0 * du, self.ky0 * dv)
+            return np.asarray(np.where(length > 0.0, s.mean(axis=-1) * length, 0.0))
+        kx, ky = self._k(vs)
+        step = np.hypot(kx * du[..., None], ky * dv[..., None])
+        return np.asarray(np.where(step > 0.0, s * step, 0.0).sum(axis=-1) / n)
+
+
+def _bend(slow: _Slowness, v: FloatArray, u: FloatArray, first: BoolArray, last: BoolArray) -> None:
+    """Straighten descent paths by Fermat's principle, in place (ends fixed).
+
+    ``v``, ``u`` hold all paths' vertices one after another; ``first``/``last``
+    mark each path's ends. From coarse to fine spacing, every other interior
+    vertex moves to the best of nine neighbouring positions (the two segments
+    to its neighbours take the least time), then the others; the vertices in
+    between follow linearly.
+    """
+    n = v.size
+    k = np.arange(n)
+    start = np.maximum.accumulate(np.where(first, k, 0))
+    local = k - start
+    for stride in _BEND_STRIDES:
+        sel = np.nonzero((local % stride == 0) | last)[0]
+        sv, su = v[sel], u[sel]
+        s_first, s_last = first[sel], last[sel]
+        at = np.arange(sel.size)
+        sub_local = at - np.maximum.accumulate(np.where(s_first, at, 0))
+        samples = max(4, stride)
+        move = _BEND_MOVE_CELLS
+        for it in range(_BEND_ITERS):
+            for parity in (1, 0):
+                i = np.nonzero(~s_first & ~s_last & (sub_local % 2 == parity))[0]
+                if i.size == 0:
+                    continue
+                cv = sv[i, None] + move * _MOVES[None, :, 1]
+                cu = su[i, None] + move * _MOVES[None, :, 0]
+                pv = np.broadcast_to(sv[i - 1, None], cv.shape)
+                pu = np.broadcast_to(su[i - 1, None], cu.shape)
+                nv = np.broadcast_to(sv[i + 1, None], cv.shape)
+                nu = np.broadcast_to(su[i + 1, None], cu.shape)
+                cost = slow.time(pv, pu, cv, cu, samples) + slow.time(cv, cu, nv, nu, samples)
+                best = np.argmin(cost, axis=1)  # ties keep the vertex where it is (move 0 first)
+                rows = np.arange(i.size)
+                sv[i], su[i] = cv[rows, best], cu[rows, best]
+            if (it + 1) % (_BEND_ITERS // 3) == 0:
+                move *= 0.5
+        j = np.clip(np.searchsorted(sel, k, side="right") - 1, 0, sel.size - 1)
+        j1 = np.minimum(j + 1, sel.size - 1)
+        span = np.where(sel[j1] > sel[j], sel[j1] - sel[j], 1)
+        w = np.where(sel[j1] > sel[j], (k - sel[j]) / span, 0.0)
+        v[:] = sv[j] * (1.0 - w) + sv[j1] * w
+        u[:] = su[j] * (1.0 - w) + su[j1] * w
 
 
 def trace_wave_paths(
@@ -211,6 +329,7 @@ def trace_wave_paths(
     step_cells: float = PATH_STEP_CELLS,
     stop_time_s: float | None = None,
     max_steps: int | None = None,
+    speed_m_s: Any = None,
 ) -> list[WavePath]:
     """Trace the first wave's path back from each site to the source.
 
@@ -231,6 +350,12 @@ def trace_wave_paths(
         start front); by default only where times stop decreasing.
     max_steps : int, optional
         Most steps per path (default: 4 x (rows + cols) / step_cells).
+    speed_m_s : ndarray of shape grid.shape, float, m/s, optional
+        The wave speed of the solve on the grid (``Medium.speed_m_s``). When
+        given, each descent path is then bent to the least travel time through
+        these speeds with its ends fixed (Fermat's principle), which puts the
+        turns at speed steps where Snell's law does; without it the descent
+        path is returned as traced.
 
     Returns
     -------
@@ -311,13 +436,43 @@ def trace_wave_paths(
         ts.append(t_now.copy())
         alive.append(step_alive)
     uu_all, vv_all, tt_all, keep = (np.stack(a, axis=1) for a in (us, vs, ts, alive))
+    traced = [
+        (uu_all[i, keep[i]][::-1], vv_all[i, keep[i]][::-1], tt_all[i, keep[i]][::-1])
+        for i in range(xs.size)
+    ]
+    if speed_m_s is not None:
+        slow = _Slowness(grid, speed_m_s, earth, f)
+        bend = [i for i in range(xs.size) if ends[i] != "off-grid" and traced[i][0].size > 2]
+        if bend:
+            cu = np.concatenate([traced[i][0] for i in bend])
+            cv = np.concatenate([traced[i][1] for i in bend])
+            sizes = np.array([traced[i][0].size for i in bend])
+            last_at = np.cumsum(sizes) - 1
+            first, last = np.zeros(cu.size, dtype=bool), np.zeros(cu.size, dtype=bool)
+            first[last_at - sizes + 1] = True
+            last[last_at] = True
+            _bend(slow, cv, cu, first, last)
+            leg = slow.time(cv[:-1], cu[:-1], cv[1:], cu[1:], 8)
+            for i, a, b in zip(bend, last_at - sizes + 1, last_at + 1, strict=True):
+                ct = traced[i][2]
+                # times along the bent path: its own travel time from the source end,
+                # scaled to the field's times at both ends
+                cum = np.concatenate([[0.0], np.cumsum(leg[a : b - 1])])
+                if np.isfinite(cum[-1]) and cum[-1] > 0.0 and ct[-1] > ct[0]:
+                    # vertices spread evenly again along the bent line (moves along a
+                    # straight stretch cost nothing, so they may have bunched)
+                    pu, pv = cu[a:b], cv[a:b]
+                    arc = np.concatenate([[0.0], np.cumsum(np.hypot(np.diff(pu), np.diff(pv)))])
+                    even = np.linspace(0.0, arc[-1], arc.size)
+                    times = ct[0] + np.interp(even, arc, cum) * (ct[-1] - ct[0]) / cum[-1]
+                    traced[i] = (np.interp(even, arc, pu), np.interp(even, arc, pv), times)
+                # else (the route leans on cells without a speed): kept as traced
     out: list[WavePath] = []
     for i in range(xs.size):
         if ends[i] == "off-grid":
             out.append(WavePath(None, np.zeros(0), "off-grid"))
             continue
-        k = keep[i]
-        cu, cv, ct = uu_all[i, k][::-1], vv_all[i, k][::-1], tt_all[i, k][::-1]
+        cu, cv, ct = traced[i]
         px = tr.c + tr.a * (cu + 0.5)
         py = tr.f + tr.e * (cv + 0.5)
         if px.size == 1:  # the site is the source: a zero-length line
