@@ -362,10 +362,13 @@ def run_map_job(job: MapJob, *, progress: Callable[[str], None] | None = None) -
             if sites is not None and pset.mode == "long-wave":
                 front_depth_m = medium.depth_m
                 front_water = (medium.water, medium.open_water)
+            # the wave paths bend through the front's speeds (the head wave along a shelf edge)
+            route_speed = medium.speed_m_s if pset.mode == "long-wave" and job.writes_wave_paths() else None
             del medium  # the speeds and labels are not needed for the products: free them first
             solved_nests = _solve_nests(job, pset, result, nests, say, tag) if nests else {}
-            if pset.mode == "long-wave" and job.writes_wave_paths():
-                routes = _trace_routes(job, sites, result, solved_nests)
+            if route_speed is not None:
+                routes = _trace_routes(job, sites, result, solved_nests, route_speed)
+                del route_speed
             written += _write_products(job, pset, result, water, site_marks, routes,
                                        nest_outlines=_nest_outlines(nests, grid))
             del water
@@ -661,7 +664,8 @@ def _solve_nests(job: MapJob, pset: ProductSet, result: TravelTimeResult, nests:
     return solve_nests(result, nests, mode=pset.mode, period_s=pset.period_s, speed=job.speed)
 
 
-def _trace_routes(job: MapJob, sites: Any, front: TravelTimeResult, solved_nests: dict[str, Any]) -> list[Any]:
+def _trace_routes(job: MapJob, sites: Any, front: TravelTimeResult, solved_nests: dict[str, Any],
+                  speed_m_s: Any = None) -> list[Any]:
     """The first wave's route to every site and ``path_from`` point, in the basin's CRS."""
     from ttmap.io.sites import Site, SiteList
     from ttmap.jobs.nests import trace_routes
@@ -673,7 +677,8 @@ def _trace_routes(job: MapJob, sites: Any, front: TravelTimeResult, solved_nests
                                      for k, (lon, lat) in enumerate(job.path_from, 1))))
     routes: list[Any] = []
     for g in groups:
-        routes += trace_routes(g, front, solved_nests, earth=job.speed.earth, search_radius_m=radius)
+        routes += trace_routes(g, front, solved_nests, earth=job.speed.earth, search_radius_m=radius,
+                               basin_speed_m_s=speed_m_s)
     return routes
 
 

@@ -289,8 +289,14 @@ def trace_routes(
     *,
     earth: str,
     search_radius_m: float,
+    basin_speed_m_s: Any = None,
 ) -> list[RoutePath]:
     """The first wave's route to each point, in the basin's CRS, source end first.
+
+    With ``basin_speed_m_s`` (the basin medium's speed on its native grid) each
+    route is bent to the least travel time through the speeds (Fermat's
+    principle; :func:`ttmap.paths.trace_wave_paths`), as nest routes are with
+    their nest's speeds: a route along a shelf edge then follows the head wave.
 
     Each point is snapped to reached water on the finest grid covering it (as
     the site table does). Inside a nest the route is traced on the nest's field
@@ -320,7 +326,7 @@ def trace_routes(
         if not ok:
             continue
         paths = trace_wave_paths(nest.grid, nest.arrival_time_s, [s.x for _, s in ok], [s.y for _, s in ok],
-                                 earth=earth)  # type: ignore[arg-type]
+                                 earth=earth, speed_m_s=nest.medium.speed_m_s)  # type: ignore[arg-type]
         tr = Transformer.from_crs(nest.grid.crs, basin_grid.crs, always_xy=True)
         for (i, _), p in zip(ok, paths, strict=True):
             if p.line is None:
@@ -349,7 +355,8 @@ def trace_routes(
         bx_list.append(x)
         by_list.append(y)
     basin_paths = trace_wave_paths(basin_grid, basin_front.arrival_time_s, bx_list, by_list,
-                                   earth=earth) if owners else []  # type: ignore[arg-type]
+                                   earth=earth,  # type: ignore[arg-type]
+                                   speed_m_s=basin_speed_m_s) if owners else []
     for i, p in zip(owners, basin_paths, strict=True):
         name = points.names[i]
         b_xy = np.asarray(p.line.coords, dtype=np.float64) if p.line is not None else np.zeros((0, 2))
