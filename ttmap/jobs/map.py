@@ -284,7 +284,7 @@ def run_map_job(job: MapJob, *, progress: Callable[[str], None] | None = None) -
         sets, and is not written as a Shapefile.
     """
     from ttmap.faults import checkpoint
-    from ttmap.jobs.record import build_run_record, file_entry, grid_entry, utc_now, write_run_record
+    from ttmap.jobs.record import build_run_record, file_entry, grid_entry, utc_now
     from ttmap.jobs.staging import staged_output
     from ttmap.memory import check_memory
     from ttmap.traveltime import prepare_medium
@@ -443,13 +443,10 @@ def run_map_job(job: MapJob, *, progress: Callable[[str], None] | None = None) -
             notes=notes,
             **blocks,
         )
-        if job.products.report:
-            from ttmap.jobs.styling import write_run_report
+        from ttmap.jobs.styling import write_report_and_record
 
-            say("writing report.html")
-            record["timings_s"]["report_s"] = round(write_run_report(record, out, overwrite=job.overwrite)[1], 4)
-        checkpoint("record", out / RUN_RECORD_NAME)
-        run_json = write_run_record(record, out / RUN_RECORD_NAME, overwrite=job.overwrite)
+        run_json = write_report_and_record(record, out, report=job.products.report, overwrite=job.overwrite,
+                                           say=say)
     written = [stage.final(p) for p in written]
     return MapJobResult(out_dir=final_out, record_path=stage.final(run_json), products=(*written, stage.final(run_json)),
                         product_sets=summaries, sites=site_block, record=record)

@@ -164,7 +164,6 @@ def _run_staged(sf: ScenarioFile, out: Path, stage: Any, spec: MediumSpec, tasks
     from ttmap.faults import checkpoint
     from ttmap.jobs.batch import run_tasks
     from ttmap.jobs.plan import REPORT_NAME
-    from ttmap.jobs.record import write_run_record
     from ttmap.jobs.scenario_reciprocal import run_reciprocal_products
 
     derived_overwrite = overwrite or resume
@@ -291,13 +290,9 @@ def _run_staged(sf: ScenarioFile, out: Path, stage: Any, spec: MediumSpec, tasks
         extra_products=[*(str(stage.final(p)) for p in styles),
                         *([str(out / REPORT_NAME)] if report else [])],
     )
-    if report:
-        from ttmap.jobs.styling import write_run_report
+    from ttmap.jobs.styling import write_report_and_record
 
-        record["timings_s"]["report_s"] = round(
-            write_run_report(record, staged, overwrite=derived_overwrite)[1], 4)
-    checkpoint("record", run_json)
-    write_run_record(record, staged / run_json.name, overwrite=True)
+    write_report_and_record(record, staged, report=report, overwrite=derived_overwrite, record_overwrite=True)
     record["run_json"] = str(run_json)
     return record
 

@@ -199,7 +199,7 @@ def run_site_map_job(job: SiteMapJob, *, progress: Callable[[str], None] | None 
     from ttmap.faults import checkpoint
     from ttmap.jobs.layers import minutes_range
     from ttmap.jobs.staging import staged_output
-    from ttmap.jobs.record import build_run_record, file_entry, grid_entry, utc_now, write_run_record
+    from ttmap.jobs.record import build_run_record, file_entry, grid_entry, utc_now
     from ttmap.memory import check_memory
     from ttmap.sitemap import RECIPROCITY_NOTE, combine_site_times, site_centred_times
     from ttmap.sources import Source
@@ -374,13 +374,10 @@ def run_site_map_job(job: SiteMapJob, *, progress: Callable[[str], None] | None 
             combined_written=combined_written,
             reciprocity=RECIPROCITY_NOTE,
         )
-        if job.products.report:
-            from ttmap.jobs.styling import write_run_report
+        from ttmap.jobs.styling import write_report_and_record
 
-            say("writing report.html")
-            record["timings_s"]["report_s"] = round(write_run_report(record, out, overwrite=job.overwrite)[1], 4)
-        checkpoint("record", out / RUN_RECORD_NAME)
-        run_json = write_run_record(record, out / RUN_RECORD_NAME, overwrite=job.overwrite)
+        run_json = write_report_and_record(record, out, report=job.products.report, overwrite=job.overwrite,
+                                           say=say)
     written = [stage.final(p) for p in written]
     run_json = stage.final(run_json)
     return SiteMapJobResult(out_dir=final_out, record_path=run_json, products=(*written, run_json), sites=per_site,

@@ -55,6 +55,7 @@ __all__ = [
     "write_arrival_raster_style",
     "write_difference_style",
     "write_isochrone_styles",
+    "write_report_and_record",
     "write_run_report",
 ]
 
@@ -407,3 +408,26 @@ def write_run_report(record: Mapping[str, Any], out_dir: str | Path, *, overwrit
     path = write_report(out / REPORT_NAME, render_report(report_context_from_record(record, out)),
                         overwrite=overwrite)
     return path, time.perf_counter() - t0
+
+
+def write_report_and_record(record: dict[str, Any], out_dir: str | Path, *, report: bool, overwrite: bool,
+                            record_overwrite: bool | None = None,
+                            say: Any = None) -> Path:
+    """The last two products of every job: ``report.html`` (when asked) and then ``run.json``.
+
+    The report's time goes into the record's ``timings_s.report_s``; the fault
+    hook ``record`` fires just before the record is written. Returns the
+    record's path.
+    """
+    from ttmap.faults import checkpoint
+    from ttmap.jobs.plan import RUN_RECORD_NAME
+    from ttmap.jobs.record import write_run_record
+
+    out = Path(out_dir)
+    if report:
+        if say is not None:
+            say("writing report.html")
+        record["timings_s"]["report_s"] = round(write_run_report(record, out, overwrite=overwrite)[1], 4)
+    checkpoint("record", out / RUN_RECORD_NAME)
+    return write_run_record(record, out / RUN_RECORD_NAME,
+                            overwrite=overwrite if record_overwrite is None else record_overwrite)
