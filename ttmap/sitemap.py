@@ -161,8 +161,8 @@ def site_centred_times(
     >>> depth[:, 30:] = -10.0  # land east of x = 30 km
     >>> g = Grid((40, 40), Affine(1000, 0, 0, 0, -1000, 40000), "EPSG:32601")
     >>> r = site_centred_times(prepare_medium(depth, g), Source.point_xy(30400, 20500), name="Harbour")
-    >>> round(r.summary.source_moved_m), r.settings["site"]
-    (900, 'Harbour')
+    >>> round(r.summary.source_moved_m), r.settings["site"]  # ground metres: 900 m on the map
+    (898, 'Harbour')
     """
     if snap_radius_m is not None and not (math.isfinite(snap_radius_m) and snap_radius_m >= 0.0):
         raise InputDataError(f"snap radius {snap_radius_m!r} m must be a non-negative number")

@@ -337,10 +337,17 @@ def _fmt_position(grid: Grid, x: float, y: float) -> str:
 
 
 def _ground_distance_m(grid: Grid, x0: float, y0: float, x: FloatArray, y: FloatArray) -> FloatArray:
-    """Ground distance from one position to many (haversine on R1 for lon/lat)."""
+    """Ground distance from one position to many (haversine on R1 for lon/lat; the WGS84
+    geodesic for a projected grid, whose map distance differs by its scale factor)."""
     if not grid.is_geographic:
-        u = grid.linear_unit_m
-        return np.asarray(np.hypot(x - x0, y - y0) * u, dtype=np.float64)
+        from pyproj import Geod
+
+        to_lonlat = Transformer.from_crs(grid.crs, "EPSG:4326", always_xy=True)
+        lon0, lat0 = to_lonlat.transform(x0, y0)
+        lon, lat = to_lonlat.transform(np.asarray(x, dtype=np.float64), np.asarray(y, dtype=np.float64))
+        n = np.size(lon)
+        _, _, dist = Geod(ellps="WGS84").inv(np.full(n, lon0), np.full(n, lat0), np.ravel(lon), np.ravel(lat))
+        return np.asarray(dist, dtype=np.float64).reshape(np.shape(x))
     lam0, phi0 = math.radians(x0), math.radians(y0)
     lam, phi = np.radians(x), np.radians(y)
     h = np.sin((phi - phi0) / 2) ** 2 + math.cos(phi0) * np.cos(phi) * np.sin((lam - lam0) / 2) ** 2
@@ -356,6 +363,12 @@ def nearest_open_water(
     if grid.is_geographic:
         coslat = max(math.cos(math.radians(min(abs(y), 89.0))), 1e-3)
         col_m = math.radians(abs(grid.transform.a)) * MEAN_EARTH_RADIUS_M * coslat
+    else:
+        # a ground radius spans radius x scale map metres: widen the window by the local scale
+        step = max(row_m, col_m) / grid.linear_unit_m
+        ground = float(_ground_distance_m(grid, x, y, np.array([x + step]), np.array([y]))[0])
+        scale = (step * grid.linear_unit_m) / ground if ground > 0 else 1.0
+        row_m, col_m = row_m / max(scale, 1e-6), col_m / max(scale, 1e-6)
     nr = int(math.ceil(radius_m / row_m)) + 1
     nc = int(math.ceil(radius_m / col_m)) + 1
     rows = np.arange(max(0, row - nr), min(grid.rows, row + nr + 1))

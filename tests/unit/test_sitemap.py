@@ -60,6 +60,17 @@ def medium():
     return prepare_medium(coast_depth(), GRID)
 
 
+def ground_m(x0: float, y0: float, x1: float, y1: float) -> float:
+    """WGS84 geodesic between two positions of GRID (pyproj; Karney 2013, docs/references.md
+    §10): moves are reported in ground metres, which this UTM grid, 500 km off its central
+    meridian, scales by about 1.002 on the map."""
+    from pyproj import Geod, Transformer
+
+    tr = Transformer.from_crs(GRID.crs, "EPSG:4326", always_xy=True)
+    (a, b), (c, d) = tr.transform([x0, x1], [y0, y1])
+    return float(Geod(ellps="WGS84").inv(a, c, b, d)[2])
+
+
 def centre(row: int, col: int) -> tuple[float, float]:
     x, y = GRID.xy(row, col)
     return float(x), float(y)
@@ -78,9 +89,11 @@ def harbour(medium):
 def test_site_on_land_is_moved_to_the_nearest_water_and_the_move_is_reported(medium, harbour):
     sm = harbour.summary
     assert (sm.source_row, sm.source_col) == (30, COAST_COL - 1)
-    assert sm.source_moved_m == pytest.approx(1400.0)  # from x = 70.9 km to the centre 69.5 km
+    x, y = centre(30, COAST_COL)
+    # from x = 70.9 km to the centre 69.5 km: 1400 m on the map
+    assert sm.source_moved_m == pytest.approx(ground_m(x + 400.0, y, x - 1000.0, y), abs=0.01)
     assert harbour.settings["site"] == "Harbour"
-    assert harbour.settings["site_moved_m"] == pytest.approx(1400.0)
+    assert harbour.settings["site_moved_m"] == pytest.approx(sm.source_moved_m)
     assert harbour.settings["snap_radius_m"] == SITE_SEARCH_RADIUS_M
     assert harbour.settings["reciprocity"] == RECIPROCITY_NOTE
     assert harbour.source.kind == "point" and harbour.source.params["x"] == centre(30, 70)[0] + 400
@@ -256,7 +269,8 @@ def test_site_products_are_written_and_read_back(tmp_path, medium, harbour):
     assert tags["SITE"] == "Harbour" and tags["RECIPROCITY"] == RECIPROCITY_NOTE
     assert tags["CAUTION"] == CAUTION_SHORT and tags["UNITS"] == "minutes"
     assert tags["QUANTITY"] == "time from a source at this cell to the site"
-    assert float(tags["SITE_MOVED_M"]) == pytest.approx(1400.0)
+    x, y = centre(30, COAST_COL)
+    assert float(tags["SITE_MOVED_M"]) == pytest.approx(ground_m(x + 400.0, y, x - 1000.0, y), abs=0.1)
     assert desc == "minutes from a source at this cell to site Harbour"
     assert_allclose(t.filled(np.nan), harbour.arrival_time_min, rtol=1e-6, equal_nan=True)
     assert t.mask[:, COAST_COL:].all()

@@ -210,15 +210,24 @@ def test_source_in_closed_basin(coast):
 
 
 def test_snapping_moves_the_source_and_reports_the_distance(coast):
-    _, _, medium = coast
+    from pyproj import Transformer
+
+    grid, _, medium = coast
     with pytest.warns(
         TtmapWarning,
-        match=r"source moved 3.20 km from \(x 7300.0, y 20500.0\) to the nearest open water "
+        match=r"source moved 3.1\d km from \(x 7300.0, y 20500.0\) to the nearest open water "
         r"\(x 10500.0, y 20500.0\)",
     ):
         result = medium.travel_time(Source.point_xy(7300.0, 20500.0), snap_radius_m=5000.0)
     s = result.summary
-    assert s.source_moved_m == pytest.approx(3200.0)  # analytic: 10500 - 7300 m
+    # The move is reported as ground distance: the WGS84 geodesic between the two map
+    # positions (pyproj; Karney 2013, docs/references.md §10), not the 3200 m of map
+    # distance, which this UTM grid far from its central meridian scales by about 1.004.
+    to_lonlat = Transformer.from_crs(grid.crs, "EPSG:4326", always_xy=True)
+    (lon0, lon1), (lat0, lat1) = to_lonlat.transform([7300.0, 10500.0], [20500.0, 20500.0])
+    geodesic_m = Geod(ellps="WGS84").inv(lon0, lat0, lon1, lat1)[2]
+    assert abs(geodesic_m - 3200.0) > 5.0  # the check can tell map from ground distance
+    assert s.source_moved_m == pytest.approx(geodesic_m, abs=0.01)
     assert (s.source_row, s.source_col) == (19, 10)
     assert (s.source_x, s.source_y) == (10500.0, 20500.0)
     assert s.source_depth_m == 1000.0
