@@ -179,9 +179,11 @@ class MisfitSums:
         ok = np.isfinite(r)
         np.copyto(r, 0.0, where=~ok)
         self.count += ok
-        self.s_r += w * r
-        r *= r
+        # in place, no grid-sized temporary: r -> w r -> w^2 r^2 -> w r^2
         r *= w
+        self.s_r += r
+        np.multiply(r, r, out=r)
+        r /= w
         self.s_rr += r
         self.s_w += w
         self.n_gauges += 1
@@ -289,6 +291,10 @@ def locate_from_sums(
 
     ``gauge_fields_at_best`` is a callable ``(row, col) -> list of T_k`` giving
     each gauge's time from that cell (the fields are not kept in memory).
+
+    The sums are consumed: their arrays become the misfit and origin-time
+    fields (computed in place, row block by row block), so the peak stays at
+    one solve plus the running sums.
     """
     delta = delta_chi2(level, 2)
     valid = sums.count == sums.n_gauges
@@ -298,14 +304,18 @@ def locate_from_sums(
         raise InputDataError(
             "no cell is reached from every gauge; check that the gauges share one water body"
         )
+    sums.count = None  # no longer needed: free it before the fields are built
+    misfit, origin = sums.s_rr, sums.s_r  # consumed in place (see the notes above)
     with np.errstate(invalid="ignore", divide="ignore"):
         if origin_known:
-            misfit = sums.s_rr.copy()
-            origin = np.zeros(sums.shape)
+            origin.fill(0.0)
         else:
-            mean = sums.s_r / sums.s_w
-            misfit = sums.s_rr - sums.s_r * mean
-            origin = mean + sums.a_ref_s
+            step = max(1, (1 << 20) // max(sums.shape[1], 1))  # about a million cells a block
+            for r0 in range(0, sums.shape[0], step):
+                m = origin[r0:r0 + step]
+                m /= sums.s_w  # the weighted mean residual
+                misfit[r0:r0 + step] -= sums.s_w * m * m  # s_rr - s_r^2 / s_w
+                m += sums.a_ref_s  # the origin time
     np.maximum(misfit, 0.0, out=misfit)  # rounding can give -1e-12
     misfit[~valid] = np.nan
     origin[~valid] = np.nan
