@@ -203,6 +203,23 @@ class Medium:
         water = ~self.barrier_plane
         return float(np.max(self.speed_plane_m_s[water])) if water.any() else 1.0
 
+    def _place(self, source: Source, snap_radius_m: float | None) -> SourceStart:
+        """The source's start on this medium (callers hold the solve lock)."""
+        return place_source(
+            source,
+            grid=self.grid,
+            plane=self.plane,
+            depth_m=self.depth_m,
+            water=self.water,
+            open_water=self.open_water,
+            basin_labels=self.basin_labels,
+            basin_sizes=self.basin_sizes,
+            speed_plane_m_s=self.speed_plane_m_s,
+            barrier_plane=self.barrier_plane,
+            snap_radius_m=snap_radius_m,
+            front_speed_m_s=self.max_speed_plane_m_s,
+        )
+
     def source_start(self, source: Source, *, snap_radius_m: float | None = None) -> SourceStart:
         """The start a solve from ``source`` would use, without solving.
 
@@ -219,20 +236,7 @@ class Medium:
         if snap_radius_m is not None and not (np.isfinite(snap_radius_m) and snap_radius_m >= 0):
             raise InputDataError(f"snap radius {snap_radius_m!r} m must be a non-negative number")
         with _SOLVE_LOCK:  # the speed array holds altered cells during a solve
-            return place_source(
-                source,
-                grid=self.grid,
-                plane=self.plane,
-                depth_m=self.depth_m,
-                water=self.water,
-                open_water=self.open_water,
-                basin_labels=self.basin_labels,
-                basin_sizes=self.basin_sizes,
-                speed_plane_m_s=self.speed_plane_m_s,
-                barrier_plane=self.barrier_plane,
-                snap_radius_m=snap_radius_m,
-                front_speed_m_s=self.max_speed_plane_m_s,
-            )
+            return self._place(source, snap_radius_m)
 
     def travel_time(
         self,
@@ -269,20 +273,7 @@ class Medium:
             raise InputDataError(f"snap radius {snap_radius_m!r} m must be a non-negative number")
         t0 = time.perf_counter()
         with _SOLVE_LOCK:
-            start = place_source(
-                source,
-                grid=self.grid,
-                plane=self.plane,
-                depth_m=self.depth_m,
-                water=self.water,
-                open_water=self.open_water,
-                basin_labels=self.basin_labels,
-                basin_sizes=self.basin_sizes,
-                speed_plane_m_s=self.speed_plane_m_s,
-                barrier_plane=self.barrier_plane,
-                snap_radius_m=snap_radius_m,
-                front_speed_m_s=self.max_speed_plane_m_s,
-            )
+            start = self._place(source, snap_radius_m)
             t_plane = fast_march_s(
                 self.speed_plane_m_s,
                 barrier=self.barrier_plane,
