@@ -35,7 +35,7 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
-from ttmap.defaults import MEMORY_SHARE
+from ttmap.defaults import EARTH_MODEL, MEMORY_SHARE
 from ttmap.errors import InputDataError
 
 __all__ = [
@@ -201,7 +201,7 @@ def check_memory(
     limit_bytes: int | None = None,
     share: float = MEMORY_SHARE,
     workers: int = 1,
-    earth: str = "wgs84",
+    earth: str = EARTH_MODEL,
 ) -> int:
     """Refuse a grid whose solve would not fit in memory.
 

@@ -13,7 +13,7 @@ import re
 from dataclasses import dataclass, field
 from typing import Any
 
-from ttmap.defaults import EXECUTORS, FLOOR_DEPTH_M
+from ttmap.defaults import EARTH_MODEL, EXECUTORS, FLOOR_DEPTH_M
 from ttmap.errors import InputDataError
 from ttmap.sources import Source
 
@@ -45,7 +45,7 @@ class MediumSpec:
     nodata: float | None = None
     floor_depth_m: float = FLOOR_DEPTH_M
     far_field: bool = False
-    earth: str = "wgs84"
+    earth: str = EARTH_MODEL
 
     def __post_init__(self) -> None:
         # A list window (from TOML or JSON) would make the spec unhashable.

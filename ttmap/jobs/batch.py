@@ -84,7 +84,7 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
-from ttmap.defaults import CONNECT_TIMEOUT_S, MEDIA_PER_WORKER
+from ttmap.defaults import CONNECT_TIMEOUT_S, EXECUTORS, MEDIA_PER_WORKER
 from ttmap.errors import InputDataError, OutputExistsError, TtmapError, TtmapWarning
 from ttmap.sources import Source
 from ttmap.tasks import MediumSpec, NestSpec, SolveTask, check_executor
@@ -736,7 +736,7 @@ def run_tasks(
     spec: MediumSpec,
     out_dir: str | os.PathLike[str],
     *,
-    executor: str = "serial",
+    executor: str = EXECUTORS[0],
     n_workers: int | None = None,
     overwrite: bool = False,
     resume: bool = True,
@@ -1093,7 +1093,7 @@ def map_calls(
     items: Sequence[Any],
     shared: Any = None,
     *,
-    executor: str = "serial",
+    executor: str = EXECUTORS[0],
     n_workers: int | None = None,
     progress: ProgressFn | None = None,
     names: Sequence[str] | None = None,

@@ -33,6 +33,7 @@ from collections.abc import Iterable
 from dataclasses import dataclass
 from typing import Any
 
+from ttmap.defaults import EARTH_MODEL
 from ttmap.errors import InputDataError, TtmapWarning
 
 __all__ = [
@@ -107,7 +108,7 @@ def check_out_dir(out_dir: Any, *, flag: str = "--out") -> None:
         )
 
 
-def check_bathymetry(reading: Any, *, earth: str = "wgs84", workers: int = 1, solve: bool = True) -> CheckedGrid:
+def check_bathymetry(reading: Any, *, earth: str = EARTH_MODEL, workers: int = 1, solve: bool = True) -> CheckedGrid:
     """Check a bathymetry raster from its header: path, band, crop, memory of the read and the solve.
 
     Parameters

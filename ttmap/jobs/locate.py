@@ -34,6 +34,7 @@ from pathlib import Path
 from types import SimpleNamespace
 from typing import Any
 
+from ttmap.defaults import EXECUTORS
 from ttmap.errors import InputDataError
 from ttmap.jobs.batch import map_calls, medium_for_spec
 from ttmap.jobs.options import ReadingOptions, SpeedOptions
@@ -123,7 +124,7 @@ def run_locate_job(
     site_search_radius_m: float | None = None,
     picks_layer: str | None = None,
     overwrite: bool = False,
-    executor: str = "serial",
+    executor: str = EXECUTORS[0],
     n_workers: int | None = None,
     say: Callable[[str], None] | None = None,
     command_line: str = "",

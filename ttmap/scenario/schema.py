@@ -108,7 +108,7 @@ from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 from typing import Any
 
-from ttmap.defaults import FLOOR_DEPTH_M
+from ttmap.defaults import EARTH_MODEL, FLOOR_DEPTH_M, PERIOD_SPEED
 from ttmap.errors import InputDataError
 from ttmap.sources import Source
 
@@ -289,9 +289,9 @@ class SpeedSettings:
 
     floor_depth_m: float = FLOOR_DEPTH_M
     far_field: bool = False
-    earth: str = "wgs84"
+    earth: str = EARTH_MODEL
     periods_s: tuple[float, ...] = ()
-    period_speed: str = "group"
+    period_speed: str = PERIOD_SPEED
     max_time_s: float | None = None
 
 
