@@ -317,48 +317,51 @@ def run_locate_job(
         "speed_model": mode + (f" T = {period:g} s" if period else ""),
         "caution": LOCATE_CAUTION,
     }
-    out.mkdir(parents=True, exist_ok=True)  # only now: a refused run leaves nothing behind
-    check_writable([*targets, run_json], overwrite)
-    _write_products(targets, grid, medium, loc, residual_rows, picks, snapped, summary, overwrite)
-    write_s = time.perf_counter() - t0
+    # Built in a staging folder and moved into place whole, run.json last (as every job).
+    from ttmap.jobs.staging import staged_output
 
-    from ttmap.jobs.record import build_run_record, file_entry, write_run_record
+    with staged_output(out, overwrite=overwrite) as stage:
+        staged = [stage.new / t.name for t in targets]
+        _write_products(staged, grid, medium, loc, residual_rows, picks, snapped, summary, overwrite)
+        write_s = time.perf_counter() - t0
 
-    record = build_run_record(
-        job="locate",
-        started_utc=started,
-        command_line=command_line,
-        inputs={"bathymetry": file_entry(reading.path), "picks": file_entry(picks.path, count=len(names))},
-        parameters={
-            "reading": {"band": reading.band, "depth_positive": reading.depth_positive,
-                        "window": None if reading.window is None else list(reading.window),
-                        "coarsen": reading.coarsen},
-            "speed_model": mode,
-            "period_s": period,
-            "floor_depth_m": speed.floor_depth_m,
-            "far_field": speed.far_field,
-            "earth": speed.earth,
-            "max_time_s": speed.max_time_s,
-            "origin_time": (origin_time.isoformat() if isinstance(origin_time, _dt.datetime)
-                            else (origin_time or ("known (minutes picks)" if known else "unknown"))),
-            "origin_known": known,
-            "pick_time_base": time_base,
-            "confidence": confidence,
-            "site_search_radius_m": radius,
-            "executor": executor,
-            "workers": n_workers,
-            "out_dir": str(out),
-        },
-        timings_s={"read_s": read_s, "solve_s": solve_s, "locate_s": locate_s, "write_s": write_s,
-                   "total_s": time.perf_counter() - t_start},
-        products=[str(t) for t in targets],
-        out_dir=out,
-        grid=grid,
-        notes=[LOCATE_CAUTION, diag["message"]],
-        location=summary,
-        picks=residual_rows,
-    )
-    write_run_record(record, run_json, overwrite=True)
+        from ttmap.jobs.record import build_run_record, file_entry, write_run_record
+
+        record = build_run_record(
+            job="locate",
+            started_utc=started,
+            command_line=command_line,
+            inputs={"bathymetry": file_entry(reading.path), "picks": file_entry(picks.path, count=len(names))},
+            parameters={
+                "reading": {"band": reading.band, "depth_positive": reading.depth_positive,
+                            "window": None if reading.window is None else list(reading.window),
+                            "coarsen": reading.coarsen},
+                "speed_model": mode,
+                "period_s": period,
+                "floor_depth_m": speed.floor_depth_m,
+                "far_field": speed.far_field,
+                "earth": speed.earth,
+                "max_time_s": speed.max_time_s,
+                "origin_time": (origin_time.isoformat() if isinstance(origin_time, _dt.datetime)
+                                else (origin_time or ("known (minutes picks)" if known else "unknown"))),
+                "origin_known": known,
+                "pick_time_base": time_base,
+                "confidence": confidence,
+                "site_search_radius_m": radius,
+                "executor": executor,
+                "workers": n_workers,
+                "out_dir": str(out),
+            },
+            timings_s={"read_s": read_s, "solve_s": solve_s, "locate_s": locate_s, "write_s": write_s,
+                       "total_s": time.perf_counter() - t_start},
+            products=[str(t) for t in staged],
+            out_dir=stage.new,
+            grid=grid,
+            notes=[LOCATE_CAUTION, diag["message"]],
+            location=summary,
+            picks=residual_rows,
+        )
+        write_run_record(record, stage.new / run_json.name, overwrite=True)
     record["run_json"] = str(run_json)
     return record
 
