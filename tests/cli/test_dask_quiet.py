@@ -41,6 +41,19 @@ def test_local_cluster_run_at_quiet_prints_nothing(tmp_path):
     assert not (tmp_path / "out" / "dask.log").exists()  # -q: the Dask log goes nowhere
 
 
+def test_local_cluster_run_keeps_one_dask_log_beside_the_products(tmp_path):
+    """Without -q the direct solves and the site solves both log to one dask.log (appended).
+
+    It once made the commit of the staged set refuse its own log ("dask.log exists").
+    """
+    out_dir = tmp_path / "out"
+    p = _start(out_dir)
+    out, err = p.communicate(timeout=600)
+    assert p.returncode == 0, err.decode()
+    assert (out_dir / "run.json").is_file() and (out_dir / "dask.log").is_file()
+    assert not list(out_dir.glob(".ttmap-staging-*"))
+
+
 def test_ctrl_c_prints_one_line_and_no_traceback(tmp_path):
     out_dir = tmp_path / "out"
     p = _start(out_dir)

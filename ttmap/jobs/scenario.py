@@ -206,7 +206,7 @@ def _run_staged(sf: ScenarioFile, out: Path, stage: Any, spec: MediumSpec, tasks
         rec_env, reciprocal_sites, rec_info = run_reciprocal_products(
             sf, spec, staged, plan, fronts=fronts, executor=ex, n_workers=nw,
             overwrite=derived_overwrite, progress=progress, progress_offset=len(tasks),
-            dask_log=dask_log,
+            dask_log=dask_log, log_dir=out,
         )
         if rec_env["files"] is not None:
             envelope_staged = rec_env["files"]
@@ -414,8 +414,7 @@ def _write_sites_x_scenarios(
         spec, _ = scenario_tasks(sf)
         # The front's medium: depths at the cells read and the water masks behind the
         # snapping status words, exactly as the map job has them.
-        bathy = read_bathymetry(spec.bathymetry, band=spec.band, depth_positive=spec.depth_positive,
-                                window=spec.window, window_crs=spec.window_crs, coarsen=spec.coarsen)
+        bathy = read_bathymetry(spec.bathymetry, **spec.reading_kwargs())
         medium = prepare_medium(bathy.depth_m, bathy.grid, floor_depth_m=spec.floor_depth_m,
                                 far_field=spec.far_field, earth=spec.earth)  # type: ignore[arg-type]
         del bathy

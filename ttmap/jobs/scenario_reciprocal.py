@@ -373,6 +373,7 @@ def run_reciprocal_products(
     progress: Callable[[int, int, str], None] | None = None,
     progress_offset: int = 0,
     dask_log: bool = True,
+    log_dir: Path | None = None,
 ) -> tuple[dict[str, Any], dict[str, Any] | None, dict[str, Any]]:
     """Envelope (one solve, when planned) and the reciprocal sites x scenarios table.
 
@@ -392,6 +393,12 @@ def run_reciprocal_products(
         Replace the derived files.
     progress : callable, optional
         ``progress(done, total, name)``; counts continue from ``progress_offset``.
+    dask_log : bool
+        Append the Dask machinery's log lines to ``dask.log`` (else drop them).
+    log_dir : Path, optional
+        Folder of ``dask.log`` (default ``out``). A staged run passes its
+        final folder: the log is one file shared with the direct solves,
+        appended to, and not part of the staged product set.
 
     Returns
     -------
@@ -477,7 +484,7 @@ def run_reciprocal_products(
     t0 = time.perf_counter()
     rows = map_calls(
         _site_row, items, starts, executor=executor, n_workers=n_workers, progress=prog,
-        names=names, log_path=out / "dask.log" if dask_log else None,
+        names=names, log_path=(log_dir or out) / "dask.log" if dask_log else None,
     )
     for _ in range(skipped):
         tick("site not on water (no solve)")
