@@ -202,6 +202,7 @@ def check_memory(
     share: float = MEMORY_SHARE,
     workers: int = 1,
     earth: str = EARTH_MODEL,
+    refine: int = 1,
 ) -> int:
     """Refuse a grid whose solve would not fit in memory.
 
@@ -218,6 +219,9 @@ def check_memory(
         its own copy.
     earth : {"wgs84", "sphere"}
         Earth model of the solve plane (lon/lat grids).
+    refine : int
+        The refine factor that made ``grid`` from the raster (1 = none): the
+        fix offered is then a smaller factor, not coarsening.
 
     Returns
     -------
@@ -251,12 +255,18 @@ def check_memory(
         return need
     # Smallest coarsening factor that fits (cells shrink with its square).
     factor = max(2, math.ceil(math.sqrt(need / max(limit, 1))))
+    if refine > 1:
+        # Largest refine factor that fits (cells grow with its square).
+        fits = int(refine / math.sqrt(need / max(limit, 1)))
+        fix = (f"use --refine {fits} or less" if fits >= 2 else "drop --refine") + " or crop with --crop-lonlat"
+    else:
+        fix = f"{_FIX} (e.g. --coarsen {factor})"
     rows, cols = grid.shape
     who = f"{workers} workers x " if workers > 1 else ""
     raise InputDataError(
         f"a solve of this {rows} x {cols}-cell grid (solve grid {plane.shape[0]} x {plane.shape[1]}) "
         f"needs about {who}{_gib(per_solve)} = {_gib(need)} of memory (estimate), more than the "
-        f"limit of {limit_text}; {_FIX} (e.g. --coarsen {factor})"
+        f"limit of {limit_text}; {fix}"
         + ("; or run fewer workers" if workers > 1 else "")
     )
 

@@ -30,8 +30,9 @@ class MediumSpec:
     ----------
     bathymetry : str
         Path of the raster (every worker must be able to read it).
-    band, depth_positive, window, window_crs, coarsen, nodata
-        Passed to :func:`ttmap.io.raster.read_bathymetry`.
+    band, depth_positive, window, window_crs, coarsen, nodata, refine
+        Passed to :func:`ttmap.io.raster.read_bathymetry` (all of them:
+        :meth:`reading_kwargs`).
     floor_depth_m, far_field, earth
         Passed to :func:`ttmap.traveltime.prepare_medium`.
     """
@@ -43,6 +44,7 @@ class MediumSpec:
     window_crs: str | None = "EPSG:4326"
     coarsen: int = 1
     nodata: float | None = None
+    refine: int = 1
     floor_depth_m: float = FLOOR_DEPTH_M
     far_field: bool = False
     earth: str = EARTH_MODEL
@@ -57,6 +59,12 @@ class MediumSpec:
                     f"window {self.window!r} is not four numbers; give (west, south, east, north)"
                 ) from err
             object.__setattr__(self, "window", window)
+
+    def reading_kwargs(self) -> dict[str, Any]:
+        """Keyword arguments of :func:`ttmap.io.raster.read_bathymetry` for this spec (all but the path)."""
+        return {"band": self.band, "depth_positive": self.depth_positive, "window": self.window,
+                "window_crs": self.window_crs, "coarsen": self.coarsen, "nodata": self.nodata,
+                "refine": self.refine}
 
     def describe(self) -> dict[str, Any]:
         """JSON-ready dictionary of the fields."""

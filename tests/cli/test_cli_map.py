@@ -701,3 +701,41 @@ def test_failed_geotiff_write_in_its_thread_is_reported(
     assert threads and threads[0].startswith("ttmap-geotiff")
     assert product_files(out) == set()  # raised before any other product was written
     assert leftovers(out) == []
+
+
+def test_refine_solves_on_split_cells_against_distance_over_speed(run_cli, spec, utm_bathymetry, tmp_path):
+    """``--refine 3``: the raster has 3 x 3 cells per cell, the same extent, and the exact times.
+
+    Reference: constant depth, so the arrival is distance / sqrt(g h) (long-wave speed;
+    docs/references.md section 1), g = 9.80665 m/s^2 (standard gravity).
+    """
+    out = tmp_path / "out"
+    x, y = spec.UTM_SOURCE_XY
+    run_cli("map", utm_bathymetry, "--source-xy", f"{x},{y}", "--refine", "3", "--no-map", "--out", out,
+            expect=0)
+    with rasterio.open(out / "arrival_front.tif") as src:
+        assert src.shape == (spec.UTM_SHAPE[0] * 3, spec.UTM_SHAPE[1] * 3)
+        assert src.transform.a == pytest.approx(spec.UTM_CELL_M / 3)
+        assert src.bounds.left == spec.UTM_TRANSFORM.c and src.bounds.top == spec.UTM_TRANSFORM.f
+        t_min = src.read(1, masked=True)
+        cols, rows = np.meshgrid(np.arange(src.width), np.arange(src.height))
+        cx = src.transform.c + (cols + 0.5) * src.transform.a
+        cy = src.transform.f + (rows + 0.5) * src.transform.e
+    dist_m = np.hypot(cx - x, cy - y)
+    exact_min = dist_m / np.sqrt(9.80665 * spec.UTM_DEPTH_M) / 60.0
+    far = ~np.ma.getmaskarray(t_min) & (dist_m > 20_000.0)
+    rel = np.abs(t_min.data[far] - exact_min[far]) / exact_min[far]
+    print(f"refine 3: worst {rel.max():.4%} beyond 20 km over {far.sum()} cells")
+    assert far.sum() > 10_000 and rel.max() <= 0.002  # measured 0.056 %
+    record = json.loads((out / "run.json").read_text())
+    assert record["parameters"]["reading"]["refine"] == 3
+    assert any("refined by 3" in n for n in json.dumps(record).split('"'))
+
+
+def test_refine_and_coarsen_together_refused(run_cli, utm_bathymetry, tmp_path):
+    out = tmp_path / "out"
+    result = run_cli("map", utm_bathymetry, "--source-xy", "320500,6100500", "--refine", "2", "--coarsen", "2",
+                     "--out", out)
+    assert result.exit_code == 1
+    assert "coarsen 2 and refine 2 cannot be combined" in result.output
+    assert not out.exists()

@@ -33,6 +33,7 @@ from scipy import ndimage
 
 from ttmap import Grid, Source, prepare_medium
 from ttmap.errors import TtmapWarning
+from ttmap.io.raster import refine_depth
 from ttmap.products.compare import envelope
 from ttmap.reciprocal import envelope_one_solve, scenario_starts, sites_by_scenarios_reciprocal
 
@@ -53,12 +54,19 @@ def bathymetry(seed: int = 5) -> np.ndarray:
     return depth
 
 
-def projected_grid() -> Grid:
-    return Grid((N, N), Affine(2000.0, 0.0, 300_000.0, 0.0, -2000.0, 4_400_000.0), "EPSG:32654")
+def projected_grid(refine: int = 1) -> Grid:
+    step = 2000.0 / refine
+    return Grid((N * refine, N * refine), Affine(step, 0.0, 300_000.0, 0.0, -step, 4_400_000.0), "EPSG:32654")
 
 
-def lonlat_grid() -> Grid:
-    return Grid((N, N), Affine(0.02, 0.0, 142.0, 0.0, -0.02, 39.0), "EPSG:4326")
+def lonlat_grid(refine: int = 1) -> Grid:
+    step = 0.02 / refine
+    return Grid((N * refine, N * refine), Affine(step, 0.0, 142.0, 0.0, -step, 39.0), "EPSG:4326")
+
+
+def site_cells(refine: int) -> list[tuple[int, int]]:
+    """The solve cells of SITES: on a refined grid, the sub-cell nearest each site cell's centre."""
+    return [(refine * r + refine // 2, refine * c + refine // 2) for r, c in SITES]
 
 
 def trench_set(grid: Grid, seed: int = 9) -> list[Source]:
@@ -81,27 +89,32 @@ def trench_set(grid: Grid, seed: int = 9) -> list[Source]:
     return out
 
 
-@pytest.fixture(scope="module", params=["projected", "lonlat"])
+@pytest.fixture(scope="module", params=[("projected", 1), ("lonlat", 1), ("projected", 2), ("lonlat", 2)],
+                ids=lambda p: f"{p[0]}-refine{p[1]}")
 def case(request):
-    grid = projected_grid() if request.param == "projected" else lonlat_grid()
-    medium = prepare_medium(bathymetry(), grid)
-    sources = trench_set(grid)
+    """One grid of the same invented medium: native cells, or each split into 2 x 2 (``refine_depth``)."""
+    kind, refine = request.param
+    grid = projected_grid(refine) if kind == "projected" else lonlat_grid(refine)
+    depth, _ = refine_depth(bathymetry(), refine)
+    medium = prepare_medium(depth, grid)
+    sources = trench_set(projected_grid() if kind == "projected" else lonlat_grid())  # the same sources
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", TtmapWarning)  # small areas become points
         direct = np.array([medium.travel_time(s).arrival_time_s for s in sources])
         starts = scenario_starts(medium, sources)
-    return request.param, grid, medium, sources, direct, starts
+    return f"{kind} refine {refine}", grid, medium, sources, direct, starts, refine
 
 
 def test_sites_by_scenarios_equal_direct_solves(case):
-    name, grid, medium, sources, direct, starts = case
-    for rc in SITES:
+    name, grid, medium, sources, direct, starts, refine = case
+    sites = site_cells(refine)
+    for rc in sites:
         assert medium.open_water[rc]
-    table = sites_by_scenarios_reciprocal(medium, SITES, sources, starts=starts)
+    table = sites_by_scenarios_reciprocal(medium, sites, sources, starts=starts)
     row_m, col_m = grid.cell_size_m()
-    rr, cc = np.divmod(starts.flat_index, N)
+    rr, cc = np.divmod(starts.flat_index, grid.cols)
     far_rel, all_cells = [], []
-    for j, (sr, sc) in enumerate(SITES):
+    for j, (sr, sc) in enumerate(sites):
         cell_time_s = max(row_m, col_m) / medium.speed_m_s[sr, sc]  # one cell's travel time at the site
         for i in range(len(sources)):
             a, b = int(starts.offsets[i]), int(starts.offsets[i + 1])
@@ -117,6 +130,14 @@ def test_sites_by_scenarios_equal_direct_solves(case):
           f"median {np.median(far):.4%}, share within 0.5 % {share:.1%}; worst over all pairs "
           f"{max(all_cells):.2f} cell travel times")
     assert far.size > 50
+    if refine == 2:
+        # The same medium with every cell split into 2 x 2 (what --refine 2 solves on): the
+        # islands are 6-12 cells across instead of 3-6, and the two discretisations agree to
+        # the issue's 0.5 % beyond 20 cells (of the solve grid; the same pairs as beyond 20
+        # native cells here). Measured: worst 0.21 % (projected) / 0.27 % (lon/lat).
+        assert far.max() <= 0.005
+        assert max(all_cells) <= 0.4
+        return
     # The issue asks for 0.5 % beyond 20 cells. Not met between these two discretisations
     # (docs/references.md section 8: discretisation error breaks reciprocity; docs/reciprocal.md,
     # "Accuracy"): the direct solve of an area starts from a 3-cell tube of straight-ray times
@@ -124,7 +145,8 @@ def test_sites_by_scenarios_equal_direct_solves(case):
     # table reads the site's solve at exact points of the area; point sources alone differ by up
     # to 0.43 % here. Measured: worst 0.66 % (projected) / 0.79 % (lon/lat), 0.26 of a cell's
     # travel time, 97.5 % / 96.2 % of pairs within 0.5 % (one-cell start band before: 1.37 % /
-    # 0.90 %, 0.59 of a cell).
+    # 0.90 %, 0.59 of a cell). The difference is discretisation error around islands only 3-6
+    # cells across: on the same medium solved at refine 2 (above) it is 3x smaller.
     assert far.max() <= 0.01
     assert share >= 0.95
     assert np.median(far) <= 0.0015
@@ -179,7 +201,7 @@ def _label_change(labels: np.ndarray) -> np.ndarray:
 
 
 def test_one_solve_envelope_equals_minimum_of_direct_solves(case):
-    name, grid, medium, sources, direct, starts = case
+    name, grid, medium, sources, direct, starts, refine = case
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", TtmapWarning)
         env = envelope_one_solve(medium, sources)
@@ -205,6 +227,12 @@ def test_one_solve_envelope_equals_minimum_of_direct_solves(case):
     # of separate solves differ by up to about 2 %, within one cell's travel time.
     assert share_off >= 0.99
     assert cell_times.max() <= 1.0
+    if refine == 2:
+        # Refined 2 x 2: every cell off the meeting lines within 0.2 % (measured 100 %, worst
+        # 0.19 % / 0.09 %); all cells beyond 20 cells: 99.7 % / 99.5 %, the rest on the lines
+        # where two fronts meet (worst 0.70 % / 0.99 %, within 0.61 of a cell's travel time).
+        assert share_off >= 0.999
+        assert float(np.mean(rel <= 0.002)) >= 0.99
     # Labels: the arg-min of the individual solves on the reached cells, excluding only the
     # cells within one cell of a tie boundary (the issue's definition: cells next to a change
     # of the direct arg-min, 4-neighbours), counted and printed.

@@ -74,6 +74,8 @@ def test_one_search_radius_name_across_commands():
         (lambda: SiteOptions(notification_delay_min=2000.0), "notification delay 2000.0 min"),
         (lambda: SiteOptions(speed_uncertainty=1.5), "speed uncertainty 1.5"),
         (lambda: ReadingOptions("x.tif", coarsen=0), "coarsen factor 0"),
+        (lambda: ReadingOptions("x.tif", refine=0), "refine factor 0"),
+        (lambda: ReadingOptions("x.tif", coarsen=2, refine=3), "coarsen 2 and refine 3 cannot be combined"),
     ],
 )
 def test_option_groups_refuse_bad_values(build, match):
@@ -206,3 +208,16 @@ def test_arrival_levels_follow_a_late_starting_field():
     assert arrival_levels(early, None).tolist() == [10.0 * k for k in range(1, 10)]
     short = np.linspace(0.0, 7.5, 50).reshape(5, 10)
     assert all(v > 0 for v in arrival_levels(short, None))
+
+
+@pytest.mark.parametrize("reading", [{"refine": 3}, {"coarsen": 2}, {"refine": 2, "window": (-146.0, -36.0, -143.0, -33.0)}])
+def test_up_front_check_predicts_the_grid_the_reader_makes(reading):
+    """The check pass works from the header alone; its grid must be the one the run solves on."""
+    from ttmap.jobs.checks import check_bathymetry
+
+    demo = Path(__file__).resolve().parents[2] / "demo_bathymetry" / "demo_bathymetry.tif"
+    opts = ReadingOptions(str(demo), **reading)
+    checked = check_bathymetry(opts).grid
+    read = opts.read().grid
+    assert checked.shape == read.shape
+    assert checked.transform.almost_equals(read.transform)

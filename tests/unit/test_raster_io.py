@@ -19,6 +19,7 @@ from ttmap.io.raster import (
     coarsen_depth,
     overview_factors,
     read_bathymetry,
+    refine_depth,
     write_arrival_geotiff,
     write_raster,
 )
@@ -583,3 +584,45 @@ def test_coarsening_a_global_grid_reports_lost_wrap(write_tiny_geotiff) -> None:
     lost = read_bathymetry(path, coarsen=5)
     assert not lost.grid.wraps_x
     assert any("no longer spans 360 degrees" in n and "divides 36" in n for n in lost.notes)
+
+
+# --------------------------------------------------------------- refine
+
+
+def test_refine_through_reader_keeps_depths_coast_and_extent(write_tiny_geotiff) -> None:
+    path = write_tiny_geotiff(HAND.astype(np.float32), transform=GEO)
+    plain = read_bathymetry(path, depth_positive=True)
+    bathy = read_bathymetry(path, depth_positive=True, refine=3)
+    assert bathy.depth_m.shape == (12, 12)
+    # Every cell split into 3 x 3 cells of its own depth: the block means give the data back,
+    # land stays land (<= 0), nodata stays nodata.
+    blocks = bathy.depth_m.reshape(4, 3, 4, 3)
+    assert_array_equal(blocks.min(axis=(1, 3)), plain.depth_m)
+    assert_array_equal(blocks.max(axis=(1, 3)), plain.depth_m)
+    assert bathy.grid.transform == Affine(0.5 / 3, 0.0, 140.0, 0.0, -0.5 / 3, 40.0)
+    assert bathy.grid.bounds == plain.grid.bounds
+    assert "refined by 3: 4 x 4 cells -> 12 x 12 cells (each cell split into 3 x 3 of the same depth)" in bathy.notes
+
+
+def test_refine_refusals(write_tiny_geotiff) -> None:
+    path = write_tiny_geotiff(HAND.astype(np.float32), transform=GEO)
+    for bad in (0, 1.5, True):
+        with pytest.raises(InputDataError, match=f"refine factor {bad!r} is not a whole number"):
+            read_bathymetry(path, depth_positive=True, refine=bad)  # type: ignore[arg-type]
+        with pytest.raises(InputDataError, match="refine factor"):
+            refine_depth(HAND, bad)  # type: ignore[arg-type]
+    with pytest.raises(InputDataError, match="coarsen 2 and refine 2 cannot be combined; use one of them"):
+        read_bathymetry(path, depth_positive=True, coarsen=2, refine=2)
+
+
+def test_refine_global_grid_drops_seam_and_still_wraps(write_tiny_geotiff) -> None:
+    # 0..360 in 30-degree cells plus a repeated seam column (13 columns).
+    depth = np.full((4, 13), 3000.0, dtype=np.float32)
+    depth[:, 12] = depth[:, 0]
+    path = write_tiny_geotiff(depth, transform=Affine(30.0, 0.0, -15.0, 0.0, -30.0, 60.0))
+    plain = read_bathymetry(path, depth_positive=True)
+    assert plain.grid.has_seam_column
+    bathy = read_bathymetry(path, depth_positive=True, refine=2)
+    assert bathy.depth_m.shape == (8, 24)
+    assert bathy.grid.wraps_x and not bathy.grid.has_seam_column
+    assert any("seam column" in n for n in bathy.notes)

@@ -784,3 +784,15 @@ def test_missing_scenario_file():
     assert [str(i) for i in issues] == [
         "/nonexistent/folder/s.toml: scenario file not found; check the path"
     ]
+
+
+def test_refine_reaches_the_medium_spec_and_refuses_coarsen(folder: Path):
+    sf = load_scenario_file(_write(folder, BASE.replace('path = "bathy.tif"', 'path = "bathy.tif"\nrefine = 2')))
+    spec, _ = scenario_tasks(sf)
+    assert spec.refine == 2 and spec.coarsen == 1
+    assert spec.reading_kwargs()["refine"] == 2
+    both = BASE.replace('path = "bathy.tif"', 'path = "bathy.tif"\nrefine = 2\ncoarsen = 2')
+    with pytest.raises(ScenarioFileError) as info:
+        load_scenario_file(_write(folder, both))
+    assert [i.key for i in info.value.issues] == ["bathymetry.refine"]
+    assert "cannot be combined" in str(info.value)

@@ -46,6 +46,8 @@ __all__ = [
     "Bathymetry",
     "read_bathymetry",
     "coarsen_depth",
+    "refine_depth",
+    "check_resample_factors",
     "write_raster",
     "write_arrival_geotiff",
     "overview_factors",
@@ -407,6 +409,56 @@ def coarsen_depth(depth_m: ArrayLike, factor: int) -> tuple[FloatArray, tuple[st
     return coarse, tuple(notes)
 
 
+def refine_depth(depth_m: ArrayLike, factor: int) -> tuple[FloatArray, tuple[str, ...]]:
+    """Split every cell into ``factor x factor`` cells of the same depth.
+
+    The solve then runs on cells ``factor`` times smaller: features a few
+    cells across (islands, straits, headlands) are resolved by more cells,
+    and the fast-marching discretisation error shrinks with them (measured in
+    docs/reciprocal.md, "Accuracy"). No depth is invented: every new cell
+    keeps its parent's value, so the coastline and the nodata cells stay
+    exactly where the data puts them.
+
+    Parameters
+    ----------
+    depth_m : array_like of shape (rows, cols), float, metres, positive down
+    factor : int
+        Cells per original cell along each axis, ``>= 1``. 1 returns a copy.
+
+    Returns
+    -------
+    fine_m : ndarray of shape (rows * factor, cols * factor), float64, metres
+    notes : tuple of str
+
+    Raises
+    ------
+    InputDataError
+        ``depth_m`` is not 2-D, or ``factor`` is not a whole number >= 1.
+
+    Examples
+    --------
+    >>> fine, notes = refine_depth([[10.0, -1.0]], 2)
+    >>> fine.tolist()
+    [[10.0, 10.0, -1.0, -1.0], [10.0, 10.0, -1.0, -1.0]]
+    >>> notes[0]
+    'refined by 2: 1 x 2 cells -> 2 x 4 cells (each cell split into 2 x 2 of the same depth)'
+    """
+    if isinstance(factor, bool) or not isinstance(factor, (int, np.integer)) or factor < 1:
+        raise InputDataError(f"refine factor {factor!r} is not a whole number >= 1; pass e.g. 2")
+    depth = np.asarray(depth_m, dtype=np.float64)
+    if depth.ndim != 2:
+        raise InputDataError(f"depth_m must be 2-D (rows, cols), got shape {depth.shape}")
+    n = int(factor)
+    if n == 1:
+        return depth.copy(), ()
+    rows, cols = depth.shape
+    fine = np.repeat(np.repeat(depth, n, axis=0), n, axis=1)
+    return fine, (
+        f"refined by {n}: {rows} x {cols} cells -> {rows * n} x {cols * n} cells "
+        f"(each cell split into {n} x {n} of the same depth)",
+    )
+
+
 # ---------------------------------------------------------------------------
 # Reading
 # ---------------------------------------------------------------------------
@@ -422,6 +474,7 @@ def read_bathymetry(
     coarsen: int = 1,
     max_land_share: float = 0.98,
     nodata: float | None = None,
+    refine: int = 1,
 ) -> Bathymetry:
     """Read one band of a raster as depth in metres, positive down.
 
@@ -450,6 +503,11 @@ def read_bathymetry(
     nodata : float, optional
         A fill value the file does not declare: cells equal to it are nodata
         too (besides the band's own nodata value and mask).
+    refine : int
+        Split every cell into ``refine x refine`` cells of the same depth
+        before solving (see :func:`refine_depth`); 1 = off. Cannot be
+        combined with ``coarsen``. A duplicated seam column of a global grid
+        is dropped first, so the refined grid still wraps around.
 
     Returns
     -------
@@ -460,7 +518,8 @@ def read_bathymetry(
     InputDataError
         File missing or not a raster; several bands and none chosen; band out
         of range; no valid cells; no water; a land share above
-        ``max_land_share``; bad ``coarsen`` or ``window`` values.
+        ``max_land_share``; bad ``coarsen``, ``refine`` or ``window`` values,
+        or both ``coarsen`` and ``refine`` above 1.
     GridError
         No CRS; rotated, sheared or east-to-west transform (message names the
         file); a window that misses the grid or covers fewer than 2 x 2 cells.
@@ -483,6 +542,7 @@ def read_bathymetry(
         raise InputDataError(f"max_land_share {max_land_share!r} is outside (0, 1]; pass e.g. 0.98")
     if isinstance(coarsen, bool) or not isinstance(coarsen, (int, np.integer)) or coarsen < 1:
         raise InputDataError(f"coarsen factor {coarsen!r} is not a whole number >= 1; pass e.g. 2")
+    check_resample_factors(coarsen, refine)
 
     notes: list[str] = []
     src = _open_raster(name)
@@ -610,6 +670,17 @@ def read_bathymetry(
                 "use a smaller factor"
             )
 
+    if refine > 1:
+        k = int(refine)
+        seam = Grid((int(shape[0]), int(shape[1])), transform, full.crs).has_seam_column
+        if seam:
+            depth = depth[:, :-1]
+            notes.append("dropped the seam column (a repeat of the first, 360 degrees on) before refining")
+        depth, fine_notes = refine_depth(depth, k)
+        notes.extend(fine_notes)
+        transform = Affine(transform.a / k, 0.0, transform.c, 0.0, transform.e / k, transform.f)
+        shape = depth.shape
+
     try:
         grid = Grid((int(shape[0]), int(shape[1])), transform, full.crs)
     except GridError as err:
@@ -624,6 +695,23 @@ def read_bathymetry(
     return Bathymetry(
         depth_m=depth, grid=grid, path=name, band=chosen, sha256=digest, notes=tuple(notes)
     )
+
+
+def check_resample_factors(coarsen: Any, refine: Any) -> None:
+    """Refuse a refine factor that is not a whole number >= 1, or one combined with coarsening.
+
+    >>> check_resample_factors(2, 3)
+    Traceback (most recent call last):
+    ...
+    ttmap.errors.InputDataError: coarsen 2 and refine 3 cannot be combined; use one of them (coarsen to solve faster, refine to solve finer)
+    """
+    if isinstance(refine, bool) or not isinstance(refine, (int, np.integer)) or refine < 1:
+        raise InputDataError(f"refine factor {refine!r} is not a whole number >= 1; pass e.g. 2")
+    if refine > 1 and coarsen != 1:
+        raise InputDataError(
+            f"coarsen {coarsen} and refine {refine} cannot be combined; use one of them "
+            "(coarsen to solve faster, refine to solve finer)"
+        )
 
 
 def _equals_value(data: np.ndarray, value: float) -> np.ndarray:

@@ -252,10 +252,7 @@ def _bathymetry_for(spec: MediumSpec, sha256: str | None) -> Bathymetry:
     for k in [k for k in _MEDIA if (k[0], k[1]) != key]:
         del _MEDIA[k]
     _READS[key] += 1
-    bathy = read_bathymetry(
-        spec.bathymetry, band=spec.band, depth_positive=spec.depth_positive,
-        window=spec.window, window_crs=spec.window_crs, coarsen=spec.coarsen, nodata=spec.nodata,
-    )
+    bathy = read_bathymetry(spec.bathymetry, **spec.reading_kwargs())
     if sha256 is not None and bathy.sha256 is not None and bathy.sha256 != sha256:
         raise InputDataError(
             f"bathymetry {spec.bathymetry!r} on this worker (sha256 {bathy.sha256[:12]}...) differs "

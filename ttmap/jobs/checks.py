@@ -75,7 +75,7 @@ class CheckedGrid:
     header : BathymetryHeader
         The raster's header.
     grid : Grid
-        The grid the job will solve on (after the crop window and coarsening).
+        The grid the job will solve on (after the crop window and coarsening or refining).
     read_shape : (rows, cols)
         Cells the reader will hold (the crop window at full resolution).
     """
@@ -138,7 +138,7 @@ def check_bathymetry(reading: Any, *, earth: str = EARTH_MODEL, workers: int = 1
 
     from ttmap.grid import Grid
     from ttmap.io.header import choose_band, read_bathymetry_header
-    from ttmap.io.raster import window_offsets
+    from ttmap.io.raster import check_resample_factors, window_offsets
     from ttmap.memory import check_memory, check_read_memory
 
     header = read_bathymetry_header(reading.path)
@@ -161,10 +161,18 @@ def check_bathymetry(reading: Any, *, earth: str = EARTH_MODEL, workers: int = 1
             )
         rows, cols = rows // k, cols // k
         transform = Affine(transform.a * k, 0.0, transform.c, 0.0, transform.e * k, transform.f)
+    read_shape = (rows * k, cols * k)
+    n = int(getattr(reading, "refine", 1))
+    check_resample_factors(k, n)
+    if n > 1:
+        if Grid((rows, cols), transform, full.crs).has_seam_column:
+            cols -= 1  # the reader drops the seam column before refining
+        rows, cols = rows * n, cols * n
+        transform = Affine(transform.a / n, 0.0, transform.c, 0.0, transform.e / n, transform.f)
     grid = Grid((rows, cols), transform, full.crs)
     if solve:
-        check_memory(grid, earth=earth, workers=workers)
-    return CheckedGrid(header=header, grid=grid, read_shape=(rows * k, cols * k))
+        check_memory(grid, earth=earth, workers=workers, refine=n)
+    return CheckedGrid(header=header, grid=grid, read_shape=read_shape)
 
 
 def grid_extent_m(grid: Any) -> tuple[float, float]:

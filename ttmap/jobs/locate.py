@@ -221,8 +221,8 @@ def run_locate_job(
     spec = MediumSpec(
         bathymetry=str(Path(reading.path).absolute()) if os.path.exists(reading.path) else reading.path,
         band=reading.band, depth_positive=reading.depth_positive, window=reading.window,
-        window_crs=reading.window_crs, coarsen=reading.coarsen,
-        floor_depth_m=speed.floor_depth_m, far_field=speed.far_field, earth=speed.earth,
+        window_crs=reading.window_crs, coarsen=reading.coarsen, nodata=reading.nodata,
+        refine=reading.refine, floor_depth_m=speed.floor_depth_m, far_field=speed.far_field, earth=speed.earth,
     )
     sha = file_sha256(spec.bathymetry) if os.path.isfile(spec.bathymetry) else None
     medium = medium_for_spec(spec, mode, period, sha)
@@ -335,7 +335,8 @@ def run_locate_job(
             parameters={
                 "reading": {"band": reading.band, "depth_positive": reading.depth_positive,
                             "window": None if reading.window is None else list(reading.window),
-                            "coarsen": reading.coarsen},
+                            "coarsen": reading.coarsen, "refine": reading.refine,
+                            "nodata": reading.nodata},
                 "speed_model": mode,
                 "period_s": period,
                 "floor_depth_m": speed.floor_depth_m,

@@ -65,10 +65,7 @@ def scenario_water_mask(spec: MediumSpec, grid: Grid | None = None) -> np.ndarra
     from ttmap.io.raster import read_bathymetry
 
     try:
-        bathy = read_bathymetry(
-            spec.bathymetry, band=spec.band, depth_positive=spec.depth_positive,
-            window=spec.window, window_crs=spec.window_crs, coarsen=spec.coarsen,
-        )
+        bathy = read_bathymetry(spec.bathymetry, **spec.reading_kwargs())
     except (TtmapError, OSError):
         return None
     if grid is not None and tuple(bathy.grid.shape) != tuple(grid.shape):

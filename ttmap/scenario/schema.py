@@ -18,6 +18,7 @@ of arrays are counted from 1 in messages)::
     crop_lonlat = [W, S, E, N]      # optional window in degrees ...
     crop_xy = [W, S, E, N]          # ... or in the raster's own map units
     coarsen = 1                     # block-average N x N cells first
+    refine = 1                      # or split each cell into N x N and solve finer (not both)
     nodata = -32768                 # optional; a fill value the raster does not declare
 
     [[nest]]                        # optional, any number: finer rasters inside the basin
@@ -133,7 +134,7 @@ __all__ = [
 
 #: Keys allowed in each top-level table (``scenario`` and ``trench`` are arrays of tables).
 SECTION_KEYS: Mapping[str, tuple[str, ...]] = {
-    "bathymetry": ("path", "band", "depth_positive", "crop_lonlat", "crop_xy", "coarsen", "nodata"),
+    "bathymetry": ("path", "band", "depth_positive", "crop_lonlat", "crop_xy", "coarsen", "nodata", "refine"),
     "speed": (
         "floor_depth_m", "far_field_correction", "far_field", "earth", "periods_s", "period_speed",
         "max_time_h",
@@ -263,6 +264,7 @@ class BathymetrySettings:
     crop_xy: tuple[float, float, float, float] | None = None
     coarsen: int = 1
     nodata: float | None = None
+    refine: int = 1
 
 
 @dataclass(frozen=True)

@@ -39,6 +39,7 @@ def scenario_tasks(sf: ScenarioFile) -> tuple[MediumSpec, list[SolveTask]]:
         window_crs=None if b.crop_xy is not None else "EPSG:4326",
         coarsen=b.coarsen,
         nodata=b.nodata,
+        refine=b.refine,
         floor_depth_m=s.floor_depth_m,
         far_field=s.far_field,
         earth=s.earth,
@@ -106,7 +107,8 @@ def summary_lines(
         crop = f", cropped to x/y {list(b.crop_xy)}"
     lines.append(
         f"bathymetry: {b.path} ({cols} x {rows} cells, {sf.grid.crs}, {sf.grid.bounds_text()}"
-        f"{crop}{f', coarsened by {b.coarsen}' if b.coarsen > 1 else ''})"
+        f"{crop}{f', coarsened by {b.coarsen}' if b.coarsen > 1 else ''}"
+        f"{f', refined by {b.refine} (solved on {b.refine} x {b.refine} cells per cell)' if b.refine > 1 else ''})"
     )
     periods = ", ".join(f"{p:g}" for p in s.periods_s)
     lines.append(

@@ -322,6 +322,10 @@ class _Loader:
         file = self.existing_file(tbl, "path", path, required=True, what="bathymetry raster")
         band = self.number(tbl, "band", path, integer=True, positive=True)
         coarsen = self.number(tbl, "coarsen", path, integer=True, positive=True)
+        refine = self.number(tbl, "refine", path, integer=True, positive=True)
+        if refine is not None and coarsen is not None and int(refine) > 1 and int(coarsen) > 1:
+            self.err(path + ("refine",), f"coarsen = {int(coarsen)} and refine = {int(refine)} cannot be "
+                     "combined; keep one (coarsen to solve faster, refine to solve finer)")
         nodata = self.number(tbl, "nodata", path)
         depth_positive = self.boolean(tbl, "depth_positive", path, False)
         crop_ll = self.bbox(tbl, "crop_lonlat", path)
@@ -329,7 +333,7 @@ class _Loader:
         if crop_ll is not None and crop_xy is not None:
             self.err(path + ("crop_xy",), "give crop_lonlat or crop_xy, not both; remove one")
         if file is not None:
-            self._open_raster(file, path, band, coarsen, crop_ll, crop_xy, nodata)
+            self._open_raster(file, path, band, coarsen, crop_ll, crop_xy, nodata, refine)
         if file is None:
             return None
         return BathymetrySettings(
@@ -340,6 +344,7 @@ class _Loader:
             crop_xy=crop_xy if crop_ll is None else None,
             coarsen=1 if coarsen is None else int(coarsen),
             nodata=None if nodata is None else float(nodata),
+            refine=1 if refine is None else int(refine),
         )
 
     def nests(self, data: Mapping[str, Any], bathy: BathymetrySettings | None,
@@ -472,7 +477,8 @@ class _Loader:
             inside_lon |= (lon + k >= w) & (lon + k <= e)
         return bool((inside_lon & (lat >= s) & (lat <= n)).all())
 
-    def _check_memory(self, path: tuple[Any, ...], grid: Any, coarsen: float | None) -> None:
+    def _check_memory(self, path: tuple[Any, ...], grid: Any, coarsen: float | None,
+                      refine: float | None = None) -> None:
         """Refuse a grid whose solve would not fit in memory (crop window ignored: an upper bound)."""
         from affine import Affine
 
@@ -481,13 +487,19 @@ class _Loader:
         from ttmap.memory import check_memory
 
         c = int(coarsen) if coarsen else 1
+        n = int(refine) if refine else 1
         if c < 1 or min(grid.rows // c, grid.cols // c) < 2:
             return
         try:
-            coarse = Grid((grid.rows // c, grid.cols // c), grid.transform @ Affine.scale(c), grid.crs)
-            check_memory(coarse)
+            if n > 1:
+                solved = Grid((grid.rows * n, grid.cols * n), grid.transform @ Affine.scale(1.0 / n), grid.crs)
+                check_memory(solved, refine=n)
+            else:
+                coarse = Grid((grid.rows // c, grid.cols // c), grid.transform @ Affine.scale(c), grid.crs)
+                check_memory(coarse)
         except InputDataError as err:
-            self.err(path + ("coarsen",), str(err))
+            self.err(path + ("refine" if n > 1 else "coarsen",),
+                     str(err).replace("--refine", "refine =").replace("--crop-lonlat", "crop_lonlat"))
         except GridError:
             return
 
@@ -500,6 +512,7 @@ class _Loader:
         crop_ll: tuple[float, ...] | None,
         crop_xy: tuple[float, ...] | None,
         nodata: float | None = None,
+        refine: float | None = None,
     ) -> None:
         from ttmap.io.header import choose_band, read_bathymetry_header
         from ttmap.io.raster import sample_fill_values
@@ -520,7 +533,7 @@ class _Loader:
                                                  r"with nodata = \1 in [bathymetry]", str(err)))
         grid, count = header.grid, header.band_count
         shape = (grid.rows, grid.cols)
-        self._check_memory(path, grid, coarsen)
+        self._check_memory(path, grid, coarsen, refine)
         try:
             chosen = choose_band(count, None if band is None else int(band), file, hint="band = N")
         except TtmapError as err:
