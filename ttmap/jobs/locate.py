@@ -471,7 +471,7 @@ def _write_products(
         )
         write_qml(t["locate_origin_time.qml"], ls.origin_time_qml(
             origin_min.astype(np.float32), reference=summary["origin_time_reference"],
-            layer_name="locate_origin_time"), overwrite=True)
+            layer_name="locate_origin_time", best_origin_min=summary["best_origin_time_min"]), overwrite=True)
         geoms = [] if loc.polygons is None else list(getattr(loc.polygons, "geoms", [loc.polygons]))
         layer = VectorLayer(
             REGION_LAYER, geoms,

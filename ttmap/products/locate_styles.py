@@ -111,8 +111,9 @@ def misfit_classes(best_chi2: float, level: float, *, max_excess: float | None =
     level : float
         Confidence level of the run's region, 0 < level < 1.
     max_excess : float, optional
-        Largest ``chi2 - chi2_min`` on the grid; round far classes are added
-        up to it (at most four). Up to 1000 when None.
+        Largest ``chi2 - chi2_min`` on the grid; round far classes (25, 50,
+        100, 250, ... 10000) are added below it, at most four, spread over
+        the range. Up to 1000 when None.
 
     Returns
     -------
@@ -143,7 +144,10 @@ def misfit_classes(best_chi2: float, level: float, *, max_excess: float | None =
     outside = [delta_chi2(p) for p in _OUTER_LEVELS if p > level + 1e-9]
     top = 1000.0 if max_excess is None or not math.isfinite(max_excess) else float(max_excess)
     last = outside[-1] if outside else d_level
-    far = [v for v in _FAR_STEPS if v > last * 1.5 and v < top][:_MAX_FAR]
+    far = [v for v in _FAR_STEPS if v > last * 1.5 and v < top]
+    if len(far) > _MAX_FAR:  # spread over the whole range, the largest kept
+        idx = np.linspace(0, len(far) - 1, _MAX_FAR).round().astype(int)
+        far = [far[i] for i in idx]
     outside += far
     out_colors = _cmap_hex(len(outside) + 1, OUTSIDE_CMAP)
     classes: list[RasterClass] = []
@@ -196,13 +200,16 @@ def _nice_step(span: float, max_classes: int) -> float:
     return float(10.0 ** (exp + 1))  # pragma: no cover - the loop always returns
 
 
-def origin_time_classes(origin_min: Any, *, max_classes: int = 10) -> list[RasterClass]:
+def origin_time_classes(origin_min: Any, *, include: Sequence[float] = (), max_classes: int = 10) -> list[RasterClass]:
     """Graduated classes of the origin-time raster (minutes relative to its reference).
 
     Parameters
     ----------
     origin_min : array-like of float, minutes
         The raster's values (NaN where no source is possible).
+    include : sequence of float, minutes
+        Values that must fall inside the closed classes (the best cell's
+        origin time), whatever the percentiles.
     max_classes : int
         Most closed classes between the open ends (>= 1).
 
@@ -210,8 +217,8 @@ def origin_time_classes(origin_min: Any, *, max_classes: int = 10) -> list[Raste
     -------
     list of RasterClass
         Round edges (1, 2 or 5 x 10^k minutes) over the 2nd to 98th
-        percentile of the finite values; the first class is open below,
-        the last (``inf``) open above.
+        percentile of the finite values (widened to ``include``); the first
+        class is open below, the last (``inf``) open above.
 
     Raises
     ------
@@ -221,20 +228,24 @@ def origin_time_classes(origin_min: Any, *, max_classes: int = 10) -> list[Raste
     Examples
     --------
     >>> [c.upper for c in origin_time_classes(np.linspace(-37.0, 3.0, 101), max_classes=4)]
-    [-30.0, -20.0, -10.0, 0.0, inf]
+    [-40.0, -30.0, -20.0, -10.0, 0.0, 10.0, inf]
     """
     v = np.asarray(origin_min, dtype=np.float64)
     v = v[np.isfinite(v)]
     if v.size == 0:
         raise InputDataError("the origin-time raster has no finite value; no class can be drawn")
     lo, hi = (float(x) for x in np.percentile(v, [2.0, 98.0]))
+    extra = [float(x) for x in include if math.isfinite(float(x))]
+    lo, hi = min([lo, *extra]), max([hi, *extra])
     if not hi > lo:
         lo, hi = lo - 0.5, hi + 0.5
     step = _nice_step(hi - lo, max(int(max_classes), 1))
     first = math.floor(lo / step) * step
     last = math.ceil(hi / step) * step
+    if extra and first >= min(extra):  # a value on the lowest edge would fall in the open class below
+        first -= step
     edges = [round(first + k * step, 9) for k in range(int(round((last - first) / step)) + 1)]
-    inner = edges[1:-1] or [edges[0]]
+    inner = edges
     colors = _cmap_hex(len(inner) + 1, ORIGIN_CMAP)
     classes = [RasterClass(inner[0], colors[0], f"{inner[0]:+g} min or earlier")]
     for k in range(1, len(inner)):
@@ -243,11 +254,12 @@ def origin_time_classes(origin_min: Any, *, max_classes: int = 10) -> list[Raste
     return classes
 
 
-def origin_time_qml(origin_min: Any, *, reference: str, layer_name: str, nodata: float = -9999.0) -> str:
+def origin_time_qml(origin_min: Any, *, reference: str, layer_name: str, best_origin_min: float | None = None,
+                    nodata: float = -9999.0) -> str:
     """The origin-time raster's QML: :func:`origin_time_classes`, legend in minutes after ``reference``."""
     from ttmap.products.qml import classed_raster_qml
 
-    classes = origin_time_classes(origin_min)
+    classes = origin_time_classes(origin_min, include=() if best_origin_min is None else (best_origin_min,))
     labels = [c.label for c in classes]
     labels[0] += f" (minutes after {reference})"
     return classed_raster_qml(
