@@ -952,8 +952,11 @@ def classed_raster_qml(
     ups = [float(v) for v in uppers]
     colors = check_hex_colors(list(colors_hex))
     names = [str(t) for t in labels]
-    finite = ups[:-1] if ups and math.isinf(ups[-1]) and ups[-1] > 0 else ups
-    _check_levels(finite or [0.0], "uppers")
+    if not ups:
+        raise InputDataError("uppers is empty; give at least one class")
+    finite = ups[:-1] if math.isinf(ups[-1]) and ups[-1] > 0 else ups
+    if finite:
+        _check_levels(finite, "uppers")
     if len(ups) != len(colors) or len(ups) != len(names):
         raise InputDataError(
             f"{len(ups)} classes, {len(colors)} colours and {len(names)} labels; give one of each per class"

@@ -788,7 +788,7 @@ def _locate_parts(record: Mapping[str, Any], out: Path, files: list[Path], rel: 
     maps = [
         ReportFigure(title="Source location", data_uri=png_data_uri(p), href=rel(p),
                      caption="Colours: misfit above the best cell (chi-square); outline: the confidence "
-                             "region; cross: best cell; triangles: gauges with their residual at the best cell")
+                             "region; cross: best cell; triangles: gauges with their residual at the best cell.")
         for p in files if p.suffix == ".png" and p.name == "locate_map.png"
     ]
     headers = ("Gauge", "Observed", "Predicted", "Residual", "Uncertainty", "Residual / uncertainty",
