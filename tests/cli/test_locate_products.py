@@ -76,6 +76,11 @@ def test_styles_sit_where_qgis_looks(run: Path) -> None:
         rows = read_gpkg_layer_styles(run / gpkg)
         assert [(r["f_table_name"], r["useAsDefault"]) for r in rows] == [(layer, 1)], gpkg
         assert rows[0]["styleQML"].lstrip().startswith("<!DOCTYPE qgis")
+    # the style table does not make the files two-layer files for ttmap's readers
+    from ttmap.io.vector import read_vector_geometries
+
+    assert len(read_vector_geometries(run / "locate_gauges.gpkg")[0]) == len(
+        json.loads((run / "run.json").read_text())["picks"])
     region_rows = read_gpkg_layer_styles(run / "locate_region.gpkg")
     assert region_rows[0]["styleSLD"] == (run / "locate_region.sld").read_text()
     assert region_rows[0]["styleQML"] == (run / "locate_region.qml").read_text()
