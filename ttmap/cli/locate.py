@@ -67,6 +67,7 @@ def _confidence(ctx: click.Context, param: click.Parameter, value: Any) -> Any:
 @click.option("--out", "out_dir", type=click.Path(file_okay=False), default="ttmap_locate",
               show_default=True, help="Output folder.")
 @click.option("--overwrite", is_flag=True, help="Replace existing outputs.")
+@click.option("--no-report", is_flag=True, help="Skip report.html (the run on one self-contained page).")
 @verbosity_options
 @click.pass_context
 def locate_command(ctx: click.Context, bathymetry: str, **opts: Any) -> None:
@@ -74,8 +75,9 @@ def locate_command(ctx: click.Context, bathymetry: str, **opts: Any) -> None:
 
     One solve per gauge (reciprocity); the misfit of the picks at every
     candidate cell, the best cell and origin time, a confidence region, and
-    the residual per gauge. Writes locate_misfit.tif, locate_origin_time.tif,
-    locate_region.gpkg (+ .sld), locate_residuals.csv, locate_map.png and
+    the residual per gauge. Writes locate_misfit.tif, locate_origin_time.tif
+    (each with a QGIS style, .qml), locate_region.gpkg (+ .sld, .qml),
+    locate_gauges.gpkg, locate_residuals.csv, locate_map.png, report.html and
     run.json.
 
     \b
@@ -105,6 +107,7 @@ def locate_command(ctx: click.Context, bathymetry: str, **opts: Any) -> None:
             picks_layer=opts.get("picks_layer"), overwrite=opts["overwrite"],
             executor=opts["executor"], n_workers=opts.get("workers"), say=rep.stage,
             command_line=shlex.join(["ttmap", *sys.argv[1:]]),
+            report=not opts.get("no_report"),
         )
         loc = record["location"]
         origin = (loc["best_origin_time_utc"] or

@@ -635,6 +635,10 @@ def _choose_layer(path: str | os.PathLike[str], layer: str | None, what: str) ->
     if not names:
         raise InputDataError(f"{what} {name!r} has no layers; give a file with features")
     if layer is None:
+        # QGIS's style table (ttmap writes one into styled GeoPackages) is not a data layer
+        data = [str(row[0]) for row in listed if not (str(row[0]) == "layer_styles" and row[1] is None)]
+        if len(data) == 1:
+            return name, data[0]
         if len(names) > 1:
             raise InputDataError(
                 f"{what} {name!r} has {len(names)} layers ({', '.join(names)}); "

@@ -8,14 +8,22 @@ solves into running misfit sums (:class:`ttmap.locate.MisfitSums`: serial, a
 local Dask cluster or a scheduler; each worker returns only its sums) and
 writes:
 
-- ``locate_misfit.tif``: chi-square misfit per candidate cell (float32);
-- ``locate_origin_time.tif``: best origin time per cell, minutes relative to
-  the reference in its tags (the known origin, or the earliest pick);
-- ``locate_region.gpkg`` (+ ``.sld``): the confidence region polygon(s);
+- ``locate_misfit.tif`` (+ ``.qml``): chi-square misfit per candidate cell
+  (float32), styled in classes cut at the region levels above the best cell;
+- ``locate_origin_time.tif`` (+ ``.qml``): best origin time per cell, minutes
+  relative to the reference in its tags (the known origin, or the earliest
+  pick), styled in round graduated classes;
+- ``locate_region.gpkg`` (+ ``.sld``, ``.qml``, and a default
+  ``layer_styles`` row inside): the confidence region polygon(s);
+- ``locate_gauges.gpkg``: the gauges where they were solved from, with the
+  residual table's columns, styled by normalised residual and labelled;
 - ``locate_residuals.csv``: observed, predicted and residual per gauge at the
   best cell;
 - ``locate_map.png``: misfit, region, gauges with residuals;
+- ``report.html`` (unless ``report=False``): the run on one page;
 - ``run.json`` last (job ``"locate"``).
+
+The styles come from :mod:`ttmap.products.locate_styles`.
 
 Every input is checked before any solve; nothing is written on a refusal.
 It is an analysis aid: the location is as good as the picks, their
@@ -40,17 +48,24 @@ from ttmap.jobs.batch import map_calls, medium_for_spec
 from ttmap.jobs.options import ReadingOptions, SpeedOptions
 from ttmap.tasks import MediumSpec
 
-__all__ = ["LOCATE_FILES", "LOCATE_CAUTION", "run_locate_job"]
+__all__ = ["LOCATE_FILES", "LOCATE_CAUTION", "REGION_LAYER", "GAUGES_LAYER", "run_locate_job"]
 
 #: Files of a locate run (run.json is written last, beside them).
 LOCATE_FILES: tuple[str, ...] = (
     "locate_misfit.tif",
+    "locate_misfit.qml",
     "locate_origin_time.tif",
+    "locate_origin_time.qml",
     "locate_region.gpkg",
     "locate_region.sld",
+    "locate_region.qml",
+    "locate_gauges.gpkg",
     "locate_residuals.csv",
     "locate_map.png",
 )
+#: Layer names inside the GeoPackages (each carries a default ``layer_styles`` row).
+REGION_LAYER: str = "confidence_region"
+GAUGES_LAYER: str = "gauges"
 #: What every locate product says about itself.
 LOCATE_CAUTION: str = (
     "Analysis aid only: a source location estimated from arrival times, as good as the picks, "
@@ -128,6 +143,7 @@ def run_locate_job(
     n_workers: int | None = None,
     say: Callable[[str], None] | None = None,
     command_line: str = "",
+    report: bool = True,
 ) -> dict[str, Any]:
     """Locate the source of observed first arrivals; write the products and ``run.json``.
 
@@ -164,6 +180,9 @@ def run_locate_job(
         Progress messages.
     command_line : str
         Recorded in ``run.json``.
+    report : bool
+        Write ``report.html`` (the run on one self-contained page) just
+        before ``run.json``.
 
     Returns
     -------
@@ -184,6 +203,7 @@ def run_locate_job(
     from ttmap.io.picks import read_picks
     from ttmap.io.raster import file_sha256
     from ttmap.io.sites import sites_from_lonlat
+    from ttmap.jobs.plan import REPORT_NAME, RUN_RECORD_NAME
     from ttmap.jobs.record import utc_now
     from ttmap.locate import check_picks, delta_chi2
     from ttmap.products.sites import SNAP_MOVED, SNAP_NO_WATER, SNAP_OK, SNAP_OUTSIDE, snap_sites
@@ -206,9 +226,9 @@ def run_locate_job(
     if out.exists() and not out.is_dir():
         raise InputDataError(f"output folder {str(out)!r} is a file; give a folder name")
     targets = [out / n for n in LOCATE_FILES]
-    run_json = out / "run.json"
+    run_json = out / RUN_RECORD_NAME
     if out.is_dir():
-        check_writable([*targets, run_json], overwrite)
+        check_writable([*targets, *([out / REPORT_NAME] if report else []), run_json], overwrite)
 
     # 1. Picks, checked before anything is solved.
     picks = read_picks(picks_path, layer=picks_layer)
@@ -325,7 +345,11 @@ def run_locate_job(
         _write_products(staged, grid, medium, loc, residual_rows, picks, snapped, summary, overwrite)
         write_s = time.perf_counter() - t0
 
-        from ttmap.jobs.record import build_run_record, file_entry, write_run_record
+        from ttmap.jobs.record import build_run_record, file_entry
+        from ttmap.jobs.styling import write_report_and_record
+
+        if report:
+            staged.append(stage.new / REPORT_NAME)  # written from the record, just before run.json
 
         record = build_run_record(
             job="locate",
@@ -351,6 +375,7 @@ def run_locate_job(
                 "site_search_radius_m": radius,
                 "executor": executor,
                 "workers": n_workers,
+                "report": report,
                 "out_dir": str(out),
             },
             timings_s={"read_s": read_s, "solve_s": solve_s, "locate_s": locate_s, "write_s": write_s,
@@ -362,7 +387,7 @@ def run_locate_job(
             location=summary,
             picks=residual_rows,
         )
-        write_run_record(record, stage.new / run_json.name, overwrite=True)
+        write_report_and_record(record, stage.new, report=report, overwrite=True, say=say)
     record["run_json"] = str(run_json)
     return record
 
@@ -404,49 +429,78 @@ def _write_products(
     picks: Any, snapped: Sequence[Any], summary: dict[str, Any], overwrite: bool,
 ) -> None:
     import numpy as np
+    from shapely.geometry import Point
 
     from ttmap.io.atomic import atomic_output_set
+    from ttmap.io.figures import save_figure
     from ttmap.io.raster import write_raster
     from ttmap.io.sites import write_site_table_csv
+    from ttmap.io.styles import write_gpkg_layer_style, write_qml, write_sld
     from ttmap.io.vector import VectorLayer, write_vector_layers
+    from ttmap.products import locate_styles as ls
     from ttmap.products.cautions import CAUTION_SHORT
     from ttmap.products.locate_map import render_locate_map
-    from ttmap.io.figures import save_figure
-    from ttmap.io.styles import write_sld
 
     import ttmap
 
     base_tags = {"SOFTWARE": f"ttmap {ttmap.__version__}", "CAUTION": LOCATE_CAUTION + " " + CAUTION_SHORT}
     level_pct = f"{100 * summary['confidence']:g} %"
+    gpkg_meta = {"caution": LOCATE_CAUTION, "software": f"ttmap {ttmap.__version__}"}
+    style_note = f"{LOCATE_CAUTION} {CAUTION_SHORT}"
     with atomic_output_set(list(targets), overwrite=overwrite) as tmp:
-        t_mis, t_org, t_gpkg, t_sld, t_csv, t_png = tmp
+        t = dict(zip(LOCATE_FILES, tmp, strict=True))
         write_raster(
-            t_mis, loc.misfit, grid, dtype="float32",
+            t["locate_misfit.tif"], loc.misfit, grid, dtype="float32",
             tags={**base_tags, "QUANTITY": "chi-square misfit of the picks for a source at this cell",
                   "BEST_MISFIT": f"{loc.best_misfit:.4f}", "DELTA_CHI2": f"{loc.delta_chi2:.4f}",
                   "CONFIDENCE": level_pct,
                   "REGION": f"cells with misfit <= {loc.best_misfit + loc.delta_chi2:.4f}"},
             band_description="chi-square misfit", overwrite=True,
         )
+        excess = np.asarray(loc.misfit) - loc.best_misfit
+        finite = excess[np.isfinite(excess)]
+        write_qml(t["locate_misfit.qml"], ls.misfit_qml(
+            loc.best_misfit, summary["confidence"], layer_name="locate_misfit",
+            max_excess=float(finite.max()) if finite.size else None), overwrite=True)
+        origin_min = np.asarray(loc.origin_time_s) / 60.0
         write_raster(
-            t_org, loc.origin_time_s / 60.0, grid, dtype="float32",
+            t["locate_origin_time.tif"], origin_min, grid, dtype="float32",
             tags={**base_tags, "QUANTITY": "best origin time for a source at this cell, minutes",
                   "UNITS": "minutes", "REFERENCE": summary["origin_time_reference"]},
             band_description=f"origin time, minutes after {summary['origin_time_reference']}",
             units="minutes", overwrite=True,
         )
+        write_qml(t["locate_origin_time.qml"], ls.origin_time_qml(
+            origin_min.astype(np.float32), reference=summary["origin_time_reference"],
+            layer_name="locate_origin_time", best_origin_min=summary["best_origin_time_min"]), overwrite=True)
         geoms = [] if loc.polygons is None else list(getattr(loc.polygons, "geoms", [loc.polygons]))
         layer = VectorLayer(
-            "confidence_region", geoms,
+            REGION_LAYER, geoms,
             {"confidence": [summary["confidence"]] * len(geoms),
              "delta_chi2": [loc.delta_chi2] * len(geoms),
              "best_chi2": [loc.best_misfit] * len(geoms)},
             geometry_type="MultiPolygon",
             description=f"{level_pct} confidence region of the source location. {LOCATE_CAUTION}",
         )
-        write_vector_layers(t_gpkg, [layer], crs=grid.crs, overwrite=True,
-                            metadata={"caution": LOCATE_CAUTION, "software": f"ttmap {ttmap.__version__}"})
-        write_sld(t_sld, _region_sld(level_pct), overwrite=True)
+        write_vector_layers(t["locate_region.gpkg"], [layer], crs=grid.crs, overwrite=True, metadata=gpkg_meta)
+        region_sld, region_qml = ls.region_sld(level_pct, layer_name=REGION_LAYER), ls.region_qml(level_pct)
+        write_gpkg_layer_style(t["locate_region.gpkg"], REGION_LAYER, region_qml, sld_text=region_sld,
+                               description=style_note)
+        write_sld(t["locate_region.sld"], region_sld, overwrite=True)
+        write_qml(t["locate_region.qml"], region_qml, overwrite=True)
+        gauge_cols = ("name", "observed_min", "predicted_min", "residual_min", "sigma_min", "normalised",
+                      "moved_m", "snap_status", "lon", "lat")
+        gauges_layer = VectorLayer(
+            GAUGES_LAYER, [Point(float(sn.x), float(sn.y)) for sn in snapped],
+            {k: [r[k] for r in rows] for k in gauge_cols},
+            geometry_type="Point",
+            description=("Gauges where they were solved from (moved_m: distance moved to open water; lon, "
+                         "lat: the position given). Residual = observed - origin - predicted travel time at "
+                         f"the best cell, minutes; normalised = residual / sigma. {LOCATE_CAUTION}"),
+        )
+        write_vector_layers(t["locate_gauges.gpkg"], [gauges_layer], crs=grid.crs, overwrite=True,
+                            metadata=gpkg_meta)
+        write_gpkg_layer_style(t["locate_gauges.gpkg"], GAUGES_LAYER, ls.gauges_qml(), description=style_note)
         table = SimpleNamespace(
             columns={k: [r[k] for r in rows] for k in rows[0]},
             comments=[CAUTION_SHORT, LOCATE_CAUTION,
@@ -455,39 +509,20 @@ def _write_products(
             decimals={"observed_min": 2, "predicted_min": 2, "origin_min": 2, "residual_min": 2,
                       "sigma_min": 2, "normalised": 2, "moved_m": 0, "lon": 5, "lat": 5},
         )
-        write_site_table_csv(t_csv, table, overwrite=True)
-        excess = loc.misfit - loc.best_misfit
+        write_site_table_csv(t["locate_residuals.csv"], table, overwrite=True)
         gauges = [(n["name"], float(sn.x), float(sn.y), float(n["residual_min"]))
                   for n, sn in zip(rows, snapped, strict=True)]
         origin_txt = (f"origin {summary['best_origin_time_utc']}" if summary["best_origin_time_utc"]
                       else f"origin {summary['best_origin_time_min']:+.1f} min")
         fig = render_locate_map(
-            np.asarray(excess), grid, medium.water, loc.polygons, gauges, (loc.best_x, loc.best_y),
+            excess, grid, medium.water, loc.polygons, gauges, (loc.best_x, loc.best_y),
             title="Source location from observed first arrivals",
             subtitle=(f"best cell lon {summary['best_lon']:.3f}, lat {summary['best_lat']:.3f}; "
                       f"{origin_txt}; {level_pct} region; {summary['message']}"),
             caution=LOCATE_CAUTION + "\n" + CAUTION_SHORT,
             delta_chi2=loc.delta_chi2,
         )
-        save_figure(fig, t_png, format="png")
+        save_figure(fig, t["locate_map.png"], format="png")
         import matplotlib.pyplot as plt
 
         plt.close(fig)
-
-
-def _region_sld(level_pct: str) -> str:
-    from ttmap.products.styles import default_abstract, sld_css, sld_document, sld_element, sld_serialise
-
-    root, fts = sld_document("confidence_region", f"{level_pct} confidence region of the source",
-                             default_abstract())
-    rule = sld_element(fts, "Rule")
-    sld_element(rule, "Name", "confidence_region")
-    sld_element(rule, "Title", f"{level_pct} confidence region")
-    sym = sld_element(rule, "PolygonSymbolizer")
-    fill = sld_element(sym, "Fill")
-    sld_css(fill, "fill", "#00a0ff")
-    sld_css(fill, "fill-opacity", "0.25")
-    stroke = sld_element(sym, "Stroke")
-    sld_css(stroke, "stroke", "#0060a0")
-    sld_css(stroke, "stroke-width", "1.5")
-    return sld_serialise(root)

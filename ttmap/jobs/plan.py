@@ -74,7 +74,7 @@ SUBSET_FOLDERS: tuple[str, ...] = ("site_maps",)
 _PRODUCT_SUFFIX = r"(?:tif|tif\.aux\.xml|tif\.ovr|sld|gpkg|gpkg-wal|gpkg-shm|shp|shx|dbf|prj|cpg|qix|shp\.xml|geojson|json|csv|png|pdf)"
 _PRODUCT_RE = re.compile(
     r"^(?:"
-    r"(?:arrival|isochrones|map|coast|site_centred|minutes_left|difference|envelope)_[A-Za-z0-9_.-]+\." + _PRODUCT_SUFFIX
+    r"(?:arrival|isochrones|map|coast|site_centred|minutes_left|difference|envelope|locate)_[A-Za-z0-9_.-]+\." + _PRODUCT_SUFFIX
     + r"|(?:sites|timeline|sites_x_scenarios|earliest_by_site)\." + _PRODUCT_SUFFIX
     + r"|[A-Za-z0-9_.-]+\.task\.json"
     + r"|" + re.escape(RUN_RECORD_NAME)

@@ -24,8 +24,13 @@ Rasters:
 - :func:`difference_qml` - a difference of two arrivals in minutes: a
   diverging ramp centred on zero.
 
+- :func:`classed_raster_qml` - any classed raster with its own legend text
+  (upper bounds, colours, labels), e.g. the source-location misfit.
+
 Vectors:
 
+- :func:`single_fill_qml` - one fill and outline for every polygon.
+- :func:`graduated_points_qml` - points classed on a numeric field, labelled.
 - :func:`lines_qml` - isochrone lines labelled along the line.
 - :func:`bands_qml` - isochrone bands graduated by their lower bound.
 - :func:`coast_qml` - the coastal arrival layer, one category per class and
@@ -66,6 +71,9 @@ __all__ = [
     "coast_qml",
     "sites_qml",
     "wave_paths_qml",
+    "classed_raster_qml",
+    "single_fill_qml",
+    "graduated_points_qml",
     "site_status_colors",
     "qml_renderer_summary",
 ]
@@ -889,6 +897,201 @@ def wave_paths_qml(
     if label_attribute is not None:
         _check_name("label_attribute", label_attribute)
         _labeling(root, label_attribute, color=color, font_size_pt=7.0, placement="line")
+    return _serialise(root)
+
+
+def classed_raster_qml(
+    uppers: Sequence[float],
+    colors_hex: Sequence[str],
+    labels: Sequence[str],
+    *,
+    layer_name: str,
+    title: str,
+    nodata: float | None = -9999.0,
+    abstract: str | None = None,
+) -> str:
+    """QGIS style for a classed raster with its own legend text: class ``i`` holds ``(upper[i-1], upper[i]]``.
+
+    Parameters
+    ----------
+    uppers : sequence of float
+        Upper bound of each class, strictly increasing; the last may be
+        ``inf`` (an open class). The first class takes every value up to
+        its bound (QGIS ``DISCRETE``: a value takes the first class whose
+        bound is >= it, so a value equal to a bound falls in the class below).
+    colors_hex : sequence of str
+        One colour per class.
+    labels : sequence of str
+        One legend text per class.
+    layer_name, title : str
+        Layer the style is for, and its title.
+    nodata : float or None
+        The raster's nodata value (transparent), or None.
+    abstract : str, optional
+        Abstract in the style's metadata; the short caution by default.
+
+    Returns
+    -------
+    str
+        The QML document (single-band pseudocolour, ``DISCRETE``).
+
+    Raises
+    ------
+    InputDataError
+        Empty or unsorted bounds, lengths that differ, bad colours, a nodata
+        value inside the classes.
+
+    Examples
+    --------
+    >>> text = classed_raster_qml([1.0, 5.0, math.inf], ["#000000", "#808080", "#ffffff"],
+    ...                           ["low", "middle", "high"], layer_name="x", title="X")
+    >>> qml_renderer_summary(text)["classes"], 'colorRampType="DISCRETE"' in text
+    (3, True)
+    """
+    _check_name("layer_name", layer_name)
+    ups = [float(v) for v in uppers]
+    colors = check_hex_colors(list(colors_hex))
+    names = [str(t) for t in labels]
+    if not ups:
+        raise InputDataError("uppers is empty; give at least one class")
+    finite = ups[:-1] if math.isinf(ups[-1]) and ups[-1] > 0 else ups
+    if finite:
+        _check_levels(finite, "uppers")
+    if len(ups) != len(colors) or len(ups) != len(names):
+        raise InputDataError(
+            f"{len(ups)} classes, {len(colors)} colours and {len(names)} labels; give one of each per class"
+        )
+    if nodata is not None and (not math.isfinite(float(nodata)) or (finite and float(nodata) >= finite[0])):
+        raise InputDataError(f"nodata {nodata!r} must be a finite value below the first class bound")
+    root = _root(title=title, abstract=abstract)
+    items = [(u, c, 1.0, t) for u, c, t in zip(ups, colors, names, strict=True)]
+    low = finite[0] if finite else 0.0
+    _pseudocolor(root, items, mode="DISCRETE", nodata=None if nodata is None else float(nodata),
+                 vmin=low, vmax=finite[-1] if len(finite) > 1 else low + 1.0)
+    return _serialise(root)
+
+
+def single_fill_qml(
+    *,
+    title: str,
+    fill_hex: str,
+    fill_opacity: float,
+    stroke_hex: str,
+    stroke_width_mm: float,
+    abstract: str | None = None,
+) -> str:
+    """QGIS style for polygons: one fill and one outline for every feature.
+
+    Parameters
+    ----------
+    title : str
+        Style title.
+    fill_hex : str
+        Fill colour ``"#rrggbb"``.
+    fill_opacity : float
+        Between 0 and 1.
+    stroke_hex : str
+        Outline colour.
+    stroke_width_mm : float
+        Outline width, millimetres, > 0.
+    abstract : str, optional
+        Abstract in the style's metadata; the short caution by default.
+
+    Returns
+    -------
+    str
+        The QML document: a ``singleSymbol`` renderer with a ``SimpleFill``.
+
+    Examples
+    --------
+    >>> text = single_fill_qml(title="t", fill_hex="#00a0ff", fill_opacity=0.25,
+    ...                        stroke_hex="#0060a0", stroke_width_mm=0.42)
+    >>> qml_renderer_summary(text)["renderer"], '"0,160,255,64"' in text
+    ('singleSymbol', True)
+    """
+    if not 0.0 <= float(fill_opacity) <= 1.0:
+        raise InputDataError(f"fill_opacity {fill_opacity!r} is outside 0..1")
+    if not (math.isfinite(float(stroke_width_mm)) and float(stroke_width_mm) > 0.0):
+        raise InputDataError(f"stroke_width_mm {stroke_width_mm!r} must be > 0")
+    root = _root(title=title, abstract=abstract)
+    rend = _renderer(root, "singleSymbol")
+    symbols = ET.SubElement(rend, "symbols")
+    sym = ET.SubElement(
+        symbols, "symbol",
+        {"type": "fill", "name": "0", "alpha": "1", "clip_to_extent": "1", "force_rhr": "0"},
+    )
+    _symbol_layer(sym, "SimpleFill", {
+        "color": _rgba(fill_hex, float(fill_opacity)),
+        "style": "solid",
+        "outline_color": _rgba(stroke_hex),
+        "outline_style": "solid",
+        "outline_width": _num(float(stroke_width_mm)),
+        "outline_width_unit": "MM",
+        "joinstyle": "round",
+    })
+    return _serialise(root)
+
+
+def graduated_points_qml(
+    ranges: Sequence[tuple[float, float, str]],
+    colors_hex: Sequence[str],
+    *,
+    title: str,
+    attribute: str,
+    label_attribute: str | None = None,
+    size_mm: float = 3.0,
+    abstract: str | None = None,
+) -> str:
+    """QGIS style for points graduated on a numeric field, optionally labelled.
+
+    Parameters
+    ----------
+    ranges : sequence of (lower, upper, label)
+        Ascending, non-overlapping ranges (QGIS ranges are closed at both
+        ends and the first that matches wins); ``-inf`` / ``inf`` ends are
+        written as very large numbers.
+    colors_hex : sequence of str
+        One colour per range.
+    title : str
+        Style title.
+    attribute : str
+        Numeric field to classify.
+    label_attribute : str, optional
+        Field labelling each point; no labels if None.
+    size_mm : float
+        Marker diameter, millimetres, > 0.
+    abstract : str, optional
+        Abstract in the style's metadata; the short caution by default.
+
+    Returns
+    -------
+    str
+        The QML document: a ``graduatedSymbol`` renderer of circle markers.
+    """
+    _check_name("attribute", attribute)
+    rows = [(float(lo), float(hi), str(t)) for lo, hi, t in ranges]
+    colors = check_hex_colors(list(colors_hex))
+    if not rows or len(rows) != len(colors):
+        raise InputDataError(f"{len(rows)} ranges but {len(colors)} colours; give one colour per range")
+    if any(not hi > lo for lo, hi, _ in rows) or any(b[0] < a[1] for a, b in itertools.pairwise(rows)):
+        raise InputDataError(f"ranges {[(lo, hi) for lo, hi, _ in rows]} must ascend without overlap")
+    if not (math.isfinite(float(size_mm)) and float(size_mm) > 0.0):
+        raise InputDataError(f"size_mm {size_mm!r} must be > 0")
+
+    def bound(v: float) -> str:
+        return repr(math.copysign(_OPEN_END_MIN, v)) if math.isinf(v) else repr(v)
+
+    root = _root(title=title, abstract=abstract, labels=label_attribute is not None)
+    rend = _renderer(root, "graduatedSymbol", attr=attribute, graduatedMethod="GraduatedColor")
+    rng = ET.SubElement(rend, "ranges")
+    symbols = ET.SubElement(rend, "symbols")
+    for i, ((lo, hi, label), color) in enumerate(zip(rows, colors, strict=True)):
+        ET.SubElement(rng, "range", {"lower": bound(lo), "upper": bound(hi), "symbol": str(i), "label": label,
+                                     "render": "true"})
+        _marker_symbol(symbols, str(i), color, float(size_mm))
+    if label_attribute is not None:
+        _check_name("label_attribute", label_attribute)
+        _labeling(root, label_attribute, color="#1a1a1a", font_size_pt=8.0, placement="point")
     return _serialise(root)
 
 

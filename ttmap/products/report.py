@@ -5,7 +5,7 @@
   with each margin's colour level, the scenario comparison when there is one,
   the run record in short and relative links to every product.
 - :func:`report_context_from_record` - builds it from a run record
-  (schema v2, jobs ``map``, ``site-map`` and ``scenario``) and the products
+  (schema v2, jobs ``map``, ``site-map``, ``scenario`` and ``locate``) and the products
   it lists; the jobs call it just before they write ``run.json``.
 - :func:`report_context_from_run` - the same from a finished run's folder.
 - :func:`render_report` - the HTML text, from the Jinja2 template
@@ -148,6 +148,8 @@ class ReportContext:
         Every product, linked relative to the report.
     margin_colors : mapping of str to str
         Colour of each margin level (from the timeline chart).
+    sites_heading : str
+        Heading of the table section (``"Gauges"`` for a locate run).
     """
 
     title: str
@@ -164,6 +166,7 @@ class ReportContext:
     record: tuple[tuple[str, str], ...] = ()
     products: tuple[ReportLink, ...] = ()
     margin_colors: Mapping[str, str] = field(default_factory=dict)
+    sites_heading: str = "Sites"
 
 
 # ---------------------------------------------------------------------------
@@ -385,8 +388,8 @@ def report_context_from_record(record: Mapping[str, Any], out_dir: str | os.Path
     Parameters
     ----------
     record : mapping
-        A run record (``docs/run-record.md``) of job ``"map"``, ``"site-map"``
-        or ``"scenario"``.
+        A run record (``docs/run-record.md``) of job ``"map"``, ``"site-map"``,
+        ``"scenario"`` or ``"locate"``.
     out_dir : path-like
         The run's output folder; product paths in the record are relative to it.
     title : str, optional
@@ -413,7 +416,11 @@ def report_context_from_record(record: Mapping[str, Any], out_dir: str | os.Path
       ``sites_x_scenarios.csv`` (one row per site and scenario, margins
       coloured); the comparison shows ``sites_x_scenarios.png`` and
       ``earliest_by_site.csv``; the record in short counts finished and
-      failed solves and what the comparison skipped.
+      failed solves and what the comparison skipped;
+    - locate: the facts are the best cell, origin time, confidence region
+      and its shape; the map is ``locate_map.png``; the table (headed
+      "Gauges") the residual per gauge from ``record["picks"]``; the
+      record's location caution comes before the common one.
 
     Product links are relative to ``out_dir``, where the report belongs;
     files listed but absent (the report itself, while it is being written)
@@ -473,7 +480,7 @@ def report_context_from_record(record: Mapping[str, Any], out_dir: str | os.Path
 
     return ReportContext(
         title=title or parts.title,
-        cautions=tuple(CAUTION_LINES),
+        cautions=(*parts.cautions, *CAUTION_LINES),
         caution_short=CAUTION_SHORT,
         generated_utc=_dt.datetime.now(_dt.timezone.utc).strftime("%Y-%m-%d %H:%M UTC"),
         run_facts=tuple(parts.facts),
@@ -486,6 +493,7 @@ def report_context_from_record(record: Mapping[str, Any], out_dir: str | os.Path
         record=tuple(summary),
         products=tuple(links),
         margin_colors=dict(MARGIN_LEVEL_COLORS),
+        sites_heading=parts.sites_heading,
     )
 
 
@@ -495,6 +503,7 @@ _JOB_TITLES = {
     "map": "map run (arrival times from one source)",
     "site-map": "site-map run (minutes from any source location to each site)",
     "scenario": "scenario run (many sources, compared)",
+    "locate": "locate run (where the waves came from, from observed first arrivals)",
 }
 
 
@@ -510,6 +519,8 @@ class _Parts:
     sites: ReportTable | None = None
     comparison: list[ReportFigure] = field(default_factory=list)
     comparison_table: ReportTable | None = None
+    cautions: list[str] = field(default_factory=list)
+    sites_heading: str = "Sites"
 
 
 def _common_facts(record: Mapping[str, Any]) -> list[tuple[str, str]]:
@@ -737,7 +748,91 @@ def _scenario_site_table(path: Path) -> ReportTable:
     )
 
 
-_JOB_BUILDERS = {"map": _map_parts, "site-map": _site_map_parts, "scenario": _scenario_parts}
+def _locate_parts(record: Mapping[str, Any], out: Path, files: list[Path], rel: Any) -> _Parts:
+    """A locate run: the best cell, origin time, region, the residual per gauge, the map."""
+    loc = record.get("location") or {}
+    params = record.get("parameters") or {}
+    inputs = record.get("inputs") or {}
+    region = loc.get("region") or {}
+    picks = [p for p in (record.get("picks") or []) if isinstance(p, Mapping)]
+    level = _float(loc.get("confidence"))
+    pct = f"{100 * level:g} %" if math.isfinite(level) else "?"
+    known = bool(loc.get("origin_known"))
+    if loc.get("best_origin_time_utc"):
+        origin = f"{loc['best_origin_time_utc']} ({'known' if known else 'estimated'})"
+    else:
+        origin = (f"{_float(loc.get('best_origin_time_min')):+.2f} min after {loc.get('origin_time_reference', '?')} "
+                  f"({'known' if known else 'estimated'})")
+    picks_in = inputs.get("picks") or {}
+    facts = [
+        ("Best cell", f"lon {_float(loc.get('best_lon')):.4f}, lat {_float(loc.get('best_lat')):.4f} "
+                      f"(row {loc.get('best_row')}, col {loc.get('best_col')})"),
+        ("Origin time", origin),
+        ("Confidence region",
+         f"{pct}: misfit up to the best cell's chi-square + {_float(loc.get('delta_chi2')):.2f} "
+         f"(2 degrees of freedom); {region.get('region_cells', '?')} cells; one-sigma axes "
+         f"{_float(region.get('major_km')):.0f} x {_float(region.get('minor_km')):.0f} km "
+         f"(ratio {_float(region.get('axis_ratio')):.1f}, long axis azimuth "
+         f"{_float(region.get('major_azimuth_deg')):.0f} deg)"),
+        ("Region shape", str(loc.get("message", ""))),
+        ("Fit", f"chi-square {_float(loc.get('best_misfit_chi2')):.2f} on "
+                f"{loc.get('degrees_of_freedom_fit', '?')} degree(s) of freedom at the best cell"),
+        ("Picks", f"{os.path.basename(str(picks_in.get('path', '?')))} ({len(picks)} gauges; "
+                  f"{params.get('pick_time_base', '')})"),
+        ("Speed model", str(loc.get("speed_model") or params.get("speed_model", "?"))
+         + (f" (floor depth {float(params['floor_depth_m']):g} m)" if params.get("floor_depth_m") is not None
+            else "")),
+        *_common_facts(record),
+        *_command_fact(record),
+    ]
+    maps = [
+        ReportFigure(title="Source location", data_uri=png_data_uri(p), href=rel(p),
+                     caption="Colours: misfit above the best cell (chi-square); outline: the confidence "
+                             "region; cross: best cell; triangles: gauges with their residual at the best cell.")
+        for p in files if p.suffix == ".png" and p.name == "locate_map.png"
+    ]
+    headers = ("Gauge", "Observed", "Predicted", "Residual", "Uncertainty", "Residual / uncertainty",
+               "Moved to water")
+    units = ("", "min", "min", "min", "min", "", "m")
+    numeric = (False, True, True, True, True, True, True)
+    rows = []
+    for p in picks:
+        values: list[str | float] = [
+            str(p.get("name", "")), _float(p.get("observed_min")), _float(p.get("predicted_min")),
+            _float(p.get("residual_min")), _float(p.get("sigma_min")), _float(p.get("normalised")),
+            _float(p.get("moved_m")),
+        ]
+        cells = tuple(
+            v if isinstance(v, str) else f"{v:+.2f}" if i in (3, 5) and math.isfinite(v)
+            else _fmt(v, 0 if i == 6 else 2)
+            for i, v in enumerate(values)
+        )
+        keys = tuple(v.lower() if isinstance(v, str) else _key(v) for v in values)
+        rows.append(ReportTableRow(cells=cells, sort_keys=keys))
+    table = ReportTable(
+        headers=headers, units=units, rows=tuple(rows), numeric=numeric,
+        note=(f"Observed: minutes after {loc.get('origin_time_reference', 'the reference')}. Predicted: travel "
+              "time from the best cell to the gauge (where it was moved to open water). Residual = observed - "
+              f"origin time ({_float(loc.get('best_origin_time_min')):+.2f} min) - predicted. "
+              "Click a column heading to sort."),
+    ) if rows else None
+    timings = record.get("timings_s") or {}
+    summary = [("Gauge solves", f"{len(picks)}, one per gauge (reciprocity), executor "
+                                f"{params.get('executor', '?')}")]
+    parts = [f"{k[:-2]} {float(timings[k]):.2f} s" for k in ("read_s", "solve_s", "locate_s", "write_s")
+             if k in timings]
+    if parts:
+        summary.append(("Timings", ", ".join(parts)))
+    return _Parts(
+        title=f"Source location from observed first arrivals ({len(picks)} gauges)",
+        facts=facts, record=summary, maps=maps, sites=table,
+        cautions=[str(loc["caution"])] if loc.get("caution") else [],
+        sites_heading="Gauges",
+    )
+
+
+_JOB_BUILDERS = {"map": _map_parts, "site-map": _site_map_parts, "scenario": _scenario_parts,
+                 "locate": _locate_parts}
 
 
 def render_report(context: ReportContext) -> str:
@@ -783,7 +878,7 @@ def _sections(context: ReportContext) -> list[tuple[str, str]]:
     if context.maps:
         out.append(("maps", "Maps"))
     if context.sites is not None:
-        out.append(("sites", "Sites"))
+        out.append(("sites", context.sites_heading))
     if context.timeline is not None:
         out.append(("timeline", "Timeline"))
     if context.comparison or context.comparison_table is not None:
