@@ -71,13 +71,14 @@ ISOCHRONE_LAYERS: tuple[str, str] = ("isochrone_lines", "isochrone_bands")
 #: Subfolders a job may fill with a whole product set of its own (the demo's site map).
 SUBSET_FOLDERS: tuple[str, ...] = ("site_maps",)
 
-_PRODUCT_SUFFIX = r"(?:tif|tif\.aux\.xml|tif\.ovr|sld|gpkg|gpkg-wal|gpkg-shm|shp|shx|dbf|prj|cpg|qix|shp\.xml|geojson|json|csv|png|pdf)"
+_PRODUCT_SUFFIX = r"(?:tif|tif\.aux\.xml|tif\.ovr|sld|gpkg|gpkg-wal|gpkg-shm|shp|shx|dbf|prj|cpg|qix|shp\.xml|geojson|json|csv|png|pdf|qml)"
 _PRODUCT_RE = re.compile(
     r"^(?:"
     r"(?:arrival|isochrones|map|coast|site_centred|minutes_left|difference|envelope|locate)_[A-Za-z0-9_.-]+\." + _PRODUCT_SUFFIX
-    + r"|(?:sites|timeline|sites_x_scenarios|earliest_by_site)\." + _PRODUCT_SUFFIX
+    + r"|(?:sites|timeline|sites_x_scenarios|earliest_by_site|wave_paths)\." + _PRODUCT_SUFFIX
     + r"|[A-Za-z0-9_.-]+\.task\.json"
     + r"|" + re.escape(RUN_RECORD_NAME)
+    + r"|" + re.escape(REPORT_NAME)
     + r")$"
 )
 
@@ -93,6 +94,8 @@ def is_product_name(relative: str) -> bool:
     --------
     >>> is_product_name("arrival_front.tif"), is_product_name("site_maps/run.json")
     (True, True)
+    >>> [is_product_name(n) for n in ("arrival_front.qml", "report.html", "wave_paths.gpkg")]
+    [True, True, True]
     >>> is_product_name("notes.txt"), is_product_name("data/arrival_front.tif")
     (False, False)
     """
