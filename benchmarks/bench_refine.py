@@ -15,9 +15,9 @@ error, each against something outside the solver:
 - *open water*: cells whose straight line to the source stays in water, against
   distance / sqrt(g h) (exact in uniform depth; g = 9.80665 m/s^2);
 - *behind islands*: cells whose straight line meets an island, against the
-  shortest water path around the islands (a visibility-graph distance over
-  the islands' polygons, computed with shapely and scipy; exact for the
-  polygonal islands, which are the refined grid's land cells drawn as squares).
+  shortest water path around the islands' land cells drawn as squares (the
+  visibility graph of their corners, ``WaterPaths`` of
+  tests/reference/test_islands_reference.py: shapely and scipy, not ttmap).
 
 Times are one solve through the API (``prepare_medium`` then ``travel_time``),
 best of ``--repeat`` runs, CPU seconds (``time.process_time``); memory is the
@@ -33,14 +33,19 @@ import time
 import tracemalloc
 import warnings
 
+import sys
+from pathlib import Path
+
 import numpy as np
 import shapely
 from affine import Affine
-from scipy.sparse import csr_matrix
-from scipy.sparse.csgraph import dijkstra
 
 from ttmap import Grid, Source, prepare_medium
 from ttmap.io.raster import refine_depth
+
+# The exact reference (visibility graph of the land's corners) is the reference test's.
+sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "tests" / "reference"))
+from test_islands_reference import WaterPaths  # noqa: E402
 
 G_M_S2 = 9.80665
 DEPTH_M = 4000.0
@@ -60,40 +65,6 @@ def medium_depth(n: int) -> tuple[np.ndarray, list[tuple[float, float, float]]]:
         depth[(rows - r0) ** 2 + (cols - c0) ** 2 <= rad**2] = -40.0
         islands.append((r0, c0, rad))
     return depth, islands
-
-
-def land_polygons(depth: np.ndarray, grid: Grid) -> shapely.Geometry:
-    """The land cells of the solve grid as one geometry (squares merged)."""
-    t = grid.transform
-    rr, cc = np.nonzero(depth <= 0.0)
-    boxes = shapely.box(t.c + cc * t.a, t.f + (rr + 1) * t.e, t.c + (cc + 1) * t.a, t.f + rr * t.e)
-    return shapely.union_all(boxes)
-
-
-def geodesic_around(land: shapely.Geometry, src: tuple[float, float], targets: np.ndarray) -> np.ndarray:
-    """Shortest water-path length from ``src`` to each target around ``land`` (visibility graph)."""
-    corners = shapely.get_coordinates(shapely.get_exterior_ring(shapely.get_parts(land)))
-    # Push corners a hair outwards so paths along an edge do not touch the land.
-    centre = np.array([[shapely.centroid(p).x, shapely.centroid(p).y] for p in shapely.get_parts(land)])
-    owner = shapely.STRtree(shapely.get_parts(land)).nearest(shapely.points(corners))
-    corners = corners + 1e-6 * (corners - centre[owner])
-    nodes = np.vstack([[src], corners])
-    k = len(nodes)
-    prepared = shapely.prepare(land) or land
-    a, b = np.triu_indices(k, 1)
-    seg = shapely.linestrings(np.stack([nodes[a], nodes[b]], axis=1))
-    free = ~shapely.intersects(seg, land) | shapely.touches(seg, land)
-    w = np.hypot(*(nodes[a] - nodes[b]).T)
-    graph = csr_matrix((w[free], (a[free], b[free])), shape=(k, k))
-    dist = dijkstra(graph, directed=False, indices=0)
-    out = np.full(len(targets), np.inf)
-    for j, (x, y) in enumerate(targets):
-        seg_t = shapely.linestrings(np.stack([nodes, np.broadcast_to([x, y], nodes.shape)], axis=1))
-        ok = ~shapely.intersects(seg_t, land) | shapely.touches(seg_t, land)
-        d = dist + np.hypot(nodes[:, 0] - x, nodes[:, 1] - y)
-        out[j] = np.min(np.where(ok, d, np.inf))
-    del prepared
-    return out
 
 
 def run(n: int, refine: int, repeat: int, n_targets: int) -> dict[str, float]:
@@ -124,17 +95,17 @@ def run(n: int, refine: int, repeat: int, n_targets: int) -> dict[str, float]:
     # the fine cell nearest the native centre: its own centre is the target
     fx = x0 + (fc + 0.5) * step
     fy = y0 - (fr + 0.5) * step
-    land = land_polygons(fine, grid)
+    paths = WaterPaths(fine <= 0.0, grid.transform)
     straight = shapely.linestrings(np.stack([np.broadcast_to([sx, sy], (n_targets, 2)),
                                              np.column_stack([fx, fy])], axis=1))
-    blocked = shapely.intersects(straight, land)
+    blocked = shapely.intersects(straight, paths.land)
     far = np.hypot(fx - sx, fy - sy) > 20 * CELL_M
     ok = np.isfinite(ft) & far
     exact_open = np.hypot(fx - sx, fy - sy) / c
     sel = ok & ~blocked
     rel_open = np.abs(ft[sel] - exact_open[sel]) / exact_open[sel]
-    sel_b = ok & blocked
-    exact_b = geodesic_around(land, (sx, sy), np.column_stack([fx[sel_b], fy[sel_b]])) / c
+    sel_b = np.nonzero(ok & blocked)[0]
+    exact_b = np.array([paths.length_m(shapely.Point(sx, sy), (fx[k], fy[k])) for k in sel_b]) / c
     rel_b = np.abs(ft[sel_b] - exact_b) / exact_b
     return {"cells": float(fine.size), "cpu_s": best, "peak_mb": peak / 1e6,
             "open_p99": float(np.quantile(rel_open, 0.99)), "open_max": float(rel_open.max()),
