@@ -6,7 +6,7 @@ the shortest path between points around polygonal obstacles is a polyline
 whose inner vertices are obstacle corners: the shortest path in the
 visibility graph of the corners (Lozano-Pérez and Wesley 1979, *An algorithm
 for planning collision-free paths among polyhedral obstacles*, Comm. ACM 22;
-from memory). Here the obstacles are the grid's land cells drawn as squares,
+from memory; docs/references.md §8). Here the obstacles are the grid's land cells drawn as squares,
 the graph is built with shapely and solved with scipy's Dijkstra, both
 outside ttmap. An area source is the virtual start of the graph, joined to
 each corner (and to the site) by its shortest segment when that segment stays
