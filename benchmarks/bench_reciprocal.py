@@ -4,6 +4,7 @@ Run from the repository root::
 
     python benchmarks/bench_reciprocal.py            # 2000 x 2000, 1000 ruptures, 8 sites
     python benchmarks/bench_reciprocal.py --quick    # 600 x 600, 200 ruptures
+    python benchmarks/bench_reciprocal.py --refine 2 --no-locate   # the same medium on 2 x 2 cells
 
 Printed (never asserted):
 
@@ -37,6 +38,7 @@ from affine import Affine  # noqa: E402
 from scipy import ndimage  # noqa: E402
 
 from ttmap import Grid, Source, prepare_medium  # noqa: E402
+from ttmap.io.raster import refine_depth  # noqa: E402
 from ttmap.locate import locate_source  # noqa: E402
 from ttmap.reciprocal import (  # noqa: E402
     envelope_one_solve,
@@ -80,16 +82,22 @@ def main() -> None:
     ap.add_argument("--size", type=int, default=2000)
     ap.add_argument("--scenarios", type=int, default=1000)
     ap.add_argument("--locate-shape", type=int, nargs=2, default=(4800, 7200))
+    ap.add_argument("--refine", type=int, default=1,
+                    help="solve parts 1 and 2 on every cell split into N x N (same medium, same sources)")
+    ap.add_argument("--no-locate", action="store_true", help="skip part 3")
     args = ap.parse_args()
     if args.quick:
         args.size, args.scenarios, args.locate_shape = 600, 200, (1200, 1800)
     warnings.simplefilter("ignore")
-    n = args.size
-    grid = Grid((n, n), Affine(1000.0, 0, 0.0, 0, -1000.0, n * 1000.0), "EPSG:32654")
+    k = args.refine
+    native = Grid((args.size, args.size), Affine(1000.0, 0, 0.0, 0, -1000.0, args.size * 1000.0), "EPSG:32654")
+    n = args.size * k
+    grid = Grid((n, n), Affine(1000.0 / k, 0, 0.0, 0, -1000.0 / k, n * 1000.0 / k), "EPSG:32654")
     t = time.perf_counter()
-    medium = prepare_medium(bathymetry(n, n), grid)
-    print(f"grid {n} x {n}, medium prepared in {time.perf_counter() - t:.1f} s")
-    sources = ruptures(grid, args.scenarios)
+    medium = prepare_medium(refine_depth(bathymetry(args.size, args.size), k)[0], grid)
+    print(f"grid {n} x {n}" + (f" ({args.size} x {args.size} cells split {k} x {k})" if k > 1 else "")
+          + f", medium prepared in {time.perf_counter() - t:.1f} s")
+    sources = ruptures(native, args.scenarios)
     sites = []
     for fr in np.linspace(0.06, 0.94, 8):
         r = int(fr * n)
@@ -133,6 +141,8 @@ def main() -> None:
           f"{direct_all:.0f} s of direct solves (extrapolated): {direct_all / t_env:.0f}x; "
           f"tie cells {int(env.tie.sum())}, relaxed start cells {env.relaxed_start_cells}")
     del fields, direct, env, medium
+    if args.no_locate:
+        return
 
     # 3. Source location
     rows, cols = args.locate_shape
