@@ -241,6 +241,12 @@ def _expect_raster(tif: Path) -> dict[str, Any]:
             exp["colors"] = [e[1] for e in visible]
             if len(visible) > count:  # tie classes after the scenarios, named in the SLD
                 exp["labels"] += [e[3] for e in visible[count:]]
+    elif stem == "envelope_first_scenario_tie":
+        from ttmap.products.scenario_maps import TIE_CLASSES
+
+        exp.update(renderer="paletted", labels=[lab for _, lab, _ in TIE_CLASSES])
+        _, entries = _sld_color_map(sld)
+        exp["colors"] = [e[1] for e in entries if e[2] > 0]
     elif stem.startswith("difference_"):
         exp.update(renderer="singlebandpseudocolor", ramp="INTERPOLATED", diverging=True)
     else:

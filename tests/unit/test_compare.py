@@ -163,6 +163,15 @@ def test_write_envelope_round_trip(tmp_path):
         np.testing.assert_array_equal(within[:, cells].T, np.broadcast_to(expect, (cells.sum(), 4)))
         assert float(table[code]["earliest_min"]) == pytest.approx(float(env[cells].min()), abs=1e-3)
     assert any(k >= 4 for k in members), "the fields overlap: some cells must be ties"
+    # the near-tie raster (as the one-solve envelope writes it): 1 exactly where two or more
+    # scenarios arrive within the tolerance of the earliest, 0 where one does, 255 unreached
+    with rasterio.open(out["tie_class"]) as src:
+        tie = src.read(1)
+        assert Path(out["tie_class"]).name == "envelope_first_scenario_tie.tif"
+        assert src.dtypes[0] == "uint8" and src.nodata == 255
+        assert float(src.tags()["TIE_TOLERANCE_S"]) == pytest.approx(60.0 * tol)
+    np.testing.assert_array_equal(tie == 255, none)
+    np.testing.assert_array_equal(tie[~none] == 1, within[:, ~none].sum(axis=0) >= 2)
     # styles and maps come with the rasters
     for key in ("envelope_sld", "envelope_map", "first_scenario_sld", "first_scenario_map"):
         assert Path(out[key]).is_file()

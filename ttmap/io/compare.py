@@ -36,12 +36,14 @@ if TYPE_CHECKING:
 
 __all__ = [
     "ENVELOPE_FILES",
+    "ENVELOPE_TIE_FILE",
     "SITES_X_SCENARIOS_FILES",
     "difference_file_name",
     "grid_text",
     "read_minutes",
     "write_difference_raster",
     "write_envelope_files",
+    "write_tie_raster",
     "write_sites_tables",
 ]
 
@@ -51,6 +53,9 @@ ENVELOPE_FILES: tuple[str, str, str] = (
     "envelope_first_scenario.tif",
     "envelope_first_scenario.csv",
 )
+#: The near-tie raster of an envelope (both envelope paths write it: 1 where no single
+#: scenario clearly arrives first, 0 where one does, 255 where none arrives).
+ENVELOPE_TIE_FILE: str = "envelope_first_scenario_tie.tif"
 #: File names of the sites-by-scenarios products: table, earliest per site, chart.
 SITES_X_SCENARIOS_FILES: tuple[str, str, str] = (
     "sites_x_scenarios.csv",
@@ -254,3 +259,39 @@ def write_sites_tables(
                 overwrite=True,
             )
         write_chart(str(t_png))
+
+
+def write_tie_raster(
+    path: str | os.PathLike[str],
+    reached: NDArray[np.bool_],
+    tie: NDArray[np.bool_],
+    grid: Grid,
+    *,
+    rule: str,
+    tags: Mapping[str, str],
+    overwrite: bool,
+) -> None:
+    """Write an envelope's near-tie raster (uint8: 1 near-tie, 0 one scenario first, 255 not reached).
+
+    Parameters
+    ----------
+    path : path-like
+        Usually :data:`ENVELOPE_TIE_FILE` in the output folder.
+    reached, tie : ndarrays of shape grid.shape, bool
+        Cells some scenario reaches; cells where no single scenario clearly
+        arrives first.
+    grid : Grid
+    rule : str
+        What class 1 means for this envelope (written in the ``CLASSES`` tag).
+    tags : mapping of str to str
+        Further dataset tags (the caution, the tolerance).
+    overwrite : bool
+    """
+    from ttmap.io.raster import write_raster
+
+    values = np.where(reached, (tie & reached).astype(np.float64), np.nan)
+    write_raster(
+        path, values, grid, dtype="uint8", nodata=255,
+        tags={**tags, "CLASSES": f"0 = one scenario arrives first; 1 = {rule}; 255 = not reached"},
+        band_description="tie class (1 = near-tie between scenarios)", overwrite=overwrite,
+    )

@@ -571,9 +571,10 @@ def write_envelope(
     Writes ``envelope_min.tif`` (float32 minutes), ``envelope_first_scenario.tif``
     (int16, nodata -1, tags ``SCENARIO_<i>=<name>``: the scenario index where
     one scenario alone arrives within the tie tolerance of the earliest, a
-    tie class ``n + k`` where two or more do) and ``envelope_first_scenario.csv``
+    tie class ``n + k`` where two or more do), ``envelope_first_scenario.csv``
     (one row per scenario and one per tie class: index, name, raster, cells,
-    earliest minute), and their styles and maps (``envelope_min.sld/.png``,
+    earliest minute), ``envelope_first_scenario_tie.tif`` (1 on the tie
+    classes, as the one-solve envelope writes it), and their styles and maps (``envelope_min.sld/.png``,
     ``envelope_first_scenario.sld/.png``, :mod:`ttmap.jobs.scenario_maps`;
     ``water_mask`` draws land on the maps).
 
@@ -593,7 +594,8 @@ def write_envelope(
     Returns
     -------
     dict
-        ``{"envelope_min": path, "first_scenario": path, "lookup_csv": path}``.
+        ``{"envelope_min": path, "first_scenario": path, "lookup_csv": path,
+        "tie_class": path, ...}`` (and the extras: styles, maps).
 
     Raises
     ------
@@ -604,7 +606,13 @@ def write_envelope(
         An output exists and ``overwrite`` is False (checked before reading).
     """
     from ttmap.io.atomic import check_writable
-    from ttmap.io.compare import ENVELOPE_FILES, read_minutes, write_envelope_files
+    from ttmap.io.compare import (
+        ENVELOPE_FILES,
+        ENVELOPE_TIE_FILE,
+        read_minutes,
+        write_envelope_files,
+        write_tie_raster,
+    )
     from ttmap.products.cautions import CAUTION_SHORT
     from ttmap.products.compare import (
         MAX_SCENARIOS,
@@ -631,7 +639,8 @@ def write_envelope(
 
     tol = ENVELOPE_TIE_TOLERANCE_MIN if tie_tolerance_min is None else float(tie_tolerance_min)
     targets = [Path(out_dir) / name for name in ENVELOPE_FILES]
-    check_writable([*targets, *envelope_extra_files(out_dir),
+    tie_path = Path(out_dir) / ENVELOPE_TIE_FILE
+    check_writable([*targets, tie_path, *envelope_extra_files(out_dir),
                     Path(out_dir) / "envelope_first_scenario.qml"], overwrite)
 
     ref: dict[str, Grid] = {} if grid is None else {"grid": grid}
@@ -685,12 +694,22 @@ def write_envelope(
         ),
         overwrite=overwrite,
     )
+    # The same near-tie raster as the one-solve envelope writes: 1 on the tie classes.
+    write_tie_raster(
+        tie_path, first >= 0, first >= n, ref["grid"],
+        rule=f"two or more scenarios arrive within {tol:g} min of the earliest (the tie class in "
+             "envelope_first_scenario.tif names them)",
+        tags={**comparison_tags("which-scenario tie class: 1 = near-tie, 0 = clear first scenario"),
+              "TIE_TOLERANCE_S": f"{60.0 * tol:.4f}"},
+        overwrite=overwrite,
+    )
     extras = write_envelope_extras(out_dir, earliest, ties, names, ref["grid"],
                                    water_mask=water_mask, overwrite=overwrite)
     return {
         "envelope_min": str(targets[0]),
         "first_scenario": str(targets[1]),
         "lookup_csv": str(targets[2]),
+        "tie_class": str(tie_path),
         **extras,
     }
 

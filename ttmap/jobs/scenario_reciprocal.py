@@ -33,6 +33,7 @@ from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 from ttmap.errors import InputDataError
+from ttmap.io.compare import ENVELOPE_TIE_FILE
 from ttmap.jobs.batch import map_calls, medium_for_spec
 from ttmap.scenario import ScenarioFile
 from ttmap.tasks import MediumSpec
@@ -48,11 +49,9 @@ __all__ = [
     "TablePlan",
     "plan_table_method",
     "run_reciprocal_products",
-    "ENVELOPE_TIE_FILE",
 ]
 
 #: Tie class raster written beside the one-solve envelope.
-ENVELOPE_TIE_FILE: str = "envelope_first_scenario_tie.tif"
 
 
 @dataclass(frozen=True)
@@ -251,8 +250,7 @@ def _write_one_solve_envelope(
     import numpy as np
 
     from ttmap.io.atomic import atomic_output, check_writable
-    from ttmap.io.compare import ENVELOPE_FILES, write_envelope_files
-    from ttmap.io.raster import write_raster
+    from ttmap.io.compare import ENVELOPE_FILES, write_envelope_files, write_tie_raster
     from ttmap.products.cautions import CAUTION_SHORT
     from ttmap.products.compare import MAX_SCENARIOS, comparison_tags
 
@@ -280,17 +278,14 @@ def _write_one_solve_envelope(
     method_tag = {"METHOD": "one solve from the union of the scenario starts (docs/reciprocal.md)"}
     # The tie raster is committed only once the envelope files are in place.
     with atomic_output(tie_path, overwrite=overwrite) as tmp_tie:
-        tie_class = np.where(np.isfinite(arrival_s), tie.astype(np.float64), np.nan)
         tol = float(info.get("tie_tolerance_s", math.nan))
-        write_raster(
-            tmp_tie, tie_class, medium.grid, dtype="uint8", nodata=255,
-            tags={
-                **comparison_tags("which-scenario tie class: 1 = near-tie, 0 = clear first scenario"),
-                "CLASSES": f"0 = one scenario first; 1 = two scenarios arrive within {tol:.2f} s "
-                           "(the lower index is labelled); 255 = not reached",
-                "TIE_TOLERANCE_S": f"{tol:.4f}",
-            },
-            band_description="tie class (1 = near-tie between scenarios)", overwrite=True,
+        write_tie_raster(
+            tmp_tie, np.isfinite(arrival_s), tie, medium.grid,
+            rule=f"two scenarios arrive within {tol:.2f} s (a quarter of a cell's crossing time; "
+                 "the lower index is labelled in envelope_first_scenario.tif)",
+            tags={**comparison_tags("which-scenario tie class: 1 = near-tie, 0 = clear first scenario"),
+                  "TIE_TOLERANCE_S": f"{tol:.4f}", **method_tag},
+            overwrite=True,
         )
         write_envelope_files(
             targets,

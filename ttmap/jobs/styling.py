@@ -346,6 +346,21 @@ def style_scenario_run(
         written.append(write_arrival_raster_style(env_tif, env_levels,
                                                   title=f"Earliest arrival over {len(envelope_names)} scenarios",
                                                   overwrite=overwrite))
+        tie = envelope.get("tie_class")
+        if tie and Path(tie).is_file():
+            from ttmap.io.styles import write_sld
+            from ttmap.products.scenario_maps import TIE_CLASSES, tie_raster_sld
+
+            tie_sld = Path(tie).with_suffix(".sld")
+            write_sld(tie_sld, tie_raster_sld(), overwrite=overwrite)
+            written.append(tie_sld)
+            written.append(write_qml_beside(
+                Path(tie),
+                paletted_qml([v for v, _, _ in TIE_CLASSES], [lab for _, lab, _ in TIE_CLASSES],
+                             layer_name=Path(tie).stem, title="Near-ties of the first scenario",
+                             colors_hex=[c for _, _, c in TIE_CLASSES], nodata=255),
+                overwrite=overwrite,
+            ))
         first = Path(envelope["first_scenario"])
         if envelope.get("first_scenario_qml"):  # written with its tie classes beside the SLD
             return written

@@ -42,6 +42,8 @@ __all__ = [
     "first_scenario_colors",
     "first_scenario_classes",
     "first_scenario_sld",
+    "TIE_CLASSES",
+    "tie_raster_sld",
     "first_scenario_ties",
     "render_difference_map",
     "render_envelope_map",
@@ -348,6 +350,24 @@ def first_scenario_classes(
     title = ("Scenario that arrives first "
              f"(grey: a {tie_label(first.tolerance_min)} of two or more)")
     return codes, colors, labels, title
+
+
+#: Classes of ``envelope_first_scenario_tie.tif``: (value, label, colour), one scheme for
+#: its SLD and its QGIS style (grey: one scenario first; orange: a near-tie).
+TIE_CLASSES: tuple[tuple[int, str, str], ...] = (
+    (0, "one scenario arrives first", "#d9d9d9"),
+    (1, "near-tie: no single first scenario", "#e6550d"),
+)
+
+
+def tie_raster_sld() -> str:
+    """OGC SLD of an envelope's near-tie raster (:data:`TIE_CLASSES`, 255 transparent)."""
+    from ttmap.products.styles import categorical_raster_sld
+
+    return categorical_raster_sld(
+        [v for v, _, _ in TIE_CLASSES], [c for _, _, c in TIE_CLASSES], [lab for _, lab, _ in TIE_CLASSES],
+        layer_name="envelope_first_scenario_tie", title="Near-ties of the first scenario", nodata=255,
+    )
 
 
 def first_scenario_sld(first: FirstScenario, names: Sequence[str]) -> str:
