@@ -315,6 +315,16 @@ def _invalid_mask(src: Any, band: int, data: np.ndarray, win: Window | None) -> 
     return np.asarray(src.read_masks(band, window=win) == 0)
 
 
+def _depth_and_factor(depth_m: ArrayLike, factor: Any, what: str) -> tuple[FloatArray, int]:
+    """A 2-D float64 depth array and a whole resampling factor >= 1, or a one-line refusal."""
+    if isinstance(factor, bool) or not isinstance(factor, (int, np.integer)) or factor < 1:
+        raise InputDataError(f"{what} factor {factor!r} is not a whole number >= 1; pass e.g. 2")
+    depth = np.asarray(depth_m, dtype=np.float64)
+    if depth.ndim != 2:
+        raise InputDataError(f"depth_m must be 2-D (rows, cols), got shape {depth.shape}")
+    return depth, int(factor)
+
+
 def coarsen_depth(depth_m: ArrayLike, factor: int) -> tuple[FloatArray, tuple[str, ...]]:
     """Average a depth grid over ``factor x factor`` blocks, keeping land and water apart.
 
@@ -362,12 +372,7 @@ def coarsen_depth(depth_m: ArrayLike, factor: int) -> tuple[FloatArray, tuple[st
     >>> notes[-1]
     'coarsening: 1 coarse water cell(s) contained land (land thinned), 1 coarse land cell(s) contained water (water closed)'
     """
-    if isinstance(factor, bool) or not isinstance(factor, (int, np.integer)) or factor < 1:
-        raise InputDataError(f"coarsen factor {factor!r} is not a whole number >= 1; pass e.g. 2")
-    depth = np.asarray(depth_m, dtype=np.float64)
-    if depth.ndim != 2:
-        raise InputDataError(f"depth_m must be 2-D (rows, cols), got shape {depth.shape}")
-    n = int(factor)
+    depth, n = _depth_and_factor(depth_m, factor, "coarsen")
     if n == 1:
         return depth.copy(), ()
     rows, cols = depth.shape
@@ -443,12 +448,7 @@ def refine_depth(depth_m: ArrayLike, factor: int) -> tuple[FloatArray, tuple[str
     >>> notes[0]
     'refined by 2: 1 x 2 cells -> 2 x 4 cells (each cell split into 2 x 2 of the same depth)'
     """
-    if isinstance(factor, bool) or not isinstance(factor, (int, np.integer)) or factor < 1:
-        raise InputDataError(f"refine factor {factor!r} is not a whole number >= 1; pass e.g. 2")
-    depth = np.asarray(depth_m, dtype=np.float64)
-    if depth.ndim != 2:
-        raise InputDataError(f"depth_m must be 2-D (rows, cols), got shape {depth.shape}")
-    n = int(factor)
+    depth, n = _depth_and_factor(depth_m, factor, "refine")
     if n == 1:
         return depth.copy(), ()
     rows, cols = depth.shape
