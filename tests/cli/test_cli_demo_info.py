@@ -134,3 +134,16 @@ def test_group_options(run_cli):
         "--overwrite",
     ):
         assert option in map_help
+
+
+def test_info_counts_small_islands(run_cli, spec, tmp_path):
+    """One 4 x 3-cell island in open water is counted; the coastal strip at the edge is not."""
+    elev = spec.utm_elevation()
+    elev[40:44, 50:53] = 15.0
+    elev[80, 80] = 10.0  # a single-cell rock: not an island that bends fronts much
+    path = spec.write_geotiff(tmp_path / "island.tif", elev, crs=spec.UTM_CRS, transform=spec.UTM_TRANSFORM)
+    text = run_cli("info", path, expect=0).output
+    assert "small islands: 1 under 10 cells across" in text
+    plain = run_cli("info", spec.write_geotiff(tmp_path / "plain.tif", spec.utm_elevation(), crs=spec.UTM_CRS,
+                                               transform=spec.UTM_TRANSFORM), expect=0).output
+    assert "small islands" not in plain

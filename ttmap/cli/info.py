@@ -46,6 +46,9 @@ def info(bathymetry: str, **opts: Any) -> None:
         lines.append(f"depth range:   {lo:,.1f} to {hi:,.1f} m (water)")
     if d["max_land_height_m"] is not None:
         lines.append(f"land height:   up to {d['max_land_height_m']:,.1f} m")
+    if d["small_islands"]:
+        lines.append(f"small islands: {d['small_islands']:,} under 10 cells across (times behind them are "
+                     "less accurate; see --refine)")
     lines += [
         f"solve grid:    {est.cells:,} cells{' (Mercator rows)' if d['geographic'] else ''}",
         f"estimate:      about {max(est.seconds, 0.05):.1f} s and {est.peak_bytes / 2**30:.2f} GiB per solve "
