@@ -58,3 +58,24 @@ def test_a_renamed_scenario_file_resumes_and_a_changed_raster_is_named(tmp_path)
     msg = str(err.value)
     assert f"bathymetry SHA-256 differs: recorded {old_sha[:12]}.., now {new_sha[:12]}.." in msg
     assert "\n" not in msg
+
+
+def test_a_refined_rerun_does_not_resume_the_coarser_solves(tmp_path):
+    """``refine`` is part of what a task is: a rerun at another factor is named, not kept."""
+    from ttmap.jobs.scenario import run_scenario_file
+    from ttmap.scenario import load_scenario_file
+
+    bathy = tmp_path / "bathy.tif"
+    shutil.copy(DEMO / "demo_bathymetry.tif", bathy)
+    out = tmp_path / "out"
+    plain = _toml(tmp_path, "plan.toml", bathy, out)
+    plain.write_text(plain.read_text().replace("coarsen = 2\n", ""), encoding="utf-8")  # refine off: 1
+    run_scenario_file(load_scenario_file(plain))
+    again = run_scenario_file(load_scenario_file(plain))
+    assert all(t["skipped"] for t in again["tasks"])  # refine 1 leaves the records as they were
+    refined = tmp_path / "refined.toml"
+    refined.write_text(plain.read_text().replace(
+        f'path = "{bathy}"', f'path = "{bathy}"\nrefine = 3'), encoding="utf-8")
+    with pytest.raises(OutputExistsError) as err:
+        run_scenario_file(load_scenario_file(refined))
+    assert "medium.refine differs: recorded (absent), now 3" in str(err.value)

@@ -558,6 +558,8 @@ def _task_inputs(task: SolveTask, spec: MediumSpec, sha: str | None, tags: dict[
     medium = spec.describe()
     if sha is not None:
         medium.pop("bathymetry", None)  # the content (sha) identifies it, not the path
+    if medium.get("refine") == 1:
+        medium.pop("refine")  # absent when off: records of runs before refine stay valid
     inputs: dict[str, Any] = {
         "task": described,
         "medium": medium,
