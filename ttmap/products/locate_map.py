@@ -58,9 +58,8 @@ def misfit_colour_classes(level: float, max_excess: float | None) -> tuple[Any, 
 
     steps = misfit_steps(level, max_excess=max_excess)
     colours = [st.color for st in steps]
-    cmap = ListedColormap(colours, name="ttmap_locate_misfit")
-    cmap.set_over(colours[-1])
-    cmap.set_bad((0.0, 0.0, 0.0, 0.0))
+    cmap = ListedColormap(colours, name="ttmap_locate_misfit").with_extremes(
+        over=colours[-1], bad=(0.0, 0.0, 0.0, 0.0))
     n = len(steps)
     index_norm = BoundaryNorm(np.arange(n + 1) - 0.5, n)
     edges = [0.0, *[st.upper_excess for st in steps[:-1]]]
@@ -180,9 +179,10 @@ def render_locate_map(
     n_bar = len(value_norm.boundaries) - 1
     cax.text(-0.45, 0.5 * n_in / n_bar, "inside", transform=cax.transAxes, rotation=90,
              ha="right", va="center", fontsize=7.5, color=steps[0].color, gid="class-side")
-    if n_in < n_bar:
-        cax.text(-0.45, 0.5 * (1.0 + n_in / n_bar), "outside", transform=cax.transAxes, rotation=90,
-                 ha="right", va="center", fontsize=7.5, color="#7f2704", gid="class-side")
+    # outside: the classes above the region, or only the open one (the triangle) at a high level
+    y_out, va_out = (0.5 * (1.0 + n_in / n_bar), "center") if n_in < n_bar else (1.0, "bottom")
+    cax.text(-0.45, y_out, "outside", transform=cax.transAxes, rotation=90,
+             ha="right", va=va_out, fontsize=7.5, color="#7f2704", gid="class-side")
     if region is not None and not region.is_empty:
         geoms = getattr(region, "geoms", [region])
         for k, poly in enumerate(geoms):
@@ -199,10 +199,13 @@ def render_locate_map(
     halo = [pe.withStroke(linewidth=3.2, foreground="white")]
     ax.plot([best_xy[0]], [best_xy[1]], marker="+", color="black", markersize=12, mew=1.6,
             ls="none", label="best cell", zorder=6, path_effects=halo)
+    zoom_half = 0.0
     if region is not None and not region.is_empty:
-        # A zoom on the region, so that a small one stays readable.
         rx0, ry0, rx1, ry1 = region.bounds
-        half = max(rx1 - rx0, ry1 - ry0) * 0.8 + 2.0 * max(abs(grid.transform.a), abs(grid.transform.e))
+        zoom_half = max(rx1 - rx0, ry1 - ry0) * 0.8 + 2.0 * max(abs(grid.transform.a), abs(grid.transform.e))
+    if 0.0 < 2.0 * zoom_half < 0.6 * min(e - w, n - s):
+        # A zoom on the region, so that a small one stays readable (none when it would not be a zoom).
+        half = zoom_half
         cx, cy = (rx0 + rx1) / 2.0, (ry0 + ry1) / 2.0
         ins = ax.inset_axes((0.02, 0.62, 0.34, 0.36))
         ins.imshow(classes, extent=ext, origin="upper", cmap=cmap, norm=index_norm,
