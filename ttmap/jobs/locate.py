@@ -520,7 +520,7 @@ def _write_products(
             subtitle=(f"best cell lon {summary['best_lon']:.3f}, lat {summary['best_lat']:.3f}; "
                       f"{origin_txt}; {level_pct} region; {summary['message']}"),
             caution=LOCATE_CAUTION + "\n" + CAUTION_SHORT,
-            delta_chi2=loc.delta_chi2,
+            delta_chi2=loc.delta_chi2, level=summary["confidence"],
         )
         save_figure(fig, t["locate_map.png"], format="png")
         import matplotlib.pyplot as plt

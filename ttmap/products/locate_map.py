@@ -1,6 +1,14 @@
 """The map of a source location: misfit, confidence region, gauges and their residuals.
 
 Pure figure building (matplotlib, imported lazily); writing is the job's.
+
+The misfit is drawn in the classes and colours of the misfit layer's QGIS
+style (:func:`ttmap.products.locate_styles.misfit_steps`, the one definition):
+a cell takes the first class whose bound is >= its ``chi2 - chi2_min`` (the
+``DISCRETE`` rule of the style and the ``<=`` rule of the region), blues
+inside the region, dark red to pale yellow outside. The classed colour bar
+reads the class edges as the rise of chi-square above the best cell, with the
+confidence level of each quantile edge.
 """
 
 from __future__ import annotations
@@ -10,7 +18,75 @@ from typing import Any
 
 import numpy as np
 
-__all__ = ["render_locate_map"]
+__all__ = ["misfit_colour_classes", "misfit_tick_labels", "render_locate_map"]
+
+
+def _level_from_delta(delta_chi2: float) -> float:
+    """The level whose 2-dof chi-square quantile is ``delta_chi2``: ``1 - exp(-delta / 2)``."""
+    import math
+
+    return float(-math.expm1(-0.5 * float(delta_chi2)))
+
+
+def misfit_colour_classes(level: float, max_excess: float | None) -> tuple[Any, Any, Any, list[Any]]:
+    """matplotlib colour map and norms of the misfit classes of the layer style.
+
+    Parameters
+    ----------
+    level : float
+        Confidence level of the run's region.
+    max_excess : float or None
+        Largest finite ``chi2 - chi2_min`` on the grid (as the job gives the
+        style).
+
+    Returns
+    -------
+    cmap : ListedColormap
+        One colour per class of :func:`ttmap.products.locate_styles.misfit_steps`
+        (the open last class as its "over" colour too).
+    index_norm : BoundaryNorm
+        Class index (from :func:`~ttmap.products.locate_styles.misfit_class_index`)
+        to colour: the image is drawn with this one.
+    value_norm : BoundaryNorm
+        ``chi2 - chi2_min`` to colour, edges at the finite class bounds (0
+        first), ``extend="max"``: the colour bar is drawn with this one.
+    steps : list of MisfitStep
+    """
+    from matplotlib.colors import BoundaryNorm, ListedColormap
+
+    from ttmap.products.locate_styles import misfit_steps
+
+    steps = misfit_steps(level, max_excess=max_excess)
+    colours = [st.color for st in steps]
+    cmap = ListedColormap(colours, name="ttmap_locate_misfit").with_extremes(
+        over=colours[-1], bad=(0.0, 0.0, 0.0, 0.0))
+    n = len(steps)
+    index_norm = BoundaryNorm(np.arange(n + 1) - 0.5, n)
+    edges = [0.0, *[st.upper_excess for st in steps[:-1]]]
+    value_norm = BoundaryNorm(edges, n, extend="max")
+    return cmap, index_norm, value_norm, steps
+
+
+def _edge_text(value: float) -> str:
+    return f"{value:.2f}" if value < 20.0 else f"{value:g}"
+
+
+def misfit_tick_labels(steps: Sequence[Any]) -> list[str]:
+    """Colour-bar tick labels at ``0`` and each finite class bound: the bound, and its level if a quantile.
+
+    Examples
+    --------
+    >>> from ttmap.products.locate_styles import misfit_steps
+    >>> misfit_tick_labels(misfit_steps(0.95, max_excess=120.0))
+    ['0 (best cell)', '2.30 (68.27 %)', '5.99 (95 %)', '9.21 (99 %)', '13.82 (99.9 %)', '25', '50', '100']
+    """
+    labels = ["0 (best cell)"]
+    for st in steps[:-1]:
+        text = _edge_text(st.upper_excess)
+        if st.level is not None:
+            text += f" ({100.0 * st.level:.4g} %)"
+        labels.append(text)
+    return labels
 
 
 def render_locate_map(
@@ -25,6 +101,7 @@ def render_locate_map(
     subtitle: str,
     caution: str,
     delta_chi2: float,
+    level: float | None = None,
 ) -> Any:
     """A figure of the location.
 
@@ -43,17 +120,37 @@ def render_locate_map(
     best_xy : (x, y)
     title, subtitle, caution : str
     delta_chi2 : float
-        Contour level of the region (drawn as a line).
+        Chi-square rise bounding the region (its outline's legend entry).
+    level : float, optional
+        Confidence level of the region; the misfit classes are those of the
+        layer style at this level. When None, the level whose 2-dof
+        quantile is ``delta_chi2``.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        The main map (axes 0, the misfit image first), the classed colour
+        bar (gid ``"colorbar"``) and, with a region, a zoom inset.
     """
     import matplotlib
 
     matplotlib.use("Agg", force=False)
+    import textwrap
+
+    import matplotlib.patheffects as pe
     import matplotlib.pyplot as plt
-    from matplotlib.colors import LogNorm
+    from matplotlib.cm import ScalarMappable
 
     from ttmap.products._footer import caution_footer, draw_caution_footer
+    from ttmap.products.locate_styles import misfit_class_index
+    from ttmap.products.maps import fit_colorbar_label
 
-    import textwrap
+    lvl = _level_from_delta(delta_chi2) if level is None else float(level)
+    ex = np.asarray(excess, dtype=np.float64)
+    finite = ex[np.isfinite(ex)]
+    cmap, index_norm, value_norm, steps = misfit_colour_classes(
+        lvl, float(finite.max()) if finite.size else None)
+    classes = np.ma.masked_invalid(np.where(np.isfinite(ex), misfit_class_index(ex, steps), np.nan))
 
     width_in, map_h_in = 8.0, 6.6
     footer = caution_footer(caution, width_in)
@@ -61,19 +158,31 @@ def render_locate_map(
     fig = plt.figure(figsize=(width_in, fig_h), dpi=110)
     bottom = (footer.height_in + 0.85) / fig_h
     height = (map_h_in - 1.6) / fig_h
-    ax = fig.add_axes((0.09, bottom, 0.72, height))
-    cax = fig.add_axes((0.86, bottom, 0.022, height))
+    ax = fig.add_axes((0.09, bottom, 0.67, height))
+    cax = fig.add_axes((0.805, bottom, 0.022, height))
+    cax.set_gid("colorbar")
     w, s, e, n = grid.bounds
     ext = (w, e, s, n)
     land = np.where(np.asarray(water, bool), np.nan, 1.0)
+    ax.imshow(classes, extent=ext, origin="upper", cmap=cmap, norm=index_norm, interpolation="nearest",
+              gid="misfit")
     ax.imshow(land, extent=ext, origin="upper", cmap="Greys", vmin=0, vmax=2.5, interpolation="nearest")
-    ex = np.asarray(excess, dtype=np.float64)
-    shown = np.where(np.isfinite(ex), np.maximum(ex, 0.0) + 0.1, np.nan)
-    vmax = max(float(np.nanpercentile(shown, 95)) if np.isfinite(shown).any() else 10.0, 10.0)
-    im = ax.imshow(shown, extent=ext, origin="upper", cmap="magma_r",
-                   norm=LogNorm(vmin=0.1, vmax=vmax), interpolation="nearest")
-    cb = fig.colorbar(im, cax=cax)
-    cb.set_label("misfit above the best cell (chi-square)")
+    cb = fig.colorbar(ScalarMappable(norm=value_norm, cmap=cmap), cax=cax, extend="max", spacing="uniform",
+                      ticks=value_norm.boundaries)
+    cb.ax.set_yticklabels(misfit_tick_labels(steps), fontsize=7.5)
+    cb.ax.minorticks_off()
+    cb.outline.set_linewidth(0.6)
+    level_txt = f"{100.0 * lvl:.4g} %"
+    cb.set_label(f"chi-square above the best cell: blues inside the {level_txt} region", fontsize=8.5)
+    # The side of the region beside the bar, in the middle of its classes (equal heights).
+    n_in = sum(st.inside for st in steps)
+    n_bar = len(value_norm.boundaries) - 1
+    cax.text(-0.45, 0.5 * n_in / n_bar, "inside", transform=cax.transAxes, rotation=90,
+             ha="right", va="center", fontsize=7.5, color=steps[0].color, gid="class-side")
+    # outside: the classes above the region, or only the open one (the triangle) at a high level
+    y_out, va_out = (0.5 * (1.0 + n_in / n_bar), "center") if n_in < n_bar else (1.0, "bottom")
+    cax.text(-0.45, y_out, "outside", transform=cax.transAxes, rotation=90,
+             ha="right", va=va_out, fontsize=7.5, color="#7f2704", gid="class-side")
     if region is not None and not region.is_empty:
         geoms = getattr(region, "geoms", [region])
         for k, poly in enumerate(geoms):
@@ -87,28 +196,33 @@ def render_locate_map(
         ax.annotate(text, (x, y), xytext=(5, 4), textcoords="offset points", fontsize=7.5,
                     color="#063a18",
                     bbox={"boxstyle": "round,pad=0.15", "fc": "white", "ec": "none", "alpha": 0.75})
+    halo = [pe.withStroke(linewidth=3.2, foreground="white")]
     ax.plot([best_xy[0]], [best_xy[1]], marker="+", color="black", markersize=12, mew=1.6,
-            ls="none", label="best cell", zorder=6)
+            ls="none", label="best cell", zorder=6, path_effects=halo)
+    zoom_half = 0.0
     if region is not None and not region.is_empty:
-        # A zoom on the region, so that a small one stays readable.
         rx0, ry0, rx1, ry1 = region.bounds
-        half = max(rx1 - rx0, ry1 - ry0) * 0.8 + 2.0 * max(abs(grid.transform.a), abs(grid.transform.e))
+        zoom_half = max(rx1 - rx0, ry1 - ry0) * 0.8 + 2.0 * max(abs(grid.transform.a), abs(grid.transform.e))
+    if 0.0 < 2.0 * zoom_half < 0.6 * min(e - w, n - s):
+        # A zoom on the region, so that a small one stays readable (none when it would not be a zoom).
+        half = zoom_half
         cx, cy = (rx0 + rx1) / 2.0, (ry0 + ry1) / 2.0
         ins = ax.inset_axes((0.02, 0.62, 0.34, 0.36))
+        ins.imshow(classes, extent=ext, origin="upper", cmap=cmap, norm=index_norm,
+                   interpolation="nearest", gid="misfit")
         ins.imshow(land, extent=ext, origin="upper", cmap="Greys", vmin=0, vmax=2.5,
-                   interpolation="nearest")
-        ins.imshow(shown, extent=ext, origin="upper", cmap="magma_r", norm=LogNorm(vmin=0.1, vmax=vmax),
                    interpolation="nearest")
         for poly in getattr(region, "geoms", [region]):
             xs, ys = poly.exterior.xy
             ins.plot(xs, ys, color="#00a0ff", lw=1.6)
-        ins.plot([best_xy[0]], [best_xy[1]], marker="+", color="black", markersize=10, mew=1.5)
+        ins.plot([best_xy[0]], [best_xy[1]], marker="+", color="black", markersize=10, mew=1.5,
+                 path_effects=halo)
         ins.set_xlim(cx - half, cx + half)
         ins.set_ylim(cy - half, cy + half)
         ins.set_xticks([])
         ins.set_yticks([])
         ins.text(0.03, 0.04, "zoom on the region", transform=ins.transAxes, fontsize=7,
-                 color="white")
+                 color="black", bbox={"boxstyle": "round,pad=0.15", "fc": "white", "ec": "none", "alpha": 0.8})
         ax.indicate_inset_zoom(ins, edgecolor="#333333")
     ax.plot([], [], marker="^", color="#0b6e2e", ls="none", label="gauge (residual obs - pred)")
     ax.legend(loc="lower left", fontsize=8, framealpha=0.85).set_zorder(10)
@@ -120,4 +234,9 @@ def render_locate_map(
     fig.text(0.09, 1.0 - 0.25 / fig_h, title, fontsize=12, weight="bold", va="top")
     fig.text(0.09, 1.0 - 0.58 / fig_h, textwrap.fill(subtitle, 115), fontsize=8, va="top")
     draw_caution_footer(fig, footer, fig_h)
+    ax.apply_aspect()  # the bar as tall as the map drawn (equal aspect)
+    box = ax.get_position()
+    cax.set_position((0.805, box.y0, 0.022, box.height))
+    fig.canvas.draw()
+    fit_colorbar_label(cb.ax.yaxis.label, float(cax.get_window_extent().height))
     return fig

@@ -2,7 +2,8 @@
 
 Pure decisions, no files (the locate job writes them):
 
-- :func:`misfit_classes` / :func:`misfit_qml` - ``locate_misfit.tif`` holds the
+- :func:`misfit_steps` (the one definition, counted above the best cell; the
+  map draws it), :func:`misfit_classes` / :func:`misfit_qml` - ``locate_misfit.tif`` holds the
   chi-square misfit of the picks for a source at each cell; what matters is
   how far a cell lies above the best cell (``chi2 - chi2_min``, the quantity
   the confidence region is cut from). The classes are cut at ``chi2_min``
@@ -48,6 +49,9 @@ __all__ = [
     "ORIGIN_CMAP",
     "GAUGE_COLORS",
     "RasterClass",
+    "MisfitStep",
+    "misfit_steps",
+    "misfit_class_index",
     "misfit_classes",
     "misfit_qml",
     "origin_time_classes",
@@ -101,6 +105,105 @@ def _pct(level: float) -> str:
     return f"{100.0 * level:.4g} %"
 
 
+@dataclass(frozen=True)
+class MisfitStep:
+    """One class of the misfit raster, counted above the best cell.
+
+    Attributes
+    ----------
+    upper_excess : float
+        Upper bound of ``chi2 - chi2_min`` (``inf`` for the last, open class).
+    color : str
+        ``#rrggbb``.
+    inside : bool
+        The class lies inside the run's confidence region.
+    level : float or None
+        The confidence level whose 2-dof chi-square quantile is the upper
+        bound (68.27 %, the run's level, 99 %, 99.9 %); None for the round far
+        bounds and the open end.
+    """
+
+    upper_excess: float
+    color: str
+    inside: bool
+    level: float | None
+
+
+def misfit_steps(level: float, *, max_excess: float | None = None) -> list[MisfitStep]:
+    """The misfit classes counted above the best cell: the one definition of edges and colours.
+
+    :func:`misfit_classes` (the QGIS style) and the map
+    (:mod:`ttmap.products.locate_map`) both draw these.
+
+    Parameters
+    ----------
+    level : float
+        Confidence level of the run's region, 0 < level < 1.
+    max_excess : float, optional
+        Largest ``chi2 - chi2_min`` on the grid (see :func:`misfit_classes`).
+
+    Returns
+    -------
+    list of MisfitStep
+        Ascending ``upper_excess``, the last ``inf``; the classes up to
+        ``delta_chi2(level)`` are ``inside``.
+
+    Examples
+    --------
+    >>> [(round(s.upper_excess, 2), s.inside, s.level) for s in misfit_steps(0.95, max_excess=20.0)]
+    [(2.3, True, 0.6827), (5.99, True, 0.95), (9.21, False, 0.99), (13.82, False, 0.999), (inf, False, None)]
+    """
+    from ttmap.locate import delta_chi2
+
+    d_level = delta_chi2(level)
+    inside: list[tuple[float, float | None]] = (
+        [(delta_chi2(_ONE_SIGMA_2D), _ONE_SIGMA_2D)] if level > _ONE_SIGMA_2D + 1e-9 else [])
+    inside.append((d_level, float(level)))
+    outside: list[tuple[float, float | None]] = [
+        (delta_chi2(p), p) for p in _OUTER_LEVELS if p > level + 1e-9]
+    top = 1000.0 if max_excess is None or not math.isfinite(max_excess) else float(max_excess)
+    last = outside[-1][0] if outside else d_level
+    far = [v for v in _FAR_STEPS if v > last * 1.5 and v < top]
+    if len(far) > _MAX_FAR:  # spread over the whole range, the largest kept
+        idx = np.linspace(0, len(far) - 1, _MAX_FAR).round().astype(int)
+        far = [far[i] for i in idx]
+    outside += [(v, None) for v in far]
+    out_colors = _cmap_hex(len(outside) + 1, OUTSIDE_CMAP)
+    steps = [MisfitStep(d, INSIDE_COLORS[len(INSIDE_COLORS) - len(inside) + k], True, p)
+             for k, (d, p) in enumerate(inside)]
+    steps += [MisfitStep(d, out_colors[k], False, p) for k, (d, p) in enumerate(outside)]
+    steps.append(MisfitStep(math.inf, out_colors[-1], False, None))
+    return steps
+
+
+def misfit_class_index(excess: Any, steps: Sequence[MisfitStep]) -> Any:
+    """The class of each value of ``chi2 - chi2_min``: the first step whose bound is >= it.
+
+    The rule of QGIS's ``DISCRETE`` shader, and of the region (``<=`` its
+    bound), so a cell on an edge falls in the class below it.
+
+    Parameters
+    ----------
+    excess : array-like of float
+        ``chi2 - chi2_min`` (NaN allowed: class ``len(steps)``).
+    steps : sequence of MisfitStep
+
+    Returns
+    -------
+    ndarray of int
+        Indices into ``steps``; NaN gives ``len(steps)``.
+
+    Examples
+    --------
+    >>> steps = misfit_steps(0.95, max_excess=20.0)
+    >>> misfit_class_index([0.0, 5.991464547107979, 6.0, 1e9, float("nan")], steps).tolist()
+    [0, 1, 2, 4, 5]
+    """
+    v = np.asarray(excess, dtype=np.float64)
+    idx = np.searchsorted(np.asarray([s.upper_excess for s in steps]), v, side="left")
+    return np.where(np.isnan(v), len(steps), idx)
+
+
 def misfit_classes(best_chi2: float, level: float, *, max_excess: float | None = None) -> list[RasterClass]:
     """Classes of the misfit raster, in its own values (chi-square), cut at the region levels.
 
@@ -118,7 +221,8 @@ def misfit_classes(best_chi2: float, level: float, *, max_excess: float | None =
     Returns
     -------
     list of RasterClass
-        Ascending upper bounds, the last ``inf``. The bound
+        Ascending upper bounds, the last ``inf``: ``best_chi2`` plus the
+        bounds of :func:`misfit_steps`, in its colours. The bound
         ``best_chi2 + delta_chi2(level)`` is always one of them, and every
         class below it is inside the region.
 
@@ -132,39 +236,27 @@ def misfit_classes(best_chi2: float, level: float, *, max_excess: float | None =
     >>> [round(c.upper - 2.0, 2) for c in misfit_classes(2.0, 0.95)][:4]
     [2.3, 5.99, 9.21, 13.82]
     """
-    from ttmap.locate import delta_chi2
-
     best = float(best_chi2)
     if not (math.isfinite(best) and best >= 0.0):
         raise InputDataError(f"best misfit {best_chi2!r} must be a finite chi-square >= 0")
-    d_level = delta_chi2(level)
+    steps = misfit_steps(level, max_excess=max_excess)
     pct = _pct(level)
-    inside = [delta_chi2(_ONE_SIGMA_2D)] if level > _ONE_SIGMA_2D + 1e-9 else []
-    inside.append(d_level)
-    outside = [delta_chi2(p) for p in _OUTER_LEVELS if p > level + 1e-9]
-    top = 1000.0 if max_excess is None or not math.isfinite(max_excess) else float(max_excess)
-    last = outside[-1] if outside else d_level
-    far = [v for v in _FAR_STEPS if v > last * 1.5 and v < top]
-    if len(far) > _MAX_FAR:  # spread over the whole range, the largest kept
-        idx = np.linspace(0, len(far) - 1, _MAX_FAR).round().astype(int)
-        far = [far[i] for i in idx]
-    outside += far
-    out_colors = _cmap_hex(len(outside) + 1, OUTSIDE_CMAP)
     classes: list[RasterClass] = []
     lo = 0.0
-    for k, d in enumerate(inside):
-        color = INSIDE_COLORS[len(INSIDE_COLORS) - len(inside) + k]
-        where = f"inside the {_pct(_ONE_SIGMA_2D)} (one-sigma) region" if d < d_level else f"inside the {pct} region"
-        span = f"up to {best + d:.2f}" if k == 0 else f"{best + lo:.2f} to {best + d:.2f}"
-        classes.append(RasterClass(best + d, color, f"{span} (best + {lo:.2f} to {d:.2f}): {where}"))
+    for k, st in enumerate(steps):
+        d = st.upper_excess
+        if st.inside:
+            one_sigma = st.level is not None and abs(st.level - _ONE_SIGMA_2D) < 1e-9 and st.level < level - 1e-9
+            where = f"inside the {_pct(_ONE_SIGMA_2D)} (one-sigma) region" if one_sigma else f"inside the {pct} region"
+            span = f"up to {best + d:.2f}" if k == 0 else f"{best + lo:.2f} to {best + d:.2f}"
+            label = f"{span} (best + {lo:.2f} to {d:.2f}): {where}"
+        elif math.isfinite(d):
+            label = (f"{best + lo:.2f} to {best + d:.2f} (best + {lo:.2f} to {d:.2f}): "
+                     f"outside the {pct} region")
+        else:
+            label = f"above {best + lo:.2f} (best + more than {lo:.2f}): far outside"
+        classes.append(RasterClass(best + d, st.color, label))
         lo = d
-    for k, d in enumerate(outside):
-        classes.append(RasterClass(best + d, out_colors[k],
-                                   f"{best + lo:.2f} to {best + d:.2f} (best + {lo:.2f} to {d:.2f}): "
-                                   f"outside the {pct} region"))
-        lo = d
-    classes.append(RasterClass(math.inf, out_colors[-1],
-                               f"above {best + lo:.2f} (best + more than {lo:.2f}): far outside"))
     return classes
 
 
