@@ -288,3 +288,25 @@ def test_no_inset_when_the_region_is_not_small(close_figures) -> None:
     assert inside.all()
     fig = _render(excess, np.ones(shape, bool), _region(inside), [], centre, level=0.95)
     assert fig.axes[0].child_axes == []
+
+
+def test_gauge_labels_face_away_from_the_best_cell_and_stay_clear_of_the_bar(close_figures) -> None:
+    """West of the best cell a label goes left; at the right edge a long one turns inwards."""
+    shape, centre = (14, 18), (7, 9)
+    excess = _bowl(shape, centre, 1.2, 0.9)
+    inside = excess <= chi2.ppf(0.95, 2)
+    gauges = [("West Gauge", *_cell_xy(3, 4), 0.1), ("East Gauge", *_cell_xy(3, 12), 0.1),
+              (LONG_NAME, *_cell_xy(11, 17), -0.3)]
+    fig = _render(excess, np.ones(shape, bool), _region(inside), gauges, centre, level=0.95)
+    renderer = fig.canvas.get_renderer()
+    ax = fig.axes[0]
+    (cax,) = [a for a in fig.axes if a.get_gid() == "colorbar"]
+    labels = {t.get_text().split("\n")[0]: t for t in ax.texts if t.get_text().split("\n")[0] in
+              {"West Gauge", "East Gauge", LONG_NAME}}
+    to_px = ax.transData.transform
+    west = labels["West Gauge"].get_window_extent(renderer)
+    east = labels["East Gauge"].get_window_extent(renderer)
+    assert west.x1 <= to_px(_cell_xy(3, 4))[0]  # left of its gauge
+    assert east.x0 >= to_px(_cell_xy(3, 12))[0]  # right of its gauge
+    long_box = labels[LONG_NAME].get_window_extent(renderer)
+    assert long_box.x1 < cax.get_window_extent(renderer).x0  # turned inwards, clear of the bar

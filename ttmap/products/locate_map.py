@@ -189,13 +189,17 @@ def render_locate_map(
             xs, ys = poly.exterior.xy
             ax.plot(xs, ys, color="#00a0ff", lw=1.8, zorder=5,
                     label=f"confidence region (chi-square + {delta_chi2:.2f})" if k == 0 else None)
+    labels = []
     for name, x, y, res in gauges:
         ax.plot([x], [y], marker="^", color="#0b6e2e", markersize=8, markeredgecolor="white",
                 ls="none")
         text = name if not np.isfinite(res) else f"{name}\n{res:+.1f} min"
-        ax.annotate(text, (x, y), xytext=(5, 4), textcoords="offset points", fontsize=7.5,
-                    color="#063a18",
-                    bbox={"boxstyle": "round,pad=0.15", "fc": "white", "ec": "none", "alpha": 0.75})
+        # Label on the side away from the best cell, clear of it and of the zoom box.
+        left = x < best_xy[0]
+        labels.append(ax.annotate(
+            text, (x, y), xytext=(-5 if left else 5, 4), textcoords="offset points", fontsize=7.5,
+            color="#063a18", ha="right" if left else "left",
+            bbox={"boxstyle": "round,pad=0.15", "fc": "white", "ec": "none", "alpha": 0.75}))
     halo = [pe.withStroke(linewidth=3.2, foreground="white")]
     ax.plot([best_xy[0]], [best_xy[1]], marker="+", color="black", markersize=12, mew=1.6,
             ls="none", label="best cell", zorder=6, path_effects=halo)
@@ -228,15 +232,30 @@ def render_locate_map(
     ax.legend(loc="lower left", fontsize=8, framealpha=0.85).set_zorder(10)
     ax.set_xlim(w, e)
     ax.set_ylim(s, n)
-    unit = "degrees" if grid.is_geographic else "map units"
-    ax.set_xlabel(f"x ({unit})")
-    ax.set_ylabel(f"y ({unit})")
+    if grid.is_geographic:
+        ax.set_xlabel("longitude (degrees)")
+        ax.set_ylabel("latitude (degrees)")
+    else:
+        ax.set_xlabel("x (map units)")
+        ax.set_ylabel("y (map units)")
     fig.text(0.09, 1.0 - 0.25 / fig_h, title, fontsize=12, weight="bold", va="top")
     fig.text(0.09, 1.0 - 0.58 / fig_h, textwrap.fill(subtitle, 115), fontsize=8, va="top")
     draw_caution_footer(fig, footer, fig_h)
     ax.apply_aspect()  # the bar as tall as the map drawn (equal aspect)
     box = ax.get_position()
     cax.set_position((0.805, box.y0, 0.022, box.height))
+    # A label that would run past the map's left edge, or on the right into the colour bar's
+    # "inside/outside" words, goes to the other side (measured on the map as drawn, after its
+    # equal-aspect shrink).
+    renderer = fig.canvas.get_renderer()
+    frame = ax.get_window_extent(renderer)
+    right_limit = cax.get_window_extent(renderer).x0 - 18.0
+    for lab in labels:
+        ext_px = lab.get_window_extent(renderer)
+        if ext_px.x1 > right_limit or ext_px.x0 < frame.x0:
+            right = ext_px.x1 > right_limit
+            lab.set_horizontalalignment("right" if right else "left")
+            lab.xyann = (-5.0 if right else 5.0, lab.xyann[1])
     fig.canvas.draw()
     fit_colorbar_label(cb.ax.yaxis.label, float(cax.get_window_extent().height))
     return fig
