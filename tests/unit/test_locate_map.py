@@ -310,3 +310,28 @@ def test_gauge_labels_face_away_from_the_best_cell_and_stay_clear_of_the_bar(clo
     assert east.x0 >= to_px(_cell_xy(3, 12))[0]  # right of its gauge
     long_box = labels[LONG_NAME].get_window_extent(renderer)
     assert long_box.x1 < cax.get_window_extent(renderer).x0  # turned inwards, clear of the bar
+
+
+def test_zoom_inset_hides_no_gauge_label_nor_the_legend(close_figures) -> None:
+    """With a gauge in three corners, the inset moves to a free place (here an edge middle)."""
+    shape, centre = (60, 80), (30, 40)
+    excess = _bowl(shape, centre, 2, 1.5)
+    inside = excess <= chi2.ppf(0.95, 2)
+    gauges = [("West Gauge", *_cell_xy(10, 10), 0.1), ("East Harbour", *_cell_xy(12, 70), 0.1),
+              ("Long Name Evacuation Point", *_cell_xy(50, 78), -0.3)]
+    water = np.ones(shape, bool)
+    water[:, 76:] = False
+    water[50, 76:] = True
+    fig = _render(excess, water, _region(inside), gauges, centre, level=0.95)
+    renderer = fig.canvas.get_renderer()
+    ax = fig.axes[0]
+    (inset,) = [a for a in ax.child_axes]
+    ib = inset.get_window_extent(renderer)
+    covered = [ax.get_legend().get_window_extent(renderer)]
+    covered += [t.get_window_extent(renderer) for t in ax.texts if t.get_text().strip()]
+    covered += [ax.transData.transform((x, y)) for _, x, y, _ in gauges]
+    for c in covered:
+        if hasattr(c, "x0"):
+            assert not _overlap(ib, c), c
+        else:
+            assert not (ib.x0 <= c[0] <= ib.x1 and ib.y0 <= c[1] <= ib.y1), c

@@ -89,6 +89,39 @@ def misfit_tick_labels(steps: Sequence[Any]) -> list[str]:
     return labels
 
 
+def _inset_corner(ax: Any, labels: Sequence[Any],
+                  zoom_box: tuple[float, float, float, float]) -> tuple[float, float, float, float]:
+    """Where the zoom inset goes (axes fractions): of the corners and edge middles, the first
+    that hides the fewest gauges (marker or label) and the legend, and after that does not
+    cover the zoomed area."""
+    renderer = ax.figure.canvas.get_renderer()
+    to_axes = ax.transAxes.inverted()
+    boxes = []
+    for lab in labels:  # each gauge: its label's box joined with its marker
+        bb = to_axes.transform(lab.get_window_extent(renderer).get_points())
+        mx, my = to_axes.transform(ax.transData.transform(lab.xy))
+        boxes.append((min(bb[0, 0], mx), min(bb[0, 1], my), max(bb[1, 0], mx), max(bb[1, 1], my)))
+    legend = ax.get_legend()
+    if legend is not None:
+        lb = to_axes.transform(legend.get_window_extent(renderer).get_points())
+        boxes.append((lb[0, 0], lb[0, 1], lb[1, 0], lb[1, 1]))
+    zx0, zy0 = to_axes.transform(ax.transData.transform(zoom_box[:2]))
+    zx1, zy1 = to_axes.transform(ax.transData.transform(zoom_box[2:]))
+
+    def overlaps(a: tuple[float, float, float, float], b: tuple[float, float, float, float]) -> bool:
+        return min(a[2], b[2]) > max(a[0], b[0]) and min(a[3], b[3]) > max(a[1], b[1])
+
+    def cost(box: tuple[float, float, float, float]) -> float:
+        bx = (box[0], box[1], box[0] + box[2], box[1] + box[3])
+        hidden = sum(overlaps(bx, g) for g in boxes)
+        return 100.0 * hidden + overlaps(bx, (min(zx0, zx1), min(zy0, zy1), max(zx0, zx1), max(zy0, zy1)))
+
+    places = ((0.02, 0.62, 0.34, 0.36), (0.64, 0.62, 0.34, 0.36), (0.64, 0.02, 0.34, 0.36),
+              (0.33, 0.62, 0.34, 0.36), (0.64, 0.32, 0.34, 0.36), (0.02, 0.32, 0.34, 0.36),
+              (0.33, 0.02, 0.34, 0.36), (0.02, 0.02, 0.34, 0.36))
+    return min(places, key=cost)  # the first (upper left) on equal cost
+
+
 def render_locate_map(
     excess: Any,
     grid: Any,
@@ -158,7 +191,8 @@ def render_locate_map(
     fig = plt.figure(figsize=(width_in, fig_h), dpi=110)
     bottom = (footer.height_in + 0.85) / fig_h
     height = (map_h_in - 1.6) / fig_h
-    ax = fig.add_axes((0.09, bottom, 0.67, height))
+    left = 0.09 if grid.is_geographic else 0.14  # room for thousands-separated northings
+    ax = fig.add_axes((left, bottom, 0.76 - left, height))
     cax = fig.add_axes((0.805, bottom, 0.022, height))
     cax.set_gid("colorbar")
     w, s, e, n = grid.bounds
@@ -203,41 +237,13 @@ def render_locate_map(
     halo = [pe.withStroke(linewidth=3.2, foreground="white")]
     ax.plot([best_xy[0]], [best_xy[1]], marker="+", color="black", markersize=12, mew=1.6,
             ls="none", label="best cell", zorder=6, path_effects=halo)
-    zoom_half = 0.0
-    if region is not None and not region.is_empty:
-        rx0, ry0, rx1, ry1 = region.bounds
-        zoom_half = max(rx1 - rx0, ry1 - ry0) * 0.8 + 2.0 * max(abs(grid.transform.a), abs(grid.transform.e))
-    if 0.0 < 2.0 * zoom_half < 0.6 * min(e - w, n - s):
-        # A zoom on the region, so that a small one stays readable (none when it would not be a zoom).
-        half = zoom_half
-        cx, cy = (rx0 + rx1) / 2.0, (ry0 + ry1) / 2.0
-        ins = ax.inset_axes((0.02, 0.62, 0.34, 0.36))
-        ins.imshow(classes, extent=ext, origin="upper", cmap=cmap, norm=index_norm,
-                   interpolation="nearest", gid="misfit")
-        ins.imshow(land, extent=ext, origin="upper", cmap="Greys", vmin=0, vmax=2.5,
-                   interpolation="nearest")
-        for poly in getattr(region, "geoms", [region]):
-            xs, ys = poly.exterior.xy
-            ins.plot(xs, ys, color="#00a0ff", lw=1.6)
-        ins.plot([best_xy[0]], [best_xy[1]], marker="+", color="black", markersize=10, mew=1.5,
-                 path_effects=halo)
-        ins.set_xlim(cx - half, cx + half)
-        ins.set_ylim(cy - half, cy + half)
-        ins.set_xticks([])
-        ins.set_yticks([])
-        ins.text(0.03, 0.04, "zoom on the region", transform=ins.transAxes, fontsize=7,
-                 color="black", bbox={"boxstyle": "round,pad=0.15", "fc": "white", "ec": "none", "alpha": 0.8})
-        ax.indicate_inset_zoom(ins, edgecolor="#333333")
     ax.plot([], [], marker="^", color="#0b6e2e", ls="none", label="gauge (residual obs - pred)")
     ax.legend(loc="lower left", fontsize=8, framealpha=0.85).set_zorder(10)
     ax.set_xlim(w, e)
     ax.set_ylim(s, n)
-    if grid.is_geographic:
-        ax.set_xlabel("longitude (degrees)")
-        ax.set_ylabel("latitude (degrees)")
-    else:
-        ax.set_xlabel("x (map units)")
-        ax.set_ylabel("y (map units)")
+    from ttmap.products.maps import label_map_axes
+
+    label_map_axes(ax, grid.is_geographic)
     fig.text(0.09, 1.0 - 0.25 / fig_h, title, fontsize=12, weight="bold", va="top")
     fig.text(0.09, 1.0 - 0.58 / fig_h, textwrap.fill(subtitle, 115), fontsize=8, va="top")
     draw_caution_footer(fig, footer, fig_h)
@@ -247,7 +253,7 @@ def render_locate_map(
     # A label that would run past the map's left edge, or on the right into the colour bar's
     # "inside/outside" words, goes to the other side (measured on the map as drawn, after its
     # equal-aspect shrink).
-    renderer = fig.canvas.get_renderer()
+    renderer = fig.canvas.get_renderer()  # type: ignore[attr-defined]  # Agg canvas
     frame = ax.get_window_extent(renderer)
     right_limit = cax.get_window_extent(renderer).x0 - 18.0
     for lab in labels:
@@ -256,6 +262,34 @@ def render_locate_map(
             right = ext_px.x1 > right_limit
             lab.set_horizontalalignment("right" if right else "left")
             lab.xyann = (-5.0 if right else 5.0, lab.xyann[1])
+    def draw_zoom() -> None:
+        zoom_half = 0.0
+        if region is not None and not region.is_empty:
+            rx0, ry0, rx1, ry1 = region.bounds
+            zoom_half = max(rx1 - rx0, ry1 - ry0) * 0.8 + 2.0 * max(abs(grid.transform.a), abs(grid.transform.e))
+        if 0.0 < 2.0 * zoom_half < 0.6 * min(e - w, n - s):
+            # A zoom on the region, so that a small one stays readable (none when it would not be a zoom).
+            half = zoom_half
+            cx, cy = (rx0 + rx1) / 2.0, (ry0 + ry1) / 2.0
+            ins = ax.inset_axes(_inset_corner(ax, labels, (cx - half, cy - half, cx + half, cy + half)))
+            ins.imshow(classes, extent=ext, origin="upper", cmap=cmap, norm=index_norm,
+                       interpolation="nearest", gid="misfit")
+            ins.imshow(land, extent=ext, origin="upper", cmap="Greys", vmin=0, vmax=2.5,
+                       interpolation="nearest")
+            for poly in getattr(region, "geoms", [region]):
+                xs, ys = poly.exterior.xy
+                ins.plot(xs, ys, color="#00a0ff", lw=1.6)
+            ins.plot([best_xy[0]], [best_xy[1]], marker="+", color="black", markersize=10, mew=1.5,
+                     path_effects=halo)
+            ins.set_xlim(cx - half, cx + half)
+            ins.set_ylim(cy - half, cy + half)
+            ins.set_xticks([])
+            ins.set_yticks([])
+            ins.text(0.03, 0.04, "zoom on the region", transform=ins.transAxes, fontsize=7,
+                     color="black", bbox={"boxstyle": "round,pad=0.15", "fc": "white", "ec": "none", "alpha": 0.8})
+            ax.indicate_inset_zoom(ins, edgecolor="#333333")
+
+    draw_zoom()  # last: its place is chosen to hide no gauge, label or legend as finally placed
     fig.canvas.draw()
     fit_colorbar_label(cb.ax.yaxis.label, float(cax.get_window_extent().height))
     return fig

@@ -52,6 +52,7 @@ __all__ = [
     "class_edges_min",
     "diverging_classes",
     "draw_wave_paths",
+    "label_map_axes",
     "fit_colorbar_label",
     "render_arrival_map",
     "render_class_map",
@@ -1154,16 +1155,7 @@ def render_class_map(
     _place_isochrone_labels(ax, lines, parts_by_line, targets, taken, renderer)
 
     # --- axes ---------------------------------------------------------------------
-    if is_geographic:
-        ax.set_xlabel("Longitude (°)")
-        ax.set_ylabel("Latitude (°)")
-    else:
-        ax.set_xlabel("Easting (m)")
-        ax.set_ylabel("Northing (m)")
-        ax.ticklabel_format(style="plain", useOffset=False)
-        thousands = FuncFormatter(lambda v, _pos: f"{v:,.0f}")
-        ax.xaxis.set_major_formatter(thousands)
-        ax.yaxis.set_major_formatter(thousands)
+    label_map_axes(ax, is_geographic)
     ax.tick_params(labelsize=8)
     ax.xaxis.label.set_fontsize(9)
     ax.yaxis.label.set_fontsize(9)
@@ -1246,3 +1238,21 @@ def draw_wave_paths(ax: Axes, paths: Sequence[NDArray[np.float64]]) -> list[Any]
                             "lw": 0.7, "shrinkA": 0, "shrinkB": 0},
             ))
     return artists
+
+
+def label_map_axes(ax: Any, is_geographic: bool) -> None:
+    """Name a map's axes as every ttmap map does: longitude/latitude in degrees, or easting/northing
+    in metres with plain thousands-separated ticks."""
+    from matplotlib.ticker import FuncFormatter, MaxNLocator
+
+    if is_geographic:
+        ax.set_xlabel("Longitude (°)")
+        ax.set_ylabel("Latitude (°)")
+        return
+    ax.set_xlabel("Easting (m)")
+    ax.set_ylabel("Northing (m)")
+    ax.ticklabel_format(style="plain", useOffset=False)
+    ax.xaxis.set_major_locator(MaxNLocator(nbins=5))  # seven-digit labels need the room
+    thousands = FuncFormatter(lambda v, _pos: f"{v:,.0f}")
+    ax.xaxis.set_major_formatter(thousands)
+    ax.yaxis.set_major_formatter(thousands)
