@@ -133,7 +133,7 @@ class Source:
             shapely.Point(float(x), float(y)),
             c,
             "point",
-            label or f"point x {x:.6g}, y {y:.6g}",
+            label or f"point x {x:.10g}, y {y:.10g}",
             {"x": float(x), "y": float(y), "crs": None if c is None else c.to_string()},
         )
 
