@@ -20,7 +20,6 @@ from __future__ import annotations
 import itertools
 import math
 from collections.abc import Iterator
-from unittest import mock
 
 import matplotlib
 
@@ -32,9 +31,9 @@ import pytest
 import shapely
 from affine import Affine
 from matplotlib.colors import to_rgb
-from matplotlib.text import Text
 from scipy.stats import chi2
 
+from test_picture_layout import drawn_texts
 from ttmap.grid import Grid
 from ttmap.products import locate_styles as ls
 from ttmap.products.locate_map import misfit_colour_classes, misfit_tick_labels, render_locate_map
@@ -220,20 +219,6 @@ def test_inset_draws_the_same_classes(close_figures) -> None:
 # ------------------------------------------------------------------ text that fits
 
 
-def _drawn_texts(fig):
-    drawn = []
-    original = Text.draw
-
-    def record(self, renderer):
-        if self.get_visible() and self.get_text().strip():
-            drawn.append(self)
-        return original(self, renderer)
-
-    with mock.patch.object(Text, "draw", record):
-        fig.canvas.draw()
-    return drawn
-
-
 def _overlap(a, b) -> bool:
     return min(a.x1, b.x1) > max(a.x0, b.x0) and min(a.y1, b.y1) > max(a.y0, b.y0)
 
@@ -249,7 +234,7 @@ def test_colour_bar_text_fits_and_does_not_collide(close_figures, level, max_exc
     gauges = [(LONG_NAME, *_cell_xy(5, 1), 0.4), ("Gannix Jetty", *_cell_xy(12, 14), -0.2)]
     fig = _render(excess, np.ones(shape, bool), _region(inside), gauges, centre, level=level,
                   subtitle="best cell lon -143.975, lat -34.792; origin 2029-12-31T23:59:53+00:00; " * 3)
-    texts = _drawn_texts(fig)
+    texts = drawn_texts(fig)
     renderer = fig.canvas.get_renderer()
     box = fig.bbox
     for t in texts:  # every text inside the figure
