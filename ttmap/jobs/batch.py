@@ -395,7 +395,9 @@ def _band_description(task: SolveTask) -> str:
     )
     if task.kind == "site":
         return f"travel time of the {what} between the site and each cell, minutes"
-    return f"arrival time of the {what}, minutes after origin"
+    from ttmap.products.cautions import minutes_after
+
+    return f"arrival time of the {what}, {minutes_after(task.source.kind)}"
 
 
 def _run_task(job: _Job) -> TaskSummary:

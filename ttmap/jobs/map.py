@@ -716,7 +716,7 @@ def _write_products(job: MapJob, pset: ProductSet, result: TravelTimeResult, wat
     from ttmap.io.atomic import atomic_output
     from ttmap.io.raster import write_arrival_geotiff
     from ttmap.jobs.layers import arrival_levels, isochrone_layers, write_arrival_style, write_isochrones
-    from ttmap.products.cautions import CAUTION_SHORT
+    from ttmap.products.cautions import CAUTION_SHORT, minutes_after
     from ttmap.products.isochrones import isochrone_lines_and_bands
 
     names = job.names(pset)
@@ -732,7 +732,7 @@ def _write_products(job: MapJob, pset: ProductSet, result: TravelTimeResult, wat
     with ThreadPoolExecutor(max_workers=1, thread_name_prefix="ttmap-geotiff") as pool:
         tif_done = pool.submit(
             write_arrival_geotiff, names.arrival_tif, time_min, grid, tags=_tags(job, pset, result, bathymetry_path),
-            band_description=f"arrival time of the {pset.title}, minutes after origin",
+            band_description=f"arrival time of the {pset.title}, {minutes_after(job.source.kind)}",
             overwrite=job.overwrite,
         )
         coast = _coast_table(job, time_min, water, grid) if job.products.coast else None
@@ -748,7 +748,7 @@ def _write_products(job: MapJob, pset: ProductSet, result: TravelTimeResult, wat
         # the field is Real in every file, not String where all values are missing
         line_columns={"speed_mode": pset.mode,
                       "period_s": None if pset.period_s is None else float(pset.period_s)},
-        lines_description=f"Isochrones of the {pset.title}, minutes after origin. {CAUTION_SHORT}",
+        lines_description=f"Isochrones of the {pset.title}, {minutes_after(job.source.kind)}. {CAUTION_SHORT}",
         bands_description=f"Arrival-time bands of the {pset.title}. {CAUTION_SHORT}",
     )
     written += write_isochrones(names.isochrones, layers, bands, grid.crs,

@@ -223,9 +223,10 @@ def _run_staged(sf: ScenarioFile, out: Path, stage: Any, spec: MediumSpec, tasks
         if sf.outputs.envelope and not plan.envelope_one_solve:
             if len(fronts) >= 2:
                 names = list(fronts)
+                kind_of = {sc.name: sc.source.kind for sc in sf.scenarios}
                 env = write_envelope(
                     str(staged), [fronts[n] for n in names], names, None, derived_overwrite,
-                    water_mask=water,
+                    water_mask=water, source_kinds=[kind_of[n] for n in names],
                 )
                 envelope_staged = env
                 products["envelope"] = _product_paths(env, stage)
@@ -565,6 +566,7 @@ def write_envelope(
     *,
     water_mask: Any = None,
     tie_tolerance_min: float | None = None,
+    source_kinds: Sequence[str] | None = None,
 ) -> dict[str, str]:
     """Write the earliest-arrival envelope of several arrival rasters.
 
@@ -590,6 +592,10 @@ def write_envelope(
         The grid the rasters must share; default that of the first raster.
     overwrite : bool
         Replace existing envelope files.
+    source_kinds : sequence of str, optional
+        Source kind of each scenario ("point", "rupture", "area", "line"): the
+        minutes are said to count from "the earthquake" or "the event" as on
+        the maps; without them, from the scenarios' shared origin time.
 
     Returns
     -------
@@ -666,7 +672,7 @@ def write_envelope(
         first,
         ref["grid"],
         minutes_tags={
-            **comparison_tags(f"earliest arrival over {n} scenarios, minutes after origin"),
+            **comparison_tags(f"earliest arrival over {n} scenarios, {_when(source_kinds)}"),
             **scenario_tags,
         },
         index_tags={
@@ -712,6 +718,13 @@ def write_envelope(
         "tie_class": str(tie_path),
         **extras,
     }
+
+
+def _when(source_kinds: Sequence[str] | None) -> str:
+    """Time zero of an envelope in words: its scenarios share one origin time."""
+    from ttmap.products.cautions import minutes_after_all
+
+    return minutes_after_all(source_kinds) if source_kinds else "minutes after the scenarios' shared origin time"
 
 
 def write_difference(

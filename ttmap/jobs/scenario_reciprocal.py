@@ -251,6 +251,7 @@ def _write_one_solve_envelope(
 
     from ttmap.io.atomic import atomic_output, check_writable
     from ttmap.io.compare import ENVELOPE_FILES, write_envelope_files, write_tie_raster
+    from ttmap.products.cautions import minutes_after_all
     from ttmap.products.cautions import CAUTION_SHORT
     from ttmap.products.compare import MAX_SCENARIOS, comparison_tags
 
@@ -293,7 +294,8 @@ def _write_one_solve_envelope(
             first,
             medium.grid,
             minutes_tags={
-                **comparison_tags(f"earliest arrival over {n} scenarios, minutes after origin"),
+                **comparison_tags(f"earliest arrival over {n} scenarios, "
+                                  f"{minutes_after_all(sc.source.kind for sc in sf.scenarios)}"),
                 **scenario_tags, **method_tag,
             },
             index_tags={

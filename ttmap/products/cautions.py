@@ -15,6 +15,8 @@ True
 
 from __future__ import annotations
 
+from collections.abc import Iterable
+
 __all__ = [
     "CAUTION_LINES",
     "CAUTION_SHORT",
@@ -22,6 +24,7 @@ __all__ = [
     "NATURAL_WARNING",
     "event_word",
     "minutes_after",
+    "minutes_after_all",
 ]
 
 #: One line for raster tags, figure footers and CSV headers (< 200 characters).
@@ -107,3 +110,13 @@ def minutes_after(source_kind: str | None = None) -> str:
     'minutes after the event'
     """
     return f"minutes after the {event_word(source_kind)}"
+
+
+def minutes_after_all(source_kinds: Iterable[str]) -> str:
+    """The time-axis wording for several sources sharing one origin time (an envelope).
+
+    >>> minutes_after_all(["point", "rupture"]), minutes_after_all(["rupture", "area"])
+    ('minutes after the earthquake', 'minutes after the event')
+    """
+    kinds = list(source_kinds)
+    return minutes_after(None if all(k in _EARTHQUAKE_KINDS for k in kinds) else "area")

@@ -184,7 +184,7 @@ def wave_path_layer(
     return VectorLayer(
         name, geoms, attributes, "LineString",
         description=("Route of the first wave from the source to each site (steepest descent on the "
-                     f"arrival field), cut every {step_min:g} min; times after origin. {CAUTION_SHORT}"),
+                     f"arrival field), cut every {step_min:g} min; times in minutes from the origin time of the source. {CAUTION_SHORT}"),
     )
 
 
