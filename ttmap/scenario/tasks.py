@@ -108,7 +108,7 @@ def summary_lines(
     lines.append(
         f"bathymetry: {b.path} ({cols} x {rows} cells, {sf.grid.crs}, {sf.grid.bounds_text()}"
         f"{crop}{f', coarsened by {b.coarsen}' if b.coarsen > 1 else ''}"
-        f"{f', refined by {b.refine} (solved on {b.refine} x {b.refine} cells per cell)' if b.refine > 1 else ''})"
+        f"{f', each cell split into {b.refine} x {b.refine} for the solve' if b.refine > 1 else ''})"
     )
     periods = ", ".join(f"{p:g}" for p in s.periods_s)
     lines.append(
