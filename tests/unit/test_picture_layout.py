@@ -291,3 +291,26 @@ def test_one_wording_for_the_time_axis():
         assert any(phrase in x for x in texts)
         assert not any("origin" in x for x in texts), texts
         assert any(NATURAL_WARNING in x for x in texts)  # the natural-warning line
+
+
+def test_wave_paths_and_nests_have_legend_entries_that_fit():
+    """What the map job draws after the map (wave paths, nest outlines) is named in its legend."""
+    from ttmap.products.maps import (
+        draw_nest_outline,
+        draw_wave_paths,
+        nest_outline_handle,
+        wave_path_handle,
+    )
+
+    t, land = synthetic_field()
+    lines = isochrone_lines(t, NORTH_UP, levels_from_interval(10.0, float(np.nanmax(t))))
+    fig = render_arrival_map(t, NORTH_UP, land_mask=land, lines=lines, title="x", is_geographic=False,
+                             sites=[("A very long invented site name", 420_000.0, 5_180_000.0)],
+                             extra_legend=[wave_path_handle(), nest_outline_handle()])
+    draw_wave_paths(fig.axes[0], [np.array([[405_000.0, 5_195_000.0], [420_000.0, 5_180_000.0]])])
+    draw_nest_outline(fig.axes[0], np.array([[415_000.0, 5_175_000.0], [425_000.0, 5_175_000.0],
+                                            [425_000.0, 5_185_000.0], [415_000.0, 5_175_000.0]]))
+    (legend,) = fig.legends
+    names = [t.get_text() for t in legend.get_texts()]
+    assert "Wave path (arrows towards the site)" in names and "Nested finer grid (own map)" in names
+    assert_all_text_inside(fig)

@@ -770,6 +770,9 @@ def _write_products(job: MapJob, pset: ProductSet, result: TravelTimeResult, wat
             import shapely
 
             src_geom = shapely.Point(result.summary.source_x, result.summary.source_y)
+        from ttmap.products.maps import draw_nest_outline, draw_wave_paths, nest_outline_handle, wave_path_handle
+
+        draw_paths = bool(routes) and pset.mode == "long-wave"
         fig = render_arrival_map(
             time_min, grid.transform, land_mask=~water, lines=lines, source_geometry=src_geom,
             sites=site_marks or None,
@@ -778,13 +781,13 @@ def _write_products(job: MapJob, pset: ProductSet, result: TravelTimeResult, wat
             f"bathymetry: {os.path.basename(bathymetry_path or job.reading.path)}",
             is_geographic=grid.is_geographic,
             source_kind=job.source.kind,
+            extra_legend=[*([wave_path_handle()] if draw_paths else []),
+                          *([nest_outline_handle()] if nest_outlines else [])],
         )
-        if routes and pset.mode == "long-wave":
-            from ttmap.products.maps import draw_wave_paths
-
+        if draw_paths:
             draw_wave_paths(fig.axes[0], _routes_in(routes, routes_crs or grid.crs, grid))
         for outline in nest_outlines:  # where the nests are, on the basin's maps
-            fig.axes[0].plot(outline[:, 0], outline[:, 1], color="#1a1a1a", lw=0.8, ls="--", zorder=5)
+            draw_nest_outline(fig.axes[0], outline)
         try:
             for target in names.maps.values():
                 with atomic_output(target, overwrite=job.overwrite) as tmp:

@@ -51,8 +51,11 @@ __all__ = [
     "arrival_classes",
     "class_edges_min",
     "diverging_classes",
+    "draw_nest_outline",
     "draw_wave_paths",
     "label_map_axes",
+    "nest_outline_handle",
+    "wave_path_handle",
     "fit_colorbar_label",
     "render_arrival_map",
     "render_class_map",
@@ -862,6 +865,7 @@ def render_arrival_map(
     colorbar_label: str | None = None,
     line_legend: str | None = None,
     site_legend: str = "Site",
+    extra_legend: Sequence[Any] = (),
 ) -> Figure:
     """Draw an arrival-time map: colour classes, land, coast, isochrones, source, sites, caution.
 
@@ -918,6 +922,9 @@ def render_arrival_map(
         the event" otherwise (:func:`ttmap.products.cautions.minutes_after`).
     colorbar_label, line_legend, site_legend : str, optional
         Replace the colour-bar label, the isochrone and the site legend entries.
+    extra_legend : sequence of matplotlib handles, optional
+        Legend entries of what the caller draws on the map afterwards
+        (:func:`wave_path_handle`, :func:`nest_outline_handle`).
 
     Returns
     -------
@@ -964,7 +971,7 @@ def render_arrival_map(
         is_geographic=is_geographic, caution=caution, max_pixels=max_pixels, figsize=figsize,
         dpi=dpi, source_kind=source_kind,
         line_legend=line_legend or f"Isochrone (h:mm after the {event_word(source_kind)})",
-        site_legend=site_legend,
+        site_legend=site_legend, extra_legend=extra_legend,
     )
 
 
@@ -1222,7 +1229,7 @@ def draw_wave_paths(ax: Axes, paths: Sequence[NDArray[np.float64]]) -> list[Any]
         xy = np.asarray(xy, dtype=np.float64)
         if xy.shape[0] < 2:
             continue
-        (line,) = ax.plot(xy[:, 0], xy[:, 1], color="#1a1a1a", lw=0.7, alpha=0.9, zorder=6,
+        (line,) = ax.plot(xy[:, 0], xy[:, 1], color=_PATH_COLOR, lw=0.7, alpha=0.9, zorder=6,
                           solid_capstyle="round")
         artists.append(line)
         # arrowheads at a third, two thirds and the end of the route's length
@@ -1234,10 +1241,36 @@ def draw_wave_paths(ax: Axes, paths: Sequence[NDArray[np.float64]]) -> list[Any]
             k = int(np.clip(np.searchsorted(s, frac * s[-1]), 1, xy.shape[0] - 1))
             artists.append(ax.annotate(
                 "", xy=(xy[k, 0], xy[k, 1]), xytext=(xy[k - 1, 0], xy[k - 1, 1]), zorder=6,
-                arrowprops={"arrowstyle": "-|>,head_length=0.5,head_width=0.22", "color": "#1a1a1a",
+                arrowprops={"arrowstyle": "-|>,head_length=0.5,head_width=0.22", "color": _PATH_COLOR,
                             "lw": 0.7, "shrinkA": 0, "shrinkB": 0},
             ))
     return artists
+
+
+#: Style of wave paths on maps (the same dark line as the wave-path layer's SLD).
+_PATH_COLOR = "#1a1a1a"
+#: Style of a nest's outline on the basin's maps.
+_NEST_STYLE: dict[str, Any] = {"color": "#1a1a1a", "lw": 0.8, "ls": "--"}
+
+
+def wave_path_handle() -> Any:
+    """Legend entry of :func:`draw_wave_paths`: the line with an arrowhead, "towards the site"."""
+    from matplotlib.lines import Line2D
+
+    return Line2D([], [], color=_PATH_COLOR, lw=0.7, marker=">", markersize=4, markevery=[1],
+                  label="Wave path (arrows towards the site)")
+
+
+def nest_outline_handle() -> Any:
+    """Legend entry of :func:`draw_nest_outline`."""
+    from matplotlib.lines import Line2D
+
+    return Line2D([], [], **_NEST_STYLE, label="Nested finer grid (own map)")
+
+
+def draw_nest_outline(ax: Axes, outline: NDArray[np.float64]) -> None:
+    """A nest's outline (map coordinates, closed ring) on a basin map, dashed."""
+    ax.plot(outline[:, 0], outline[:, 1], zorder=5, **_NEST_STYLE)
 
 
 def label_map_axes(ax: Any, is_geographic: bool) -> None:
