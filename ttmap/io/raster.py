@@ -199,20 +199,9 @@ def _choose_band(src: Any, name: str, band: int | None) -> int:
         raise InputDataError(
             f"bathymetry {name!r} has no raster bands; give a raster with one band"
         )
-    if band is None:
-        if count > 1:
-            raise InputDataError(
-                f"bathymetry {name!r} has {count} bands; choose one with --band N (1 to {count})"
-            )
-        return 1
-    if isinstance(band, bool) or not isinstance(band, (int, np.integer)):
-        raise InputDataError(f"band {band!r} is not a whole number; choose --band N (1 to {count})")
-    if not 1 <= int(band) <= count:
-        raise InputDataError(
-            f"band {band} is out of range: bathymetry {name!r} has {count} band(s); "
-            f"choose --band N (1 to {count})"
-        )
-    return int(band)
+    from ttmap.io.header import choose_band
+
+    return choose_band(count, band, name)  # the same rule as the up-front header check
 
 
 def window_offsets(
