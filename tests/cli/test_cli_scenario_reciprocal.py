@@ -194,3 +194,35 @@ def test_table_method_key_is_validated(tmp_path: Path, run_cli):
     path.write_text(path.read_text().replace("envelope = true", 'envelope = true\ntable_method = "fast"', 1))
     result = run_cli("scenario", "check", path, expect=1)
     assert "table_method" in result.output and "'auto', 'reciprocal', 'direct'" in result.output
+
+
+def test_both_paths_write_the_table_in_one_format_with_the_files_options(tmp_path: Path):
+    """Notes state the file's own site options, and the columns are rounded alike, on both paths.
+
+    (The reciprocal path once wrote the default notification delay into its notes.)
+    """
+    from click.testing import CliRunner
+
+    from ttmap.cli.main import cli
+
+    def run(name: str, *extra: str) -> tuple[list[str], list[str]]:
+        folder = tmp_path / name
+        folder.mkdir()
+        path = _demo_toml(folder, rasters=True)
+        text = path.read_text().replace('demo_sites.csv"', 'demo_sites.csv"\nnotification_delay_min = 17', 1)
+        path.write_text(text.replace("coarsen = 1 ", "coarsen = 3 ", 1))
+        out = folder / "out"
+        result = CliRunner().invoke(cli, ["scenario", "run", str(path), "--executor", "serial", "-q",
+                                          "--out", str(out), *extra])
+        assert result.exit_code == 0, result.output
+        lines = (out / "sites_x_scenarios.csv").read_text().splitlines()
+        return [x for x in lines if x.startswith("#")], [x for x in lines if not x.startswith("#")]
+
+    notes_r, rows_r = run("reciprocal")
+    notes_d, rows_d = run("direct", "--direct")
+    assert any("notification delay 17 min" in n for n in notes_r)
+    assert [n for n in notes_r if "reciprocity" not in n] == notes_d
+    assert rows_r[0] == rows_d[0]  # the same header
+    lon = rows_d[0].split(",").index("lon")
+    for a, b in zip(rows_r[1:], rows_d[1:], strict=True):  # lon, lat: same cells, same rounding
+        assert a.split(",")[lon] == b.split(",")[lon]

@@ -30,6 +30,7 @@ __all__ = [
     "write_envelope",
     "sites_table_summary",
     "write_sites_by_scenarios",
+    "write_site_table_set",
 ]
 
 
@@ -93,7 +94,6 @@ def run_scenario_file(
         ``run.json`` exists and neither ``overwrite`` nor ``resume`` is set.
     """
     import datetime as _dt
-    import json
     import time
 
     from ttmap.io.atomic import check_writable
@@ -727,6 +727,50 @@ def _when(source_kinds: Sequence[str] | None) -> str:
     return minutes_after_all(source_kinds) if source_kinds else "minutes after the scenarios' shared origin time"
 
 
+def write_site_table_set(
+    targets: Sequence[Path],
+    table: Mapping[str, Any],
+    options: Mapping[str, Any],
+    *,
+    overwrite: bool,
+    method_note: str | None = None,
+) -> None:
+    """Write a sites x scenarios table, its earliest-by-site table and chart: one format for both paths.
+
+    Parameters
+    ----------
+    targets : three paths
+        :data:`ttmap.io.compare.SITES_X_SCENARIOS_FILES` in the output folder.
+    table : mapping of column to values
+        From :func:`ttmap.products.compare.sites_by_scenarios` (direct path) or
+        :func:`ttmap.products.compare.sites_by_scenarios_from_values`
+        (reciprocal path).
+    options : mapping
+        The site options the table was built with (the notes state them).
+    overwrite : bool
+    method_note : str, optional
+        One more comment line saying how the arrivals were computed.
+    """
+    from ttmap.io.compare import write_sites_tables
+    from ttmap.io.figures import save_figure
+    from ttmap.products.compare import earliest_by_site, render_sites_by_scenarios, sites_by_scenarios_notes
+
+    first = earliest_by_site(table)
+    base_notes, first_notes = sites_by_scenarios_notes(**options)
+    table_notes = [*base_notes, *([method_note] if method_note else [])]
+    decimals = {k: 2 for k in table if k.endswith("_min") or k.startswith("minutes_")}
+    decimals.update({"lon": 6, "lat": 6, "moved_m": 0, "depth_m": 1, "safe_ground_distance_m": 1,
+                     "walking_speed_m_s": 3})
+    fig = render_sites_by_scenarios(table)
+    write_sites_tables(
+        targets,
+        [(table, table_notes, decimals), (first, first_notes, {"front_min": 2})],
+        lambda path: save_figure(fig, path, format="png"),
+        overwrite=overwrite,
+    )
+    del fig
+
+
 def write_difference(
     out_dir: str | os.PathLike[str],
     path_a: str | os.PathLike[str],
@@ -855,14 +899,8 @@ def write_sites_by_scenarios(
     together (:func:`ttmap.io.atomic.atomic_output_set`).
     """
     from ttmap.io.atomic import check_writable
-    from ttmap.io.compare import SITES_X_SCENARIOS_FILES, read_minutes, write_sites_tables
-    from ttmap.products.compare import (
-        earliest_by_site,
-        render_sites_by_scenarios,
-        sites_by_scenarios,
-        sites_by_scenarios_notes,
-    )
-    from ttmap.io.figures import save_figure
+    from ttmap.io.compare import SITES_X_SCENARIOS_FILES, read_minutes
+    from ttmap.products.compare import sites_by_scenarios
 
     targets = [Path(out_dir) / name for name in SITES_X_SCENARIOS_FILES]
     check_writable(targets, overwrite)
@@ -897,19 +935,7 @@ def write_sites_by_scenarios(
                      "open_water": nf.get("open_water")}
             parts[nest] = (idx, sites_by_scenarios(sub, nf["grid"], nfronts, nenergy, **nopts))
         table = sites_by_scenarios_on_grids(table, site_grids, parts)
-    first = earliest_by_site(table)
-    table_notes, first_notes = sites_by_scenarios_notes(**options)
-    decimals = {k: 2 for k in table if k.endswith("_min") or k.startswith("minutes_")}
-    decimals.update({"lon": 6, "lat": 6, "moved_m": 0, "depth_m": 1, "safe_ground_distance_m": 1,
-                     "walking_speed_m_s": 3})
-    fig = render_sites_by_scenarios(table)
-    write_sites_tables(
-        targets,
-        [(table, table_notes, decimals), (first, first_notes, {"front_min": 2})],
-        lambda path: save_figure(fig, path, format="png"),
-        overwrite=overwrite,
-    )
-    del fig
+    write_site_table_set(targets, table, options, overwrite=overwrite)
     return {
         "table_csv": str(targets[0]),
         "earliest_csv": str(targets[1]),

@@ -523,37 +523,21 @@ def _write_table(
     opts = scenario_site_options(sf)
 
     from ttmap.io.atomic import check_writable
-    from ttmap.io.compare import SITES_X_SCENARIOS_FILES, write_sites_tables
-    from ttmap.products.compare import (
-        earliest_by_site,
-        render_sites_by_scenarios,
-        sites_by_scenarios_from_values,
-        sites_by_scenarios_notes,
-    )
-    from ttmap.io.figures import save_figure
+    from ttmap.io.compare import SITES_X_SCENARIOS_FILES
+    from ttmap.jobs.scenario import write_site_table_set
+    from ttmap.products.compare import sites_by_scenarios_from_values
 
     targets = [out / name for name in SITES_X_SCENARIOS_FILES]
     check_writable(targets, overwrite)
-    table = sites_by_scenarios_from_values(
-        sites, snapped, front_at, energy_at,
-        notification_delay_min=opts.notification_delay_min, preparation_min=opts.preparation_min,
-        walking_speed_m_s=opts.walking_speed_m_s, little_margin_min=opts.little_margin_min,
-        speed_uncertainty=opts.speed_uncertainty, origin_time_utc=opts.origin_time_utc,
-    )
-    first_t = earliest_by_site(table)
-    base_notes, first_notes = sites_by_scenarios_notes()
-    table_notes = [*base_notes, "arrivals by reciprocity: one solve per site and speed model "
-                                 "(docs/reciprocal.md)"]
-    decimals = {k: 2 for k in table if k.endswith("_min") or k.startswith("minutes_")}
-    decimals["moved_m"] = 0
-    fig = render_sites_by_scenarios(table)
-    write_sites_tables(
-        targets,
-        [(table, table_notes, decimals), (first_t, first_notes, {"front_min": 2})],
-        lambda path: save_figure(fig, path, format="png"),
-        overwrite=overwrite,
-    )
-    del fig
+    options = {
+        "notification_delay_min": opts.notification_delay_min, "preparation_min": opts.preparation_min,
+        "walking_speed_m_s": opts.walking_speed_m_s, "little_margin_min": opts.little_margin_min,
+        "speed_uncertainty": opts.speed_uncertainty, "origin_time_utc": opts.origin_time_utc,
+    }
+    table = sites_by_scenarios_from_values(sites, snapped, front_at, energy_at, **options)
+    write_site_table_set(targets, table, options, overwrite=overwrite,
+                         method_note="arrivals by reciprocity: one solve per site and speed model "
+                                     "(docs/reciprocal.md)")
     from ttmap.jobs.scenario import sites_table_summary
 
     return {
