@@ -86,7 +86,6 @@ from typing import TYPE_CHECKING, Any
 
 from ttmap.defaults import CONNECT_TIMEOUT_S, EXECUTORS, MEDIA_PER_WORKER
 from ttmap.errors import InputDataError, OutputExistsError, TtmapError, TtmapWarning
-from ttmap.sources import Source
 from ttmap.tasks import MediumSpec, NestSpec, SolveTask, check_executor
 
 if TYPE_CHECKING:

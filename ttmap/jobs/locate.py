@@ -206,7 +206,7 @@ def run_locate_job(
     from ttmap.jobs.plan import REPORT_NAME, RUN_RECORD_NAME
     from ttmap.jobs.record import utc_now
     from ttmap.locate import check_picks, delta_chi2
-    from ttmap.products.sites import SNAP_MOVED, SNAP_NO_WATER, SNAP_OK, SNAP_OUTSIDE, snap_sites
+    from ttmap.products.sites import SNAP_MOVED, SNAP_NO_WATER, SNAP_OUTSIDE, snap_sites
 
     say = say or (lambda _m: None)
     started = utc_now()

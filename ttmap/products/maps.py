@@ -15,7 +15,6 @@ the sites are given in the same map coordinates (the raster's CRS).
 from __future__ import annotations
 
 import math
-import os
 import textwrap
 from collections.abc import Sequence
 from dataclasses import dataclass
