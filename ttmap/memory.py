@@ -265,7 +265,8 @@ def check_memory(
     who = f"{workers} workers x " if workers > 1 else ""
     raise InputDataError(
         f"a solve of this {rows} x {cols}-cell grid (solve grid {plane.shape[0]} x {plane.shape[1]}) "
-        f"needs about {who}{_gib(per_solve)} = {_gib(need)} of memory (estimate), more than the "
+        f"needs about {who}{_gib(per_solve)}{f' = {_gib(need)}' if workers > 1 else ''} of memory (estimate), "
+        "more than the "
         f"limit of {limit_text}; {fix}"
         + ("; or run fewer workers" if workers > 1 else "")
     )
