@@ -707,7 +707,7 @@ def test_refine_solves_on_split_cells_against_distance_over_speed(run_cli, spec,
     """``--refine 3``: the raster has 3 x 3 cells per cell, the same extent, and the exact times.
 
     Reference: constant depth, so the arrival is distance / sqrt(g h) (long-wave speed;
-    docs/references.md section 1), g = 9.80665 m/s^2 (standard gravity).
+    docs/references.md §2), g = 9.80665 m/s^2 (standard gravity, §9).
     """
     out = tmp_path / "out"
     x, y = spec.UTM_SOURCE_XY

@@ -36,7 +36,7 @@ from ttmap.io.raster import refine_depth
 from ttmap.reciprocal import scenario_starts, sites_by_scenarios_reciprocal
 
 DEPTH_M = 3000.0
-G_M_S2 = 9.80665  # standard gravity
+G_M_S2 = 9.80665  # standard gravity (docs/references.md §9)
 
 
 class WaterPaths:
